@@ -1,0 +1,133 @@
+"""The commands: run, point, check, new. Thin: parse, call the library, print."""
+from __future__ import annotations
+
+import json
+import math
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from . import app
+from ..errors import InputError
+
+StudyArg = Annotated[Path, typer.Argument(help="Study file (.toml) or a timer-sweep workbook (.xlsx) "
+                                               "whose Study sheet is read back.",
+                                          show_default=False)]
+Ideal = Annotated[bool, typer.Option("--ideal", help="Drop every non-ideality: figures equal the "
+                                                     "textbook formulas.")]
+Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar or table.")]
+
+
+def _err(console_text: str) -> None:
+    print(console_text, file=sys.stderr)
+
+
+@app.command()
+def run(study: StudyArg,
+        out: Annotated[Optional[Path], typer.Option("--out", "-o", help="Output folder "
+                                                    "[default: outputs/<study name>/]")] = None,
+        ideal: Ideal = False,
+        all_points: Annotated[bool, typer.Option("--all-points", help="Stream every point to "
+                                                 "points.parquet, however many.")] = False,
+        workers: Annotated[int, typer.Option("--workers", "-w", min=1, max=256,
+                                             help="Local worker processes.")] = 1,
+        scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running "
+                                                         "Dask scheduler, e.g. tcp://10.0.0.5:8786.")] = None,
+        yes: Annotated[bool, typer.Option("--yes", "-y", help="Run even when the estimate exceeds "
+                                          "the size guard.")] = False,
+        quiet: Quiet = False):
+    """Sweep a study and write the workbook, chart page, parquet tables and run record."""
+    from ..study import load_study
+    from ..estimate import estimate, guard
+    from ..pipeline import run_study
+    from .show import progress_bar, top_table
+
+    st = load_study(study)
+    if out is None:
+        out = Path("outputs") / st.name
+    est = estimate(st)
+    if not yes:
+        guard(st, est)
+    mapper = None
+    if scheduler:
+        from ..parallel import dask_mapper
+        mapper = dask_mapper(scheduler)
+    elif workers > 1:
+        from ..parallel import process_mapper
+        mapper = process_mapper(workers)
+    with progress_bar(st.n_points, quiet or not sys.stderr.isatty(), est) as advance:
+        res = run_study(st, out, ideal=ideal, all_points=all_points, progress=advance, mapper=mapper)
+    if not quiet:
+        top_table(res)
+
+
+@app.command()
+def check(study: StudyArg):
+    """Validate a study; print how many points it has and an estimate of memory and time."""
+    from ..study import load_study
+    from ..estimate import estimate
+    from .show import print_estimate
+
+    st = load_study(study)
+    print_estimate(st, estimate(st))
+
+
+@app.command()
+def new(circuit: Annotated[str, typer.Argument(help="astable | astable-diode | astable-symmetric | "
+                                                    "monostable | bistable")],
+        out: Annotated[Optional[Path], typer.Option("--out", "-o", help="File to write "
+                                                    "[default: <circuit>.toml]")] = None,
+        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False):
+    """Write a commented starter study for a circuit."""
+    from ..starters import starter_text
+    from ..writers.atomic import write_text_atomic
+
+    text = starter_text(circuit)
+    path = out or Path(f"{circuit}.toml")
+    if path.exists() and not force:
+        raise InputError(str(path), "--out", "already exists; use --force to overwrite it")
+    write_text_atomic(path, text)
+    typer.echo(f"wrote {path}; edit it, then: timer-sweep check {path} && timer-sweep run {path}")
+
+
+@app.command()
+def point(
+    circuit: Annotated[str, typer.Option(help="astable | astable-diode | astable-symmetric | monostable | bistable")] = "astable",
+    timer: Annotated[str, typer.Option(help="bipolar | cmos | path to a timer-model TOML file")] = "bipolar",
+    ra: Annotated[Optional[str], typer.Option(help="RA, e.g. 10k or 4K7")] = None,
+    rb: Annotated[Optional[str], typer.Option(help="RB")] = None,
+    r: Annotated[Optional[str], typer.Option(help="R (monostable, symmetric astable)")] = None,
+    c: Annotated[Optional[str], typer.Option(help="C, e.g. 100n or 4n7")] = None,
+    vcc: Annotated[Optional[str], typer.Option(help="Supply [default: the timer's typical supply]")] = None,
+    temperature: Annotated[Optional[str], typer.Option(help="Ambient °C [default: 25]")] = None,
+    control_voltage: Annotated[Optional[str], typer.Option(help="Control-pin voltage [default: divider]")] = None,
+    resistor_tolerance: Annotated[Optional[str], typer.Option()] = None,
+    resistor_tempco: Annotated[Optional[str], typer.Option(help="e.g. 100ppm")] = None,
+    resistor_power: Annotated[Optional[str], typer.Option(help="e.g. 0.25W")] = None,
+    capacitor: Annotated[Optional[str], typer.Option(help="C0G | X7R | X5R | Y5V | polypropylene | polyester | electrolytic | tantalum")] = None,
+    capacitor_tolerance: Annotated[Optional[str], typer.Option()] = None,
+    capacitor_voltage: Annotated[Optional[str], typer.Option(help="Rated voltage, e.g. 16V")] = None,
+    stray_capacitance: Annotated[Optional[str], typer.Option(help="[default: 5p]")] = None,
+    diode_drop: Annotated[Optional[str], typer.Option(help="[default: 0.7V]")] = None,
+    dc_bias_loss: Annotated[Optional[str], typer.Option()] = None,
+    load: Annotated[Optional[str], typer.Option(help="Load resistance, e.g. 1k [default: none]")] = None,
+    load_to: Annotated[Optional[str], typer.Option(help="ground | supply")] = None,
+    load_forward_voltage: Annotated[Optional[str], typer.Option(help="LED drop in series with the load")] = None,
+    load_kind: Annotated[Optional[str], typer.Option(help="resistive | led | relay | inductive | mains-switching")] = None,
+    ideal: Ideal = False,
+    as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
+):
+    """Evaluate one design at one condition with the realistic (or --ideal) model."""
+    from ..single import evaluate_point
+    from .show import print_point
+
+    opts = {k: v for k, v in locals().items()
+            if k not in ("ideal", "as_json", "evaluate_point", "print_point") and v is not None}
+    row = evaluate_point(opts, ideal=ideal)
+    if as_json:
+        typer.echo(json.dumps({k: (None if isinstance(v, float) and not math.isfinite(v) else v)
+                               for k, v in row.items()}))
+    else:
+        print_point(row)

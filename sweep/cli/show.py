@@ -1,0 +1,83 @@
+"""Terminal output: progress bar, tables, the estimate. Presentation only."""
+from __future__ import annotations
+
+import contextlib
+import sys
+
+from rich.console import Console
+from rich.markup import escape
+from rich.table import Table
+
+from ..reporting import eng
+
+err = Console(stderr=True)
+out = Console()
+
+
+@contextlib.contextmanager
+def progress_bar(total: int, quiet: bool, est=None):
+    """A progress bar with rate and time left on stderr; silent when quiet or not a terminal."""
+    if quiet:
+        yield None
+        return
+    from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
+                               TimeRemainingColumn, TransferSpeedColumn)
+    with Progress(TextColumn("sweeping"), BarColumn(), MofNCompleteColumn(),
+                  TextColumn("points"), TimeRemainingColumn(), console=err, transient=True) as p:
+        task = p.add_task("sweep", total=total)
+        yield lambda n: p.advance(task, n)
+
+
+def top_table(res, n: int = 5) -> None:
+    st, d = res.study, res.designs
+    from ..analysis import main_outputs
+    main = main_outputs(st.circuit)
+    t = Table(title=escape(f"{st.title}: best {min(n, len(d))} of {len(d):,} designs"), title_justify="left")
+    t.add_column("rank", justify="right")
+    for a in st.design:
+        t.add_column(a.column.rsplit("_", 1)[0].upper() if a.key in ("ra", "rb", "r", "c") else a.key,
+                     justify="right")
+    for m in main:
+        t.add_column(f"{m.split('_')[0]} nom", justify="right")
+    t.add_column("yield", justify="right")
+    t.add_column("I supply max", justify="right")
+    t.add_column("flags")
+    for _, r in d.head(n).iterrows():
+        cells = [str(r["rank"])] + [eng(r[a.column], a.column) for a in st.design]
+        cells += [eng(r[f"{m}_nom"], m) for m in main]
+        cells.append(f"{r['yield'] * 100:.1f} %" if r["yield"] == r["yield"] else "-")
+        cells.append(eng(r["supply_current_a_max"], "supply_current_a"))
+        cells.append(r["flags"] or "ok")
+        t.add_row(*(escape(c) for c in cells))
+    out.print(t)
+    if not res.info.get("meets_spec", True):
+        out.print("[bold]No design meets the spec.[/bold] The table shows the best candidates; widen "
+                  "the ranges or relax the spec.")
+    out.print(escape(f"wrote {res.files['workbook']}, {res.files['page']}, {res.files['points'].name}, "
+              f"{res.files['designs'].name}, {res.files['record'].name} in {res.out_dir}"))
+
+
+def print_estimate(st, est) -> None:
+    from ..estimate import human_time
+    out.print(escape(f"{st.path}: valid. circuit {st.circuit}, timer {st.timer.name}"))
+    out.print(f"  designs     {st.n_designs:,}  ({' x '.join(f'{a.key} {len(a.values)}' for a in st.design) or 'one'})")
+    out.print(f"  conditions  {st.n_conditions:,}  ({' x '.join(f'{a.key} {len(a.values)}' for a in st.conditions)})")
+    out.print(f"  points      {est.points:,}")
+    out.print(f"  evaluations {est.evaluations:,} (sweep, worst-case corners, {st.monte_carlo:,} Monte Carlo builds)")
+    out.print(f"  memory      about {est.bytes / 2**20:,.0f} MiB")
+    out.print(f"  time        {human_time(est.seconds)} on one process (measured {est.rate / 1e6:.1f} M evaluations/s here)")
+
+
+def print_point(row: dict) -> None:
+    t = Table(show_header=False)
+    t.add_column("quantity")
+    t.add_column("value", justify="right")
+    from ..variables import VARIABLES
+    for k, v in row.items():
+        label = VARIABLES[k].header if k in VARIABLES else k
+        if isinstance(v, float):
+            text = eng(v, k)
+        else:
+            text = str(v) if v != "" else "none"
+        t.add_row(escape(label), escape(text))
+    out.print(t)

@@ -1,0 +1,73 @@
+"""Estimates of work, memory and time before a run, and the guard that refuses a huge sweep."""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from .analysis import summary_outputs, varied_parts
+from .engine import DEFAULT_CHUNK, axis_values, evaluate_block
+from .errors import InputError
+from .study import Study
+
+LIMIT_POINTS = 200_000_000       # refused without --yes
+LIMIT_EVALUATIONS = 20_000_000_000
+LIMIT_SECONDS = 1800.0
+LIMIT_BYTES = 8 * 2**30
+
+
+@dataclass(frozen=True)
+class Estimate:
+    points: int
+    evaluations: int          # sweep + worst-case corners + Monte Carlo (before screening)
+    bytes: int                # peak memory, roughly
+    seconds: float            # one process
+    rate: float               # evaluations per second measured here
+
+
+def estimate(study: Study, sample: int = 20_000) -> Estimate:
+    nd, nc = study.n_designs, study.n_conditions
+    corners = 2 ** len(varied_parts(study))
+    evals = nd * nc * (1 + corners + study.monte_carlo) + nd * (1 + 2 * len(varied_parts(study)))
+    # measure this machine on a slice of the study itself
+    k = max(1, min(nd, sample // max(nc, 1)))
+    cond = axis_values(study.conditions, np.arange(min(nc, sample)))
+    design = axis_values(study.design, np.arange(k))
+    evaluate_block(study, design, cond)                      # warm up
+    t0 = time.perf_counter()
+    evaluate_block(study, design, cond)
+    dt = max(time.perf_counter() - t0, 1e-6)
+    rate = k * len(next(iter(cond.values()))) / dt
+    ncol = 4 * len(summary_outputs(study)) + 20
+    mem = 200 * 2**20 + DEFAULT_CHUNK * 60 * 8 + nd * ncol * 8 * 3
+    return Estimate(nd * nc, evals, int(mem), evals / rate, rate)
+
+
+def human_time(s: float) -> str:
+    if s < 1:
+        return "under a second"
+    if s < 120:
+        return f"about {s:.0f} s"
+    if s < 7200:
+        return f"about {s / 60:.0f} min"
+    return f"about {s / 3600:.1f} h"
+
+
+def guard(study: Study, est: Estimate) -> None:
+    """Refuse a run whose estimate exceeds a limit, saying why and how to narrow it."""
+    reasons = []
+    if est.points > LIMIT_POINTS:
+        reasons.append(f"{est.points:,} points (limit {LIMIT_POINTS:,})")
+    if est.evaluations > LIMIT_EVALUATIONS:
+        reasons.append(f"{est.evaluations:,} model evaluations (limit {LIMIT_EVALUATIONS:,})")
+    if est.bytes > LIMIT_BYTES:
+        reasons.append(f"about {est.bytes / 2**30:.1f} GiB of memory (limit {LIMIT_BYTES / 2**30:.0f} GiB)")
+    if est.seconds > LIMIT_SECONDS:
+        reasons.append(f"{human_time(est.seconds)} on this machine (limit {LIMIT_SECONDS / 60:.0f} min)")
+    if reasons:
+        biggest = max(study.axes, key=lambda a: len(a.values))
+        raise InputError(study.path, "", "sweep too large: " + "; ".join(reasons) +
+                         f". Narrow it (the largest axis is '{biggest.key}' with {len(biggest.values):,} "
+                         "values: use a coarser series or fewer steps, or lower [analysis] monte_carlo), "
+                         "spread it with --workers or --scheduler, or pass --yes to run it anyway.")

@@ -1,0 +1,116 @@
+"""Timer-model data files and their loader.
+
+`bipolar.toml` and `cmos.toml` ship with timer-sweep; a study may name its own file instead.
+Every key of the shipped files is required in a user's file, so nothing is silently defaulted.
+"""
+from __future__ import annotations
+
+import math
+import tomllib
+from pathlib import Path
+
+from ..errors import InputError
+from ..physics.timer import TimerModel
+
+HERE = Path(__file__).parent
+BUILTIN = {"bipolar": HERE / "bipolar.toml", "cmos": HERE / "cmos.toml"}
+SECTIONS = ("supply", "inputs", "discharge", "output", "timing", "thermal")
+
+
+def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") -> TimerModel:
+    """A timer model by built-in name ('bipolar', 'cmos') or path to a TOML file.
+
+    Raises InputError naming the file and key on anything missing, malformed or impossible.
+    """
+    if spec in BUILTIN:
+        path = BUILTIN[spec]
+    else:
+        path = Path(spec)
+        if not path.is_absolute() and base_dir is not None:
+            path = base_dir / path
+        if not path.suffix == ".toml":
+            raise InputError(study_file, "study.timer",
+                             f"unknown timer {spec!r}: use 'bipolar', 'cmos' or a path to a .toml file")
+        if not path.is_file():
+            raise InputError(study_file, "study.timer", f"timer-model file {str(path)!r} not found")
+    fname = str(path)
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except UnicodeDecodeError:
+        raise InputError(fname, "", "not a UTF-8 text file") from None
+    except tomllib.TOMLDecodeError as e:
+        raise InputError(fname, "", f"not valid TOML: {e}") from None
+    flat: dict[str, object] = {}
+    for key in ("name", "kind"):
+        if not isinstance(data.get(key), str):
+            raise InputError(fname, key, "missing or not a string")
+        flat[key] = data[key]
+    for section in SECTIONS:
+        table = data.get(section)
+        if not isinstance(table, dict):
+            raise InputError(fname, section, "missing section")
+        for key, value in table.items():
+            flat[key] = value
+    unknown = [k for k in data if k not in SECTIONS + ("name", "kind")]
+    if unknown:
+        raise InputError(fname, unknown[0], "unknown key")
+    names = TimerModel.field_names()
+    for k in flat:
+        if k not in names:
+            raise InputError(fname, k, "unknown key")
+    for k in names:
+        if k not in flat:
+            raise InputError(fname, k, "missing key")
+        if k in ("name", "kind"):
+            continue
+        if k == "quiescent_points":
+            pts = flat[k]
+            ok = (isinstance(pts, list) and pts and all(
+                isinstance(p, list) and len(p) == 2 and all(_is_num(x) for x in p) for p in pts))
+            if not ok:
+                raise InputError(fname, k, "must be a list of [volts, amperes] pairs")
+            if any(p[1] < 0 for p in pts) or any(b[0] <= a[0] for a, b in zip(pts, pts[1:])):
+                raise InputError(fname, k, "currents must be >= 0 and volts strictly increasing")
+            flat[k] = tuple((float(a), float(b)) for a, b in pts)
+            continue
+        if not _is_num(flat[k]):
+            raise InputError(fname, k, "must be a finite number")
+        flat[k] = float(flat[k])
+    model = TimerModel(**flat)
+    _check_physical(model, fname)
+    return model
+
+
+def _is_num(x) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
+
+
+def _check_physical(m: TimerModel, fname: str) -> None:
+    """Refuse a model no chip could have."""
+    def bad(key, why):
+        raise InputError(fname, key, why)
+    if not 0 < m.min_v < m.max_v <= m.abs_max_v:
+        bad("max_v", "supply limits must satisfy 0 < min_v < max_v <= abs_max_v")
+    if not m.min_v <= m.typical_v <= m.max_v:
+        bad("typical_v", "must lie between min_v and max_v")
+    if not 0.0 < m.threshold_fraction < 1.0:
+        bad("threshold_fraction", "the upper threshold must lie between 0 and 1 of the supply "
+            "(the lower one is half of it, so the thresholds stay in order)")
+    for k in ("threshold_current_a", "threshold_current_max_a", "trigger_current_a", "saturation_v",
+              "saturation_ohm", "high_drop_v", "high_ohm", "low_drop_v", "low_ohm",
+              "propagation_delay_s", "accuracy_astable", "accuracy_monostable",
+              "drift_astable_ppm_per_k", "drift_monostable_ppm_per_k",
+              "supply_sensitivity_astable_per_v", "supply_sensitivity_monostable_per_v",
+              "min_capacitance_f", "min_resistance_ohm", "reset_v"):
+        if getattr(m, k) < 0:
+            bad(k, "must not be negative")
+    if m.threshold_current_max_a < m.threshold_current_a:
+        bad("threshold_current_max_a", "must be at least threshold_current_a")
+    for k in ("divider_resistance_ohm", "discharge_max_a", "source_max_a", "sink_max_a",
+              "max_frequency_hz", "theta_ja_c_per_w", "resistance_derating"):
+        if getattr(m, k) <= 0:
+            bad(k, "must be greater than zero")
+    if not m.ambient_min_c < m.ambient_max_c < m.tj_max_c:
+        bad("ambient_max_c", "must satisfy ambient_min_c < ambient_max_c < tj_max_c")
+    if m.high_drop_v >= m.min_v:
+        bad("high_drop_v", "output drop is larger than the lowest supply")

@@ -1,0 +1,254 @@
+"""The realistic 555 model: one pure, broadcasting numpy function per job.
+
+Every input is an array (or scalar) in SI units; all arrays broadcast against each other, so the
+engine can pass a design axis and a condition axis with different shapes and never loop in
+Python. Equations and sources are in DOMAIN.md; the tags are repeated beside each formula.
+
+The timing node is linear in every element the model has (Thevenin sources, saturation as
+V0 + R I, leakage as a conductance, bias as a constant current), so each phase is one exponential
+towards V_inf with time constant tau, and the RC law gives its length exactly [book].
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from .parts import (Load, Parts, capacitance_temperature_factor, dc_bias_factor,
+                    leakage_conductance_s, resistor_at)
+from .timer import TimerModel
+
+CIRCUITS = ("astable", "astable-diode", "astable-symmetric", "monostable", "bistable")
+ASTABLES = ("astable", "astable-diode", "astable-symmetric")
+
+#: which timing parts each circuit needs
+CIRCUIT_PARTS = {
+    "astable": ("ra", "rb", "c"),
+    "astable-diode": ("ra", "rb", "c"),
+    "astable-symmetric": ("r", "c"),
+    "monostable": ("r", "c"),
+    "bistable": (),
+}
+
+# bit of each flag in the mask (order of sweep.variables.FLAGS)
+FLAG_BITS = {name: 1 << i for i, name in enumerate([
+    "supply-below-min", "supply-above-max", "supply-above-abs-max", "temperature-out-of-range",
+    "resistor-too-small", "resistance-too-large", "capacitor-too-small", "frequency-too-high",
+    "output-current-over-limit", "discharge-current-over-limit", "resistor-overpowered",
+    "junction-too-hot", "timing-stalls", "spec-miss"])}
+
+
+def rc_time_s(tau_s, v_inf_v, v_start_v, v_end_v):
+    """Time for an RC node to go from v_start to v_end towards v_inf:
+    t = tau ln((V_inf - V1) / (V_inf - V2)) [book: RC law]. NaN where v_end is never reached."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = (v_inf_v - v_start_v) / (v_inf_v - v_end_v)
+        return np.where(ratio >= 1.0, tau_s * np.log(ratio), np.nan)
+
+
+def mean_on_exponential_v(tau_s, v_inf_v, v_start_v, t_s):
+    """Mean node voltage over t_s along V(t) = V_inf + (V0 - V_inf) exp(-t/tau) [derived]."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = tau_s / t_s * -np.expm1(-t_s / tau_s)
+    return v_inf_v + (v_start_v - v_inf_v) * frac
+
+
+def thevenin_with_sat(vcc_v, r_pull_ohm, v_sat_v, r_sat_ohm):
+    """Node held by a discharge transistor (V_sat0 + R_sat I) against a pull-up r_pull to VCC:
+    returns (V_th, R_th) [derived]. Exact also for R_sat = 0."""
+    v = (vcc_v * r_sat_ohm + v_sat_v * r_pull_ohm) / (r_pull_ohm + r_sat_ohm)
+    r = r_pull_ohm * r_sat_ohm / (r_pull_ohm + r_sat_ohm)
+    return v, r
+
+
+def node_source(v_src_v, r_src_ohm, g_leak_s, i_bias_a, c_f):
+    """A source v_src behind r_src charging C that also leaks g_leak to ground and loses i_bias
+    into the comparator inputs: returns (V_inf [V], tau [s]) [book: Thevenin]."""
+    g = 1.0 / r_src_ohm + g_leak_s
+    v_inf = (v_src_v / r_src_ohm - i_bias_a) / g
+    return v_inf, c_f / g
+
+
+def output_stage(timer: TimerModel, load: Load, vcc_v):
+    """Output voltages and load currents in each state [derived: load line against a linear
+    output stage V = V0 + R I, DOMAIN.md section 8]. Returns (v_high, v_low, i_high, i_low)."""
+    vcc = np.asarray(vcc_v, dtype=float)
+    zero = np.zeros_like(vcc)
+    v_oh0 = vcc - timer.high_drop_v
+    v_ol0 = timer.low_drop_v + zero
+    rl = load.resistance_ohm
+    if not np.isfinite(rl):
+        return v_oh0, v_ol0, zero, zero
+    vf = load.forward_voltage_v
+    if load.to == "ground":
+        i_h = np.maximum((v_oh0 - vf) / (rl + timer.high_ohm), 0.0)
+        return v_oh0 - timer.high_ohm * i_h, v_ol0, i_h, zero
+    i_l = np.maximum((vcc - vf - v_ol0) / (rl + timer.low_ohm), 0.0)
+    return v_oh0, v_ol0 + timer.low_ohm * i_l, zero, i_l
+
+
+def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
+             c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
+             ideal: bool = False) -> dict[str, np.ndarray]:
+    """Evaluate every point of a broadcast grid.
+
+    Parameters (SI units; arrays broadcast): vcc [V], temperature [°C], c [F] nominal at 25 °C,
+    ra, rb, r [Ω] nominal at 25 °C, control_voltage [V] (NaN: internal divider).
+    Returns a dict of arrays: the output columns of sweep.variables.OUTPUTS and 'flag_mask'
+    (bits of FLAG_BITS, spec-miss excluded: that needs the study's [spec]).
+    """
+    if circuit not in CIRCUITS:
+        raise ValueError(f"unknown circuit {circuit!r}")
+    if ideal:
+        timer, parts = timer.idealised(), parts.idealised()
+    cap = parts.technology
+    vcc = np.asarray(vcc, dtype=float)
+    t_amb = np.asarray(temperature, dtype=float)
+    cv = np.asarray(control_voltage, dtype=float)
+    tc = parts.resistor_tempco_per_k
+    ra_t, rb_t, r_t = (resistor_at(np.asarray(x, dtype=float), t_amb, tc) for x in (ra, rb, r))
+
+    # thresholds: upper = control voltage, lower = half of it [book]
+    v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
+    v_lo_th = 0.5 * v_up
+    v_oh, v_ol, i_load_h, i_load_l = output_stage(timer, load, vcc)
+    iq_l = timer.quiescent_a(vcc, output_high=False)
+    iq_h = timer.quiescent_a(vcc, output_high=True)
+    tpd = timer.propagation_delay_s
+    out: dict[str, np.ndarray] = {}
+
+    timed = circuit != "bistable"
+    if timed:
+        c_nom = np.asarray(c, dtype=float)
+        v_mean_cap = (0.5 if circuit == "monostable" else 0.75) * v_up
+        k_bias = 0.0 if ideal else parts.dc_bias_loss
+        c_eff = (c_nom * (1.0 if ideal else capacitance_temperature_factor(cap, t_amb))
+                 * dc_bias_factor(cap, v_mean_cap, parts.capacitor_voltage_v, k_bias)
+                 + parts.stray_capacitance_f)
+        g_leak = 0.0 if ideal else leakage_conductance_s(cap, c_nom, parts.capacitor_voltage_v, t_amb)
+        i_b = timer.threshold_current_a   # net input current drawn from the timing node [ds-bip]
+
+    if circuit in ("astable", "astable-diode"):
+        if circuit == "astable":
+            vs_c, rs_c = vcc, ra_t + rb_t                       # charge through RA + RB [book]
+        else:
+            vs_c, rs_c = vcc - parts.diode_drop_v, ra_t         # through RA and the diode [derived]
+        v_d, r_d = thevenin_with_sat(vcc, ra_t, timer.saturation_v, timer.saturation_ohm)
+        vs_d, rs_d = v_d, rb_t + r_d                             # discharge through RB [book]
+    elif circuit == "astable-symmetric":
+        vs_c, rs_c = v_oh, r_t + timer.high_ohm                  # output high drives R [derived]
+        vs_d, rs_d = v_ol, r_t + timer.low_ohm                   # output low sinks R [derived]
+    elif circuit == "monostable":
+        vs_c, rs_c = vcc, r_t
+
+    if circuit in ASTABLES:
+        vinf_c, tau_c = node_source(vs_c, rs_c, g_leak, i_b, c_eff)
+        vinf_d, tau_d = node_source(vs_d, rs_d, g_leak, i_b, c_eff)
+        stalls = (vinf_c <= v_up) | (vinf_d >= v_lo_th)
+        # each phase runs on for the propagation delay past its threshold [derived]
+        v_top = vinf_c - (vinf_c - v_up) * np.exp(-tpd / tau_c)
+        v_bot = vinf_d - (vinf_d - v_lo_th) * np.exp(-tpd / tau_d)
+        t_h = rc_time_s(tau_c, vinf_c, v_bot, v_up) + tpd
+        t_l = rc_time_s(tau_d, vinf_d, v_top, v_lo_th) + tpd
+        t_h = np.where(stalls, np.nan, t_h)
+        t_l = np.where(stalls, np.nan, t_l)
+        period = t_h + t_l
+        vm_h = mean_on_exponential_v(tau_c, vinf_c, v_bot, t_h)
+        vm_l = mean_on_exponential_v(tau_d, vinf_d, v_top, t_l)
+        i_charge_h = (vs_c - vm_h) / rs_c                          # drawn from the supply
+        if circuit == "astable-symmetric":
+            i_ra_l = np.zeros_like(vm_l)
+            dis_peak = np.zeros_like(vm_l)
+            p_res = (vs_c - v_bot) ** 2 / rs_c ** 2 * r_t
+            p_dis_l = 0.0
+        else:
+            # node D during the low phase: VCC via RA, V_sat via R_sat, capacitor via RB [derived]
+            def v_node_d(v_cap):
+                num = (vcc * timer.saturation_ohm * rb_t + timer.saturation_v * ra_t * rb_t
+                       + v_cap * ra_t * timer.saturation_ohm)
+                return num / (timer.saturation_ohm * rb_t + ra_t * rb_t + ra_t * timer.saturation_ohm)
+            vd_mean = v_node_d(vm_l)
+            i_ra_l = (vcc - vd_mean) / ra_t
+            vd_top = v_node_d(v_top)
+            dis_peak = (vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t
+            # RA: worst of the low phase (VCC across it, less node D) and the start of the high
+            p_res = np.maximum((vcc - v_node_d(v_bot)) ** 2 / ra_t,
+                               ((vs_c - v_bot) / rs_c) ** 2 * ra_t)
+            p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
+        i_h = iq_h + i_charge_h + i_load_h
+        i_l = iq_l + i_ra_l + i_load_l
+        supply = (t_h * i_h + t_l * i_l) / period
+        p_chip_h = vcc * iq_h + (vcc - v_oh) * i_load_h
+        p_chip_l = vcc * iq_l + v_ol * i_load_l + p_dis_l
+        p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
+        out.update(high_time_s=t_h, low_time_s=t_l, period_s=period, frequency_hz=1.0 / period,
+                   duty=t_h / period, pulse_width_s=np.full_like(period, np.nan),
+                   supply_current_a=supply, idle_current_a=np.full_like(period, np.nan),
+                   discharge_peak_a=dis_peak, ra_power_w=p_res)
+    elif circuit == "monostable":
+        # at rest the discharge transistor holds C near V_sat [derived]
+        v0, _ = thevenin_with_sat(vcc, r_t, timer.saturation_v, timer.saturation_ohm)
+        vinf_c, tau_c = node_source(vs_c, rs_c, g_leak, i_b, c_eff)
+        stalls = vinf_c <= v_up
+        pw = np.where(stalls, np.nan, rc_time_s(tau_c, vinf_c, v0, v_up) + tpd)
+        vm_h = mean_on_exponential_v(tau_c, vinf_c, v0, pw)
+        i_idle_r = (vcc - v0) / r_t
+        supply = iq_h + (vcc - vm_h) / r_t + i_load_h
+        idle = iq_l + i_idle_r + i_load_l
+        p_chip = np.maximum(vcc * iq_h + (vcc - v_oh) * i_load_h,
+                            vcc * iq_l + v_ol * i_load_l + v0 * i_idle_r)
+        nan = np.full_like(pw, np.nan)
+        out.update(high_time_s=pw, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
+                   pulse_width_s=pw, supply_current_a=supply, idle_current_a=idle,
+                   discharge_peak_a=i_idle_r, ra_power_w=(vcc - v0) ** 2 / r_t)
+    else:  # bistable: set/reset latch, no timing [book]
+        i_h = iq_h + i_load_h
+        i_l = iq_l + i_load_l
+        stalls = np.zeros(np.broadcast(vcc, t_amb).shape, dtype=bool)
+        p_chip = np.maximum(vcc * iq_h + (vcc - v_oh) * i_load_h, vcc * iq_l + v_ol * i_load_l)
+        nan = np.full(stalls.shape, np.nan)
+        out.update(high_time_s=nan, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
+                   pulse_width_s=nan, supply_current_a=np.maximum(i_h, i_l), idle_current_a=i_l,
+                   discharge_peak_a=np.zeros(stalls.shape), ra_power_w=np.zeros(stalls.shape))
+
+    tj = t_amb + timer.theta_ja_c_per_w * p_chip
+    shape = np.broadcast(*(np.asarray(v) for v in out.values()), tj, vcc, t_amb).shape
+    out["power_w"] = vcc * out["supply_current_a"]
+    out["output_high_v"] = v_oh
+    out["output_low_v"] = v_ol
+    out["output_current_a"] = np.maximum(i_load_h, i_load_l)
+    out["junction_temp_c"] = tj
+    out = {k: np.broadcast_to(np.asarray(v, dtype=float), shape) for k, v in out.items()}
+
+    # flags [ds-bip]/[ds-cmos] limits from the timer model, [cp] part limits
+    m = np.zeros(shape, dtype=np.uint32)
+
+    def flag(name, cond):
+        nonlocal m
+        m = m | np.where(np.broadcast_to(cond, shape), np.uint32(FLAG_BITS[name]), np.uint32(0))
+
+    flag("supply-below-min", vcc < timer.min_v)
+    flag("supply-above-max", vcc > timer.max_v)
+    flag("supply-above-abs-max", vcc > timer.abs_max_v)
+    flag("temperature-out-of-range", (t_amb < timer.ambient_min_c) | (t_amb > timer.ambient_max_c))
+    flag("output-current-over-limit", (i_load_h > timer.source_max_a) | (i_load_l > timer.sink_max_a))
+    flag("junction-too-hot", tj > timer.tj_max_c)
+    if timed:
+        r_in = {"astable": ra, "astable-diode": ra}.get(circuit, r)
+        flag("resistor-too-small", np.asarray(r_in) < timer.min_resistance_ohm)
+        # R_max = derating x (VCC - Vc) / I_th,max [ds-bip; cp halves it]
+        r_charge = np.asarray(ra) + np.asarray(rb) if circuit == "astable" else np.asarray(r_in)
+        if timer.threshold_current_max_a > 0:
+            r_max = timer.resistance_derating * (vcc - v_up) / timer.threshold_current_max_a
+            flag("resistance-too-large", r_charge > r_max)
+        flag("capacitor-too-small", c_nom < timer.min_capacitance_f)
+        flag("discharge-current-over-limit", out["discharge_peak_a"] > timer.discharge_max_a)
+        flag("resistor-overpowered", out["ra_power_w"] > parts.resistor_power_w)
+        flag("timing-stalls", stalls)
+        if circuit in ASTABLES:
+            flag("frequency-too-high", out["frequency_hz"] > timer.max_frequency_hz)
+    out["flag_mask"] = m
+    return out
+
+
+def flag_names(mask: int) -> list[str]:
+    """Flag codes set in one mask value, in the stable order."""
+    return [name for name, bit in FLAG_BITS.items() if mask & bit]

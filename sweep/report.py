@@ -1,0 +1,50 @@
+"""What the writers receive: plain tables and text, computed by the library, never by a writer.
+
+A writer (workbook, chart page) only lays out what is here. Column names of every DataFrame are
+machine names from sweep.variables (or the per-design names `<output>_nom`, `_min`, `_max`,
+`_wc_min`, `_wc_max`, `_mc_mean`, `_mc_std`, `yield`, `sn_db`, `sens_<part>`, `feasible`,
+`rank`, `flags`).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import pandas as pd
+
+
+@dataclass(frozen=True)
+class SpecRow:
+    key: str            # study key, e.g. "frequency"
+    column: str         # machine column, e.g. "frequency_hz"
+    lo: float           # -inf when open
+    hi: float           # +inf when open
+    target: float | None = None
+
+
+@dataclass
+class Report:
+    name: str                        # file-name stem, e.g. "bike-light"
+    title: str                       # user text: escape it in HTML, never a formula in XLSX
+    circuit: str                     # astable | astable-diode | astable-symmetric | monostable | bistable
+    timer_name: str                  # e.g. "generic bipolar 555"
+    ideal: bool                      # --ideal run
+    main_output: str | None          # "frequency_hz", "pulse_width_s" or None (bistable)
+    part_columns: list[str]          # design part columns, e.g. ["ra_ohm", "rb_ohm", "c_f"]
+    condition_columns: list[str]     # e.g. ["vcc_v", "temperature_c"]
+    summary: list[tuple[str, str]]   # (label, text) lines: the pick, margins, yield, verdict
+    cautions: list[str]              # safety and model cautions, shown on Summary and Notes
+    points: pd.DataFrame             # design x condition rows (capped), machine columns
+    points_total: int                # rows in the full sweep
+    points_note: str                 # what Points holds and where the rest is
+    designs: pd.DataFrame            # one row per design, ranked (rank 1 first)
+    parts: pd.DataFrame              # parts list of the top designs: rank, design, ref, value_text,
+                                     # value (SI), unit, rkm, series, tolerance, technology, rating
+    check: pd.DataFrame              # top designs: rank, design, part columns, vcc_v, control_voltage_v,
+                                     # diode_drop_v, ideal_<main>, real_<main> (see writers.workbook)
+    spec: list[SpecRow]
+    study_rows: list[tuple[str, str, str, str]]   # (section, key, value as TOML text, meaning)
+    notes: list[tuple[str, str]]     # (topic, text) for the Notes sheet: model, assumptions, sources
+    run_info: dict = field(default_factory=dict)  # version, seed, digest, timings
+    mc_samples: pd.DataFrame | None = None        # the pick's Monte Carlo builds: main output per
+                                                  # build at its worst condition (column 'value')
+    temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value

@@ -1,0 +1,236 @@
+"""Turn ranked designs into the Report the writers lay out: summary text, cautions, notes,
+parts list, check rows, the pick's Monte Carlo samples and temperature curves."""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from . import values as qv
+from .analysis import (Variation, main_outputs, mc_draws, timer_bands, tolerance_of, varied_parts)
+from .engine import axis_values, evaluate_block, nominal_conditions
+from .report import Report, SpecRow
+from .study import Study, study_rows
+from .variables import AXES, VARIABLES
+
+REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C"}
+UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
+
+
+def eng(value: float, column: str) -> str:
+    v = VARIABLES.get(column)
+    unit = v.unit if v else ""
+    if column == "duty":
+        return f"{value * 100:.1f} %" if np.isfinite(value) else "-"
+    return qv.format_eng(value, unit) if np.isfinite(value) else "-"
+
+
+def design_text(study: Study, row) -> str:
+    return ", ".join(f"{REFS.get(a.key, a.key)} = {eng(row[a.column], a.column)}" for a in study.design)
+
+
+def summary_lines(study: Study, designs: pd.DataFrame, screened: int) -> tuple[list[tuple[str, str]], bool]:
+    """Lines for the Summary sheet and the page, and whether any design meets the spec."""
+    lines: list[tuple[str, str]] = []
+    best = designs.iloc[0]
+    main = main_outputs(study.circuit)
+    y = best["yield"]
+    meets = bool(best["feasible"]) and (not study.spec or not np.isfinite(y) or y > 0)
+    lines.append(("Designs evaluated", f"{len(designs):,} x {study.n_conditions:,} conditions"
+                  f" = {len(designs) * study.n_conditions:,} points"))
+    if not meets:
+        why = ("no design is free of limit flags with its nominal figures in spec"
+               if not designs["feasible"].any() else "no Monte Carlo build of any design meets every spec limit")
+        lines.append(("Verdict", f"NO DESIGN MEETS THE SPEC: {why}. The best candidate is shown; "
+                               "widen the ranges or relax the spec."))
+    else:
+        lines.append(("Verdict", "Design 1 in the ranking is the pick."))
+    lines.append(("Pick", f"design {int(best['design'])}: {design_text(study, best) or 'no timing parts'}"))
+    for m in main:
+        lines.append((f"{VARIABLES[m].label} nominal", eng(best[f"{m}_nom"], m)))
+        lines.append((f"{VARIABLES[m].label} worst case",
+                      f"{eng(best[f'{m}_wc_min'], m)} to {eng(best[f'{m}_wc_max'], m)}"))
+    if study.spec:
+        y = best["yield"]
+        lines.append(("Yield", f"{y * 100:.1f} % of {study.monte_carlo:,} Monte Carlo builds meet every "
+                               "spec limit at every condition" if np.isfinite(y) else
+                      "not sampled ([analysis] monte_carlo = 0)"))
+        lines.append(("Worst-case margin", f"{best['wc_margin'] * 100:+.1f} % to the nearest spec limit"
+                      if np.isfinite(best["wc_margin"]) else "-"))
+    lines.append(("Supply current", f"{eng(best['supply_current_a_nom'], 'supply_current_a')} nominal, "
+                                    f"{eng(best['supply_current_a_max'], 'supply_current_a')} at most"))
+    if "idle_current_a_nom" in best:
+        lines.append(("Idle current", eng(best["idle_current_a_nom"], "idle_current_a")))
+    lines.append(("Flags of the pick", best["flags"] or "none"))
+    if screened:
+        lines.append(("Screened out", f"{screened:,} designs skipped the Monte Carlo: their worst case "
+                                      "lies entirely outside the spec (yield 0)"))
+    return lines, meets
+
+
+def cautions(study: Study, designs: pd.DataFrame) -> list[str]:
+    out = ["Figures come from a model built on typical datasheet values and common practice; "
+           "build and measure the chosen design before it goes into a product."]
+    kind = study.load.kind
+    if kind in ("relay", "inductive"):
+        out.append("Relay or inductive load: fit a flyback diode across the coil; the switch-off "
+                   "spike can destroy the timer's output stage.")
+    if kind == "mains-switching":
+        out.append("The load switches mains: mains wiring can kill. Keep creepage and clearance, "
+                   "isolate the low-voltage side, and follow local electrical codes and licensed "
+                   "practice; have the installation done or checked by a qualified person.")
+    if study.supply == "battery":
+        out.append("Battery supply: respect the chemistry's limits (charge, discharge current, "
+                   "temperature); the idle and supply currents set battery life.")
+    if study.supply == "mains-derived":
+        out.append("Mains-derived supply: use a certified, isolated power supply; never derive the "
+                   "timer's supply from mains without isolation.")
+    if study.parts.technology.polarised:
+        out.append("Polarised timing capacitor: observe polarity; its leakage drifts with age and "
+                   "temperature, so check the timing on the bench.")
+    hot = designs.head(study.top)
+    if (hot.get("junction_temp_c_max", pd.Series([0.0])) > 85).any():
+        out.append("Hot parts: a top design runs the chip above 85 °C junction; keep fingers and "
+                   "heat-sensitive parts away and check the package's rating.")
+    return out
+
+
+NOTES = [
+    ("Model", "Each phase of the timing capacitor is an exponential towards a Thevenin source "
+              "(RC law [book]); thresholds at 2/3 and 1/3 of the supply from the internal divider "
+              "[book], or at the control-pin voltage and half of it."),
+    ("Non-idealities", "Threshold bias current drawn from the timing node, discharge saturation "
+                       "(V0 + R I), propagation delay per transition, stray capacitance, capacitor "
+                       "leakage, class II ceramic DC-bias loss, capacitor temperature curves, "
+                       "resistor tempco [ds-bip], [ds-cmos], [cp], [mem]."),
+    ("Worst case", "Every tolerance corner of every timing part at every condition point, with the "
+                   "timer's initial accuracy, drift (ppm/K) and supply sensitivity (%/V) as a band "
+                   "on the timing [ds-bip]."),
+    ("Monte Carlo", "Builds draw each part normal with the tolerance as 3 sigma (or uniform), the "
+                    "same builds for every design (common random numbers); each build is evaluated "
+                    "at every condition point. Yield = share of builds meeting every spec limit "
+                    "at every condition."),
+    ("Signal-to-noise", "Taguchi nominal-the-best: 10 log10(mean^2 / variance) of the main output "
+                        "over the Monte Carlo builds and conditions [book: Taguchi methods]."),
+    ("Sensitivity", "Elasticity d ln y / d ln x of the main output to each part, by central "
+                    "difference at the nominal condition."),
+    ("Ranking", "Feasible designs first (no limit flag at any condition, nominal in spec), then "
+                "yield, worst-case margin, supply current, and plainer parts (coarser series, "
+                "fewer distinct values)."),
+    ("Source tags", "[std] published standard (IEC 60063, IEC 60062, EIA-198); [book] textbook; "
+                    "[ds-bip]/[ds-cmos] typical datasheet figure, no maker named; [cp] common "
+                    "practice; [mem] from memory, uncertain; [derived] worked out from the RC law."),
+    ("Codes and practice", "timer-sweep is a design aid. For mains, relays and inductive loads, "
+                           "batteries and hot parts, local codes and licensed practice take "
+                           "precedence over anything in this workbook."),
+]
+
+
+def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
+    rows = []
+    tech = study.parts.technology
+    for _, d in designs.head(study.top).iterrows():
+        for a in study.design:
+            if a.key not in REFS:
+                continue
+            v = float(d[a.column])
+            unit = "ohm" if a.key != "c" else "F"
+            is_c = a.key == "c"
+            rows.append({
+                "rank": int(d["rank"]), "design": int(d["design"]), "ref": REFS[a.key], "value": v,
+                "unit": "Ω" if not is_c else "F", "value_text": qv.format_eng(v, unit),
+                "rkm": qv.rkm_code(v, unit), "series": qv.series_of(v) or "-",
+                "tolerance": tolerance_of(study, a.key),
+                "technology": tech.label if is_c else
+                f"resistor, {study.parts.resistor_tempco_per_k * 1e6:g} ppm/K",
+                "rating": (f"{study.parts.capacitor_voltage_v:g} V" if is_c
+                           else f"{study.parts.resistor_power_w:g} W")})
+    return pd.DataFrame(rows, columns=["rank", "design", "ref", "value", "unit", "value_text", "rkm",
+                                       "series", "tolerance", "technology", "rating"])
+
+
+def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
+    """Top designs with the engine's ideal and realistic figures at the nominal condition."""
+    top = designs.head(study.top)
+    design = {a.key: top[a.column].to_numpy() for a in study.design}
+    nomc = {k: np.array([v]) for k, v in nominal_conditions(study).items()}
+    ideal = evaluate_block(study, design, nomc, ideal=True, with_spec=False)
+    real = evaluate_block(study, design, nomc, ideal=False, with_spec=False)
+    df = pd.DataFrame({"rank": top["rank"].to_numpy(), "design": top["design"].to_numpy()})
+    for a in study.design:
+        df[a.column] = top[a.column].to_numpy()
+    for k in ("vcc", "control_voltage"):
+        col = AXES[k][0]
+        if col not in df:
+            df[col] = nominal_conditions(study).get(k, study.timer.typical_v if k == "vcc" else np.nan)
+    df["diode_drop_v"] = 0.0   # ideal mode: the textbook form without the diode drop [book]
+    for m in main_outputs(study.circuit):
+        df[f"ideal_{m}"] = ideal[m][:, 0, 0]
+        df[f"real_{m}"] = real[m][:, 0, 0]
+    return df
+
+
+def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int = 20000) -> pd.DataFrame | None:
+    main = main_outputs(study.circuit)
+    if not main or study.monte_carlo == 0:
+        return None
+    best = designs.iloc[0]
+    design = {a.key: np.array([best[a.column]]) for a in study.design}
+    cond = axis_values(study.conditions, np.arange(study.n_conditions))
+    n = study.monte_carlo
+    z = mc_draws(study, n)
+    acc, drift, sens = timer_bands(study)
+    var = Variation({p: (1.0 + tolerance_of(study, p) * z[p])[None, :, None] for p in varied_parts(study)},
+                    accuracy=(acc * z["accuracy"])[None, :, None],
+                    drift_per_k=(drift * z["drift"])[None, :, None],
+                    supply_per_v=(sens * z["supply"])[None, :, None])
+    nc = study.n_conditions
+    if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
+        cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
+    v = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]].ravel()
+    if len(v) > cap:
+        v = v[np.linspace(0, len(v) - 1, cap).astype(int)]
+    return pd.DataFrame({"value": v})
+
+
+def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.DataFrame | None:
+    main = main_outputs(study.circuit)
+    if not main:
+        return None
+    top = designs.head(5)
+    t_axis = next((a for a in study.conditions + study.design if a.key == "temperature"), None)
+    lo, hi = (float(t_axis.values.min()), float(t_axis.values.max())) if t_axis is not None else (25.0, 25.0)
+    if hi - lo < 1:
+        lo, hi = lo - 20, hi + 20
+    temps = np.linspace(lo, hi, 27)
+    v_axis = next((a for a in study.conditions + study.design if a.key == "vcc"), None)
+    vccs = np.unique([v_axis.values.min(), v_axis.nominal or np.median(v_axis.values), v_axis.values.max()])
+    design = {a.key: top[a.column].to_numpy() for a in study.design}
+    rows = []
+    for v in vccs:
+        cond = {"vcc": np.full(len(temps), v), "temperature": temps}
+        for k, val in nominal_conditions(study).items():
+            cond.setdefault(k, np.full(len(temps), val))
+        out = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)[main[0]][:, 0, :]
+        for i, r in enumerate(top["rank"].to_numpy()):
+            rows.append(pd.DataFrame({"rank": int(r), "vcc_v": v, "temperature_c": temps, "value": out[i]}))
+    return pd.concat(rows, ignore_index=True)
+
+
+def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
+                 ideal: bool, run_info: dict) -> Report:
+    screened = int((designs.get("screened", pd.Series(dtype=str)) != "").sum())
+    lines, meets = summary_lines(study, designs, screened)
+    main = main_outputs(study.circuit)
+    run_info = dict(run_info, meets_spec=meets)
+    return Report(
+        name=study.name, title=study.title, circuit=study.circuit, timer_name=study.timer.name,
+        ideal=ideal, main_output=main[0] if main else None,
+        part_columns=[a.column for a in study.design],
+        condition_columns=[a.column for a in study.conditions],
+        summary=lines, cautions=cautions(study, designs), points=points,
+        points_total=study.n_points, points_note=points_note, designs=designs,
+        parts=parts_list(study, designs), check=check_table(study, designs),
+        spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
+        study_rows=study_rows(study), notes=NOTES + ([("Notes from the study", study.notes)] if study.notes else []),
+        run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
+        temperature_curves=temperature_curves(study, designs, ideal))

@@ -1,0 +1,535 @@
+"""Study files: TOML (or a workbook's Study sheet) -> one frozen, validated Study.
+
+This is the only module that reads raw study text. Everything after it sees typed objects and
+numpy arrays in SI units. Every problem raises InputError naming the file, the key and what is
+wrong (and the line, where the file gives one).
+"""
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from . import values as qv
+from .errors import InputError
+from .models import load_timer
+from .physics import ASTABLES, CIRCUIT_PARTS, CIRCUITS, Load, Parts, TimerModel, capacitor_named
+from .physics.parts import CAPACITOR_ALIASES
+from .variables import AXES
+
+# ---- the schema: section -> key -> (unit for parse_quantity, what it is) ----
+SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
+    "study": {"title": ("text", "title shown on every output"),
+              "circuit": ("text", " | ".join(CIRCUITS)),
+              "timer": ("text", "bipolar | cmos | path to a timer-model TOML file"),
+              "notes": ("text", "free text, copied to the workbook"),
+              "supply": ("text", "regulated | battery | mains-derived: what powers the circuit "
+                                 "(sets the cautions)")},
+    "design": {k: (u, "a range of choices") for k, (_, u) in AXES.items()},
+    "conditions": {k: (u, "a range every design must survive") for k, (_, u) in AXES.items()},
+    "parts": {"resistor_tolerance": ("%", "default: implied by the resistor series, else 5 %"),
+              "resistor_tempco": ("ppm/K", "default 100 ppm/K"),
+              "resistor_power": ("W", "rating of each timing resistor, default 0.25 W"),
+              "capacitor": ("text", "C0G | X7R | X5R | Y5V | polypropylene | polyester | "
+                                    "electrolytic | tantalum"),
+              "capacitor_tolerance": ("%", "default: implied by the capacitor series, else 10 %"),
+              "capacitor_voltage": ("V", "rated voltage, default 50 V"),
+              "stray_capacitance": ("F", "added to C, default 5 pF"),
+              "diode_drop": ("V", "forward drop of the diode in astable-diode, default 0.7 V"),
+              "dc_bias_loss": ("", "fractional capacitance loss at rated voltage (class II ceramics)")},
+    "load": {"resistance": ("ohm", "load on the output; absent: no load"),
+             "to": ("text", "ground (output sources current) | supply (output sinks it)"),
+             "forward_voltage": ("V", "drop of an LED or diode in series with the load"),
+             "kind": ("text", "resistive | led | relay | inductive | mains-switching (sets the cautions)")},
+    "spec": {"frequency": ("Hz", ""), "duty": ("", ""), "pulse_width": ("s", ""),
+             "supply_current": ("A", ""), "idle_current": ("A", ""), "output_current": ("A", ""),
+             "power": ("W", "")},
+    "analysis": {"monte_carlo": ("int", "builds per design, default 1000"),
+                 "seed": ("int", "random seed, default 1"),
+                 "distribution": ("text", "normal (tolerance = 3 sigma) | uniform"),
+                 "top": ("int", "designs detailed in the parts list and checks, default 10")},
+}
+SPEC_COLUMNS = {"frequency": "frequency_hz", "duty": "duty", "pulse_width": "pulse_width_s",
+                "supply_current": "supply_current_a", "idle_current": "idle_current_a",
+                "output_current": "output_current_a", "power": "power_w"}
+SPEC_CIRCUITS = {"frequency": ASTABLES, "duty": ASTABLES, "pulse_width": ("monostable",),
+                 "idle_current": ("monostable", "bistable")}
+SUPPLIES = ("regulated", "battery", "mains-derived")
+LOAD_KINDS = ("resistive", "led", "relay", "inductive", "mains-switching")
+RANGE_KEYS = ("min", "max", "steps", "per_decade", "series", "values", "nominal")
+MAX_STEPS = 100_000
+MAX_POINTS_PER_AXIS = 100_000
+
+
+@dataclass(frozen=True)
+class Axis:
+    key: str                 # study key, e.g. "ra"
+    column: str              # machine column, e.g. "ra_ohm"
+    values: np.ndarray       # SI units, ascending unless the user listed them otherwise
+    role: str                # "design" | "condition"
+    series: str | None = None
+    nominal: float | None = None
+
+
+@dataclass(frozen=True)
+class SpecLimit:
+    key: str
+    column: str
+    lo: float
+    hi: float
+    target: float | None = None
+
+
+@dataclass(frozen=True)
+class Study:
+    path: str
+    name: str
+    title: str
+    notes: str
+    circuit: str
+    supply: str
+    timer_spec: str
+    timer: TimerModel
+    design: tuple[Axis, ...]
+    conditions: tuple[Axis, ...]
+    parts: Parts
+    load: Load
+    spec: tuple[SpecLimit, ...]
+    monte_carlo: int
+    seed: int
+    distribution: str
+    top: int
+    raw: dict = field(repr=False, compare=False)
+
+    @property
+    def axes(self) -> tuple[Axis, ...]:
+        return self.design + self.conditions
+
+    @property
+    def n_designs(self) -> int:
+        return int(np.prod([len(a.values) for a in self.design])) if self.design else 1
+
+    @property
+    def n_conditions(self) -> int:
+        return int(np.prod([len(a.values) for a in self.conditions])) if self.conditions else 1
+
+    @property
+    def n_points(self) -> int:
+        return self.n_designs * self.n_conditions
+
+    @property
+    def digest(self) -> str:
+        """sha256 of the study's meaning: the parsed keys and the timer model's figures."""
+        blob = json.dumps({"study": self.raw, "timer": self.timer.__dict__}, sort_keys=True,
+                          default=str)
+        return hashlib.sha256(blob.encode()).hexdigest()
+
+
+# ------------------------------------------------------------------ reading
+
+def load_study(path: str | Path) -> Study:
+    """Read a study from a TOML file or from the Study sheet of a timer-sweep workbook."""
+    p = Path(path)
+    fname = str(path)
+    if p.is_dir():
+        raise InputError(fname, "", "is a folder, not a study file")
+    if not p.exists():
+        raise InputError(fname, "", "file not found")
+    if p.suffix.lower() in (".xlsx", ".xlsm"):
+        from .workbook_input import read_study_sheet
+        text = read_study_sheet(p)
+    else:
+        raw_bytes = p.read_bytes()
+        if not raw_bytes.strip():
+            raise InputError(fname, "", "the file is empty: a study needs at least [study] circuit")
+        if b"\x00" in raw_bytes:
+            raise InputError(fname, "", "a binary file, not a TOML study")
+        try:
+            text = raw_bytes.decode("utf-8")
+        except UnicodeDecodeError as e:
+            raise InputError(fname, "", f"not UTF-8 text (byte {e.start})") from None
+    return parse_study(text, fname, base_dir=p.parent)
+
+
+def parse_study(text: str, fname: str = "<study>", base_dir: Path | None = None) -> Study:
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as e:
+        m = re.search(r"line (\d+)", str(e))
+        raise InputError(fname, "", f"not valid TOML: {e}", int(m.group(1)) if m else None) from None
+    return _Parser(data, text, fname, base_dir).study()
+
+
+class _Parser:
+    def __init__(self, data: dict, text: str, fname: str, base_dir: Path | None):
+        self.data, self.text, self.fname, self.base_dir = data, text, fname, base_dir
+
+    # -- errors with line numbers
+    def line_of(self, section: str, key: str = "") -> int | None:
+        lines = self.text.splitlines()
+        start = None
+        for i, ln in enumerate(lines):
+            if re.match(rf"^\s*\[\s*{re.escape(section)}\s*\]", ln):
+                start = i
+                if not key:
+                    return i + 1
+                continue
+            if start is not None and re.match(r"^\s*\[", ln):
+                start = None
+            if start is not None and re.match(rf"^\s*{re.escape(key)}\s*=", ln):
+                return i + 1
+        return None
+
+    def fail(self, section: str, key: str, problem: str):
+        dotted = f"{section}.{key}" if key else section
+        raise InputError(self.fname, dotted, problem, self.line_of(section, key.split(".")[0]))
+
+    def quantity(self, section, key, value, unit, allow_negative=False) -> float:
+        if unit == "int":
+            if isinstance(value, bool) or not isinstance(value, int):
+                self.fail(section, key, f"must be a whole number, got {value!r}")
+            return value
+        try:
+            x = qv.parse_quantity(value, unit, allow_negative=allow_negative)
+        except ValueError as e:
+            self.fail(section, key, str(e))
+        if not math.isfinite(x):
+            self.fail(section, key, "must be finite")
+        return x
+
+    # -- the whole study
+    def study(self) -> Study:
+        d = self.data
+        for section in d:
+            if section not in SCHEMA:
+                hint = difflib.get_close_matches(section, SCHEMA, 1)
+                self.fail(section, "", "unknown section" + (f"; did you mean [{hint[0]}]?" if hint else
+                                                            f"; known: {', '.join(SCHEMA)}"))
+            if not isinstance(d[section], dict):
+                self.fail(section, "", "must be a table ([section] followed by keys)")
+            for key in d[section]:
+                if key not in SCHEMA[section]:
+                    hint = difflib.get_close_matches(key, SCHEMA[section], 1)
+                    self.fail(section, key, "unknown key" + (f"; did you mean '{hint[0]}'?" if hint
+                                                             else f"; known: {', '.join(SCHEMA[section])}"))
+        st = d.get("study", {})
+        for key in ("title", "circuit", "timer", "notes", "supply"):
+            if key in st and not isinstance(st[key], str):
+                self.fail("study", key, "must be a string in quotes")
+        circuit = st.get("circuit")
+        if circuit is None:
+            self.fail("study", "circuit", f"missing: say which circuit ({' | '.join(CIRCUITS)})")
+        if circuit not in CIRCUITS:
+            hint = difflib.get_close_matches(circuit, CIRCUITS, 1)
+            self.fail("study", "circuit", f"unknown circuit {circuit!r}"
+                      + (f"; did you mean '{hint[0]}'?" if hint else f"; known: {', '.join(CIRCUITS)}"))
+        supply = st.get("supply", "regulated")
+        if supply not in SUPPLIES:
+            self.fail("study", "supply", f"unknown supply {supply!r}; known: {', '.join(SUPPLIES)}")
+        timer_spec = st.get("timer", "bipolar")
+        try:
+            timer = load_timer(timer_spec, self.base_dir, self.fname)
+        except InputError as e:
+            if e.file == self.fname and e.line is None:
+                e = InputError(e.file, e.key, e.problem, self.line_of("study", "timer"))
+            raise e from None
+        name = _slug(Path(self.fname).stem) if self.fname and not self.fname.startswith("<") else "study"
+        title = st.get("title") or name
+
+        design = self.axes("design", circuit)
+        conditions = self.axes("conditions", circuit)
+        both = set(a.key for a in design) & set(a.key for a in conditions)
+        if both:
+            k = sorted(both)[0]
+            self.fail("conditions", k, f"'{k}' is in both [design] and [conditions]: it is either a "
+                      "choice or something to survive, not both")
+        given = {a.key for a in design + conditions}
+        needed = CIRCUIT_PARTS[circuit]
+        for k in needed:
+            if k not in given:
+                self.fail("design", k, f"missing: circuit {circuit} needs {', '.join(needed)}")
+        for k in ("ra", "rb", "r", "c"):
+            if k in given and k not in needed:
+                sec = "design" if k in {a.key for a in design} else "conditions"
+                self.fail(sec, k, f"not used by circuit {circuit} (it uses "
+                          f"{', '.join(needed) or 'no timing parts'})")
+        # defaults: the timer's typical supply and 25 °C, as single conditions [PRODUCT.md]
+        if "vcc" not in given:
+            conditions = conditions + (Axis("vcc", "vcc_v", np.array([timer.typical_v]), "condition",
+                                            nominal=timer.typical_v),)
+        if "temperature" not in given:
+            conditions = conditions + (Axis("temperature", "temperature_c", np.array([25.0]),
+                                            "condition", nominal=25.0),)
+        parts = self.parts(design + conditions)
+        load = self.load()
+        spec = self.spec(circuit)
+        an = d.get("analysis", {})
+        mc = self.quantity("analysis", "monte_carlo", an.get("monte_carlo", 1000), "int")
+        if not 0 <= mc <= 1_000_000:
+            self.fail("analysis", "monte_carlo", "must be between 0 and 1 000 000 builds")
+        seed = self.quantity("analysis", "seed", an.get("seed", 1), "int")
+        if seed < 0:
+            self.fail("analysis", "seed", "must not be negative")
+        dist = an.get("distribution", "normal")
+        if dist not in ("normal", "uniform"):
+            self.fail("analysis", "distribution", f"must be 'normal' or 'uniform', got {dist!r}")
+        top = self.quantity("analysis", "top", an.get("top", 10), "int")
+        if not 1 <= top <= 1000:
+            self.fail("analysis", "top", "must be between 1 and 1000")
+        return Study(path=self.fname, name=name, title=title, notes=st.get("notes", ""),
+                     circuit=circuit, supply=supply, timer_spec=timer_spec, timer=timer, design=design,
+                     conditions=conditions, parts=parts, load=load, spec=spec, monte_carlo=mc,
+                     seed=seed, distribution=dist, top=top, raw=d)
+
+    # -- ranges
+    def axes(self, section: str, circuit: str) -> tuple[Axis, ...]:
+        out = []
+        role = "design" if section == "design" else "condition"
+        for key, value in self.data.get(section, {}).items():
+            column, unit = AXES[key]
+            vals, series, nominal = self.range_values(section, key, value, unit)
+            if key != "temperature" and np.any(vals <= 0):
+                self.fail(section, key, "every value must be greater than zero")
+            if key == "temperature" and np.any(vals < -273.15):
+                self.fail(section, key, "below absolute zero")
+            if key == "temperature" and np.any(np.abs(vals) > 1000):
+                self.fail(section, key, "a temperature beyond +-1000 °C is not a timer's world")
+            if nominal is not None and role == "design":
+                self.fail(section, f"{key}.nominal", "a nominal value belongs to [conditions]")
+            if role == "condition":
+                if nominal is None:
+                    nominal = 25.0 if key == "temperature" else float(
+                        0.5 * (vals.min() + vals.max()))
+                elif not vals.min() <= nominal <= vals.max():
+                    self.fail(section, f"{key}.nominal", "must lie within the range")
+            out.append(Axis(key, column, vals, role, series, nominal))
+        return tuple(out)
+
+    def range_values(self, section, key, value, unit):
+        neg = key == "temperature"
+        if isinstance(value, list):
+            if not value:
+                self.fail(section, key, "empty list")
+            vals = np.array([self.quantity(section, key, v, unit, neg) for v in value])
+            if len(np.unique(vals)) != len(vals):
+                self.fail(section, key, "the list repeats a value")
+            return vals, None, None
+        if not isinstance(value, dict):
+            return np.array([self.quantity(section, key, value, unit, neg)]), None, None
+        for k in value:
+            if k not in RANGE_KEYS:
+                hint = difflib.get_close_matches(k, RANGE_KEYS, 1)
+                self.fail(section, f"{key}.{k}", "unknown range key" +
+                          (f"; did you mean '{hint[0]}'?" if hint else
+                           "; use min/max with steps, per_decade or series, or values"))
+        nominal = (self.quantity(section, f"{key}.nominal", value["nominal"], unit, neg)
+                   if "nominal" in value else None)
+        kinds = [k for k in ("steps", "per_decade", "series", "values") if k in value]
+        if len(kinds) > 1:
+            self.fail(section, key, f"give only one of steps, per_decade, series, values (got {', '.join(kinds)})")
+        if kinds == ["values"]:
+            if "min" in value or "max" in value:
+                self.fail(section, key, "'values' takes no min or max")
+            v, _, _ = self.range_values(section, key, value["values"], unit)
+            return v, None, nominal
+        if not kinds:
+            if set(value) <= {"nominal"}:
+                self.fail(section, key, "a range needs min and max with steps, per_decade or series")
+            self.fail(section, key, "a range needs steps (linear), per_decade (logarithmic) or "
+                      "series (E3..E192) beside min and max")
+        for b in ("min", "max"):
+            if b not in value:
+                self.fail(section, key, f"missing '{b}'")
+        lo = self.quantity(section, f"{key}.min", value["min"], unit, neg)
+        hi = self.quantity(section, f"{key}.max", value["max"], unit, neg)
+        if lo > hi:
+            self.fail(section, key, f"min ({value['min']}) is greater than max ({value['max']})")
+        kind = kinds[0]
+        if kind == "steps":
+            n = value["steps"]
+            if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= MAX_STEPS:
+                self.fail(section, f"{key}.steps", f"must be a whole number from 1 to {MAX_STEPS}")
+            if n > 1 and lo == hi:
+                self.fail(section, key, "min equals max: use a single value or steps = 1")
+            vals = np.linspace(lo, hi, n) if n > 1 else np.array([lo])
+            return vals, None, nominal
+        if kind == "per_decade":
+            n = value["per_decade"]
+            if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= 1000:
+                self.fail(section, f"{key}.per_decade", "must be a whole number from 1 to 1000")
+            if lo <= 0:
+                self.fail(section, f"{key}.min", "a logarithmic range needs min > 0")
+            count = int(math.floor(n * math.log10(hi / lo) + 1e-9)) + 1
+            if count > MAX_POINTS_PER_AXIS:
+                self.fail(section, key, f"{count} values: too many for one axis")
+            vals = lo * 10.0 ** (np.arange(count) / n)
+            vals = np.array([float(f"{v:.12g}") for v in vals])
+            return vals, None, nominal
+        name = value["series"]
+        if not isinstance(name, str):
+            self.fail(section, f"{key}.series", "must be a series name such as \"E24\"")
+        if key not in ("ra", "rb", "r", "c"):
+            self.fail(section, f"{key}.series", "standard series apply to resistors and capacitors")
+        try:
+            vals = qv.series_values(name, lo, hi)
+        except ValueError as e:
+            self.fail(section, f"{key}.series", str(e))
+        if len(vals) == 0:
+            self.fail(section, key, f"no {name.upper()} value lies between {value['min']} and {value['max']}")
+        if len(vals) > MAX_POINTS_PER_AXIS:
+            self.fail(section, key, f"{len(vals)} values: too many for one axis")
+        return vals, name.upper(), nominal
+
+    # -- parts, load, spec
+    def parts(self, axes) -> Parts:
+        p = self.data.get("parts", {})
+        kw: dict = {}
+        units = SCHEMA["parts"]
+        for key, attr in (("resistor_tolerance", "resistor_tolerance"),
+                          ("resistor_tempco", "resistor_tempco_per_k"),
+                          ("resistor_power", "resistor_power_w"),
+                          ("capacitor_tolerance", "capacitor_tolerance"),
+                          ("capacitor_voltage", "capacitor_voltage_v"),
+                          ("stray_capacitance", "stray_capacitance_f"),
+                          ("diode_drop", "diode_drop_v"),
+                          ("dc_bias_loss", "dc_bias_loss")):
+            if key in p:
+                kw[attr] = self.quantity("parts", key, p[key], units[key][0],
+                                         allow_negative=key == "resistor_tempco")
+        for key in ("resistor_tolerance", "capacitor_tolerance", "dc_bias_loss"):
+            attr = key
+            if attr in kw and not 0 <= kw[attr] < 1:
+                self.fail("parts", key, "must be at least 0 and below 100 %")
+        for key, attr in (("resistor_power", "resistor_power_w"), ("capacitor_voltage", "capacitor_voltage_v")):
+            if attr in kw and kw[attr] <= 0:
+                self.fail("parts", key, "must be greater than zero")
+        if "resistor_tempco_per_k" in kw and abs(kw["resistor_tempco_per_k"]) > 0.01:
+            self.fail("parts", "resistor_tempco", "beyond +-10 000 ppm/K: check the unit (ppm)")
+        if "capacitor" in p:
+            if not isinstance(p["capacitor"], str):
+                self.fail("parts", "capacitor", "must be a technology name in quotes")
+            try:
+                kw["capacitor"] = capacitor_named(p["capacitor"]).name
+            except KeyError:
+                hint = difflib.get_close_matches(p["capacitor"].lower(), CAPACITOR_ALIASES, 1)
+                self.fail("parts", "capacitor", f"unknown capacitor technology {p['capacitor']!r}" +
+                          (f"; did you mean '{CAPACITOR_ALIASES[hint[0]]}'?" if hint else
+                           "; known: " + SCHEMA["parts"]["capacitor"][1]))
+        # tolerance implied by the series when not given [std IEC 60063]
+        def implied(keys, default):
+            series = [a.series for a in axes if a.key in keys and a.series]
+            if not series:
+                return default
+            return max(qv.SERIES_TOLERANCE[s] for s in series)
+        kw.setdefault("resistor_tolerance", implied(("ra", "rb", "r"), 0.05))
+        kw.setdefault("capacitor_tolerance", implied(("c",), 0.10))
+        return Parts(**kw)
+
+    def load(self) -> Load:
+        ld = self.data.get("load", {})
+        if not ld:
+            return Load()
+        kind = ld.get("kind", "led" if "forward_voltage" in ld else "resistive")
+        if kind not in LOAD_KINDS:
+            self.fail("load", "kind", f"unknown load kind {kind!r}; known: {', '.join(LOAD_KINDS)}")
+        if "resistance" not in ld:
+            self.fail("load", "resistance", "missing: a [load] needs its resistance")
+        r = self.quantity("load", "resistance", ld["resistance"], "ohm")
+        if r <= 0:
+            self.fail("load", "resistance", "must be greater than zero")
+        to = ld.get("to", "ground")
+        if to not in ("ground", "supply"):
+            self.fail("load", "to", f"must be 'ground' or 'supply', got {to!r}")
+        vf = self.quantity("load", "forward_voltage", ld.get("forward_voltage", 0.0), "V")
+        if vf < 0:
+            self.fail("load", "forward_voltage", "must not be negative")
+        return Load(resistance_ohm=r, to=to, forward_voltage_v=vf, kind=kind)
+
+    def spec(self, circuit) -> tuple[SpecLimit, ...]:
+        out = []
+        for key, value in self.data.get("spec", {}).items():
+            unit = SCHEMA["spec"][key][0]
+            if key in SPEC_CIRCUITS and circuit not in SPEC_CIRCUITS[key]:
+                self.fail("spec", key, f"does not apply to circuit {circuit} (only to "
+                          f"{', '.join(SPEC_CIRCUITS[key])})")
+            if not isinstance(value, dict):
+                self.fail("spec", key, "must be {target = ..., tolerance = ...} or {min = ..., max = ...}")
+            extra = set(value) - {"target", "tolerance", "min", "max"}
+            if extra:
+                self.fail("spec", f"{key}.{sorted(extra)[0]}", "unknown; use target and tolerance, or min and max")
+            target = None
+            if "target" in value or "tolerance" in value:
+                if "min" in value or "max" in value:
+                    self.fail("spec", key, "give target and tolerance, or min and max, not both")
+                if "target" not in value or "tolerance" not in value:
+                    self.fail("spec", key, "a target needs a tolerance (e.g. \"10%\") and vice versa")
+                target = self.quantity("spec", f"{key}.target", value["target"], unit)
+                tol = value["tolerance"]
+                if isinstance(tol, str) and tol.strip().endswith("%"):
+                    rel = self.quantity("spec", f"{key}.tolerance", tol, "%")
+                    lo, hi = target * (1 - rel), target * (1 + rel)
+                else:
+                    a = self.quantity("spec", f"{key}.tolerance", tol, unit)
+                    lo, hi = target - a, target + a
+                if target <= 0:
+                    self.fail("spec", f"{key}.target", "must be greater than zero")
+            else:
+                if "min" not in value and "max" not in value:
+                    self.fail("spec", key, "give min, max or both")
+                lo = self.quantity("spec", f"{key}.min", value["min"], unit) if "min" in value else -math.inf
+                hi = self.quantity("spec", f"{key}.max", value["max"], unit) if "max" in value else math.inf
+                if lo > hi:
+                    self.fail("spec", key, "min is greater than max")
+            if key == "duty" and (hi <= 0 or lo >= 1):
+                self.fail("spec", key, "a duty cycle lies between 0 and 1 (or 0 % and 100 %)")
+            out.append(SpecLimit(key, SPEC_COLUMNS[key], lo, hi, target))
+        return tuple(out)
+
+
+def _slug(text: str) -> str:
+    s = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-.")
+    return s[:80] or "study"
+
+
+# ------------------------------------------------------------------ writing back
+
+def toml_inline(value) -> str:
+    """A value as TOML inline text (strings, numbers, booleans, lists, tables)."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    if isinstance(value, str):
+        return json.dumps(value, ensure_ascii=False)
+    if isinstance(value, list):
+        return "[" + ", ".join(toml_inline(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{ " + ", ".join(f"{k} = {toml_inline(v)}" for k, v in value.items()) + " }"
+    raise TypeError(type(value))
+
+
+def study_rows(study: Study) -> list[tuple[str, str, str, str]]:
+    """The study as editable rows (section, key, value as TOML, meaning): the Study sheet."""
+    rows = []
+    for section, keys in study.raw.items():
+        for key, value in keys.items():
+            unit, meaning = SCHEMA[section][key]
+            hint = {"ohm": "Ω", "F": "F", "V": "V", "A": "A", "Hz": "Hz", "s": "s", "W": "W",
+                    "C": "°C", "%": "%", "ppm/K": "ppm/K"}.get(unit, "")
+            rows.append((section, key, toml_inline(value), (hint + " " + meaning).strip()))
+    return rows
+
+
+def rows_to_toml(rows: list[tuple[str, str, str]]) -> str:
+    """Study-sheet rows (section, key, value as TOML) back to study text."""
+    by_section: dict[str, list[str]] = {}
+    for section, key, value in rows:
+        by_section.setdefault(section, []).append(f"{key} = {value}")
+    return "\n".join(f"[{s}]\n" + "\n".join(lines) for s, lines in by_section.items()) + "\n"

@@ -1,0 +1,101 @@
+"""One registry of every variable timer-sweep reads or writes.
+
+The same entry feeds study validation (unit of a key), table headers (label and unit), number
+formats in the workbook and chart axes. Machine names carry the SI unit as a suffix.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Variable:
+    name: str          # machine column name, e.g. "ra_ohm"
+    label: str         # what a person reads, e.g. "RA"
+    unit: str          # SI unit as shown in headers ("" for a plain ratio)
+    fmt: str           # "eng" (engineering prefixes), "pct", "fixed2", "int", "text"
+    description: str
+    log: bool = False  # a chart axis reads better on a log scale
+
+    @property
+    def header(self) -> str:
+        """Header text with the unit in brackets, e.g. 'RA [Ω]'."""
+        return f"{self.label} [{self.unit}]" if self.unit else self.label
+
+
+_V = Variable
+VARIABLES: dict[str, Variable] = {v.name: v for v in [
+    # inputs: parts and conditions
+    _V("ra_ohm", "RA", "Ω", "eng", "Timing resistor from the supply to the discharge pin", True),
+    _V("rb_ohm", "RB", "Ω", "eng", "Timing resistor from the discharge pin to the capacitor", True),
+    _V("r_ohm", "R", "Ω", "eng", "Timing resistor (monostable; output-to-capacitor in the symmetric astable)", True),
+    _V("c_f", "C", "F", "eng", "Timing capacitor, nominal value", True),
+    _V("vcc_v", "Supply", "V", "fixed2", "Supply voltage"),
+    _V("temperature_c", "Ambient", "°C", "fixed1", "Ambient temperature"),
+    _V("control_voltage_v", "Control pin", "V", "fixed2", "Voltage forced on the control pin (blank: internal divider)"),
+    # outputs
+    _V("high_time_s", "High time", "s", "eng", "Time the output is high per cycle (the pulse, for a monostable)", True),
+    _V("low_time_s", "Low time", "s", "eng", "Time the output is low per cycle", True),
+    _V("period_s", "Period", "s", "eng", "High time plus low time", True),
+    _V("frequency_hz", "Frequency", "Hz", "eng", "1 / period", True),
+    _V("duty", "Duty", "", "pct", "High time / period"),
+    _V("pulse_width_s", "Pulse width", "s", "eng", "Monostable output pulse", True),
+    _V("supply_current_a", "Supply current", "A", "eng", "Average current drawn from the supply while running", True),
+    _V("idle_current_a", "Idle current", "A", "eng", "Current drawn while waiting for a trigger (monostable) or holding (bistable)", True),
+    _V("power_w", "Power", "W", "eng", "Supply voltage x average supply current", True),
+    _V("output_high_v", "Output high", "V", "fixed2", "Output voltage in the high state, under the load"),
+    _V("output_low_v", "Output low", "V", "fixed2", "Output voltage in the low state, under the load"),
+    _V("output_current_a", "Output current", "A", "eng", "Current through the load in the state that drives it"),
+    _V("discharge_peak_a", "Discharge peak", "A", "eng", "Peak current into the discharge pin"),
+    _V("ra_power_w", "Resistor power", "W", "eng", "Largest dissipation in the resistor from the supply (RA, or R)"),
+    _V("junction_temp_c", "Junction", "°C", "fixed1", "Chip junction temperature, worst phase"),
+    _V("flags", "Flags", "", "text", "Limits broken at this point (space-separated codes)"),
+    _V("ok", "OK", "", "bool", "No flag at this point"),
+    _V("design", "Design", "", "int", "Design number (row of the Designs table)"),
+    _V("condition", "Condition", "", "int", "Condition number within the design"),
+]}
+
+#: study keys that can be swept, with the column that carries them and the SI unit they parse to
+AXES: dict[str, tuple[str, str]] = {
+    "ra": ("ra_ohm", "ohm"),
+    "rb": ("rb_ohm", "ohm"),
+    "r": ("r_ohm", "ohm"),
+    "c": ("c_f", "F"),
+    "vcc": ("vcc_v", "V"),
+    "temperature": ("temperature_c", "C"),
+    "control_voltage": ("control_voltage_v", "V"),
+}
+
+#: output columns in the order tables show them
+OUTPUTS = ["high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
+           "supply_current_a", "idle_current_a", "power_w", "output_high_v", "output_low_v",
+           "output_current_a", "discharge_peak_a", "ra_power_w", "junction_temp_c"]
+
+#: stable flag codes, in the order they are reported
+FLAGS = ["supply-below-min", "supply-above-max", "supply-above-abs-max", "temperature-out-of-range",
+         "resistor-too-small", "resistance-too-large", "capacitor-too-small", "frequency-too-high",
+         "output-current-over-limit", "discharge-current-over-limit", "resistor-overpowered",
+         "junction-too-hot", "timing-stalls", "spec-miss"]
+
+FLAG_TEXT = {
+    "supply-below-min": "Supply below the timer's recommended minimum",
+    "supply-above-max": "Supply above the timer's recommended maximum",
+    "supply-above-abs-max": "Supply above the timer's absolute maximum rating: the chip may be destroyed",
+    "temperature-out-of-range": "Ambient outside the timer's operating range",
+    "resistor-too-small": "Timing resistor below the timer's minimum (discharge transistor overloaded)",
+    "resistance-too-large": "Timing resistance so large that input bias current upsets the timing",
+    "capacitor-too-small": "Timing capacitor so small that stray capacitance and delays dominate",
+    "frequency-too-high": "Frequency above what the timer can follow",
+    "output-current-over-limit": "Load current above the output stage's limit",
+    "discharge-current-over-limit": "Peak discharge current above the discharge transistor's limit",
+    "resistor-overpowered": "Timing resistor dissipates more than its power rating",
+    "junction-too-hot": "Chip junction above its maximum temperature",
+    "timing-stalls": "The capacitor never reaches the threshold (leakage or bias current): no timing",
+    "spec-miss": "Fails a [spec] limit",
+}
+
+
+def header(name: str) -> str:
+    """Header text for a machine column name, falling back to the name itself."""
+    v = VARIABLES.get(name)
+    return v.header if v else name

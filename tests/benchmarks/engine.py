@@ -1,0 +1,109 @@
+"""Engine benchmark: realistic-model points per second, against a plain per-point Python loop of
+the same model measured in the same run. Prints a table and ends with one JSON line.
+
+    python tests/benchmarks/engine.py [--points N]
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import time
+
+import numpy as np
+
+from sweep.engine import axis_values, design_blocks, evaluate_block
+from sweep.study import parse_study
+
+STUDY = """
+[study]
+circuit = "astable"
+timer = "bipolar"
+[design]
+ra = {{ series = "E96", min = "1k", max = "{ra_max}" }}
+rb = {{ series = "E96", min = "1k", max = "100k" }}
+c = ["1n", "2.2n", "4.7n", "10n", "22n", "47n", "100n", "220n"]
+[conditions]
+vcc = {{ min = 5, max = 15, steps = 5 }}
+temperature = {{ min = -40, max = 85, steps = 5 }}
+[parts]
+capacitor = "X7R"
+[analysis]
+monte_carlo = 0
+"""
+
+
+def plain_point(st, ra, rb, c, vcc, t):
+    """The realistic astable timing for one point, written as a plain Python function with the
+    math module: the baseline a per-point loop would run."""
+    tm, p = st.timer, st.parts
+    cap = p.technology
+    rf = 1 + p.resistor_tempco_per_k * (t - 25)
+    ra, rb = ra * rf, rb * rf
+    vup = tm.threshold_fraction * vcc
+    vlo = vup / 2
+    pts = cap.temp_points
+    xs, ys = [q[0] for q in pts], [q[1] for q in pts]
+    tf = 1 + float(np.interp(t, xs, ys)) if len(pts) > 1 else 1 + ys[0]
+    k = cap.dc_bias_loss if p.dc_bias_loss is None else p.dc_bias_loss
+    dcb = min(max(1 - k * (0.75 * vup / p.capacitor_voltage_v) ** 1.3, 0.05), 1.0)
+    ce = c * tf * dcb + p.stray_capacitance_f
+    g_leak = 1 / min(10e9, 500 / c)
+    ib = tm.threshold_current_a
+    rs_c = ra + rb
+    g = 1 / rs_c + g_leak
+    vinf_c, tau_c = (vcc / rs_c - ib) / g, ce / g
+    rsat, vsat = tm.saturation_ohm, tm.saturation_v
+    vd = (vcc * rsat + vsat * ra) / (ra + rsat)
+    rd = ra * rsat / (ra + rsat)
+    rs_d = rb + rd
+    g = 1 / rs_d + g_leak
+    vinf_d, tau_d = (vd / rs_d - ib) / g, ce / g
+    tpd = tm.propagation_delay_s
+    vtop = vinf_c - (vinf_c - vup) * math.exp(-tpd / tau_c)
+    vbot = vinf_d - (vinf_d - vlo) * math.exp(-tpd / tau_d)
+    th = tau_c * math.log((vinf_c - vbot) / (vinf_c - vup)) + tpd
+    tl = tau_d * math.log((vtop - vinf_d) / (vlo - vinf_d)) + tpd
+    return 1 / (th + tl), th / (th + tl)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--loop-points", type=int, default=30_000)
+    args = ap.parse_args()
+    st = parse_study(STUDY.format(ra_max="1M"), "bench.toml")
+    n = st.n_points
+    # engine: every block of the whole study, timed end to end
+    t0 = time.perf_counter()
+    f_sum = 0.0
+    cond = axis_values(st.conditions, np.arange(st.n_conditions))
+    for a, b in design_blocks(st):
+        out = evaluate_block(st, axis_values(st.design, np.arange(a, b)), cond, with_spec=False)
+        f_sum += float(np.nansum(out["frequency_hz"]))
+    t_engine = time.perf_counter() - t0
+    # plain loop over the first points, same model, same run
+    m = min(args.loop_points, n)
+    d_per = max(1, m // st.n_conditions)
+    design = axis_values(st.design, np.arange(d_per))
+    t0 = time.perf_counter()
+    got = []
+    for i in range(d_per):
+        for j in range(st.n_conditions):
+            got.append(plain_point(st, design["ra"][i], design["rb"][i], design["c"][i],
+                                   cond["vcc"][j], cond["temperature"][j]))
+    t_loop = time.perf_counter() - t0
+    loop_points = d_per * st.n_conditions
+    # the loop must compute the same numbers, or the ratio means nothing
+    ref = evaluate_block(st, design, cond, with_spec=False)["frequency_hz"][:, 0, :].ravel()
+    assert np.allclose([g[0] for g in got], ref, rtol=1e-9), "plain loop disagrees with the engine"
+    eng_rate, loop_rate = n / t_engine, loop_points / t_loop
+    print(f"sweep: {st.n_designs:,} designs x {st.n_conditions} conditions = {n:,} points")
+    print(f"engine      {eng_rate / 1e6:8.2f} M points/s  ({t_engine:.2f} s)")
+    print(f"plain loop  {loop_rate / 1e6:8.3f} M points/s  ({loop_points:,} points, {t_loop:.2f} s)")
+    print(f"ratio       {eng_rate / loop_rate:8.1f} x")
+    print(json.dumps({"engine_points_per_s": round(eng_rate), "loop_points_per_s": round(loop_rate),
+                      "engine_over_loop": round(eng_rate / loop_rate, 2), "points": n}))
+
+
+if __name__ == "__main__":
+    main()
