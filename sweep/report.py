@@ -28,7 +28,7 @@ class Report:
     circuit: str                     # astable | astable-diode | astable-symmetric | monostable | bistable
     timer_name: str                  # e.g. "generic bipolar 555"
     ideal: bool                      # --ideal run
-    main_output: str | None          # "frequency_hz", "pulse_width_s" or None (bistable)
+    main_output: str | None          # "frequency_hz", "pulse_width_s"; "supply_current_a" for a latch
     part_columns: list[str]          # design part columns, e.g. ["ra_ohm", "rb_ohm", "c_f"]
     condition_columns: list[str]     # e.g. ["vcc_v", "temperature_c"]
     summary: list[tuple[str, str]]   # (label, text) lines: the pick, margins, yield, verdict

@@ -34,7 +34,7 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: int) -> tuple[l
     best = designs.iloc[0]
     main = main_outputs(study.circuit)
     y = best["yield"]
-    meets = bool(best["feasible"]) and (not study.spec or not np.isfinite(y) or y > 0)
+    meets = bool(best["feasible"] and (not study.spec or not np.isfinite(y) or y > 0))
     lines.append(("Designs evaluated", f"{len(designs):,} x {study.n_conditions:,} conditions"
                   f" = {len(designs) * study.n_conditions:,} points"))
     if not meets:
@@ -192,17 +192,21 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     return pd.DataFrame({"value": v})
 
 
-def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.DataFrame | None:
+def chart_output(study: Study) -> str:
+    """The output the charts follow: the main timing, or the supply current of a latch."""
     main = main_outputs(study.circuit)
-    if not main:
-        return None
+    return main[0] if main else "supply_current_a"
+
+
+def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.DataFrame:
+    main = [chart_output(study)]
     top = designs.head(5)
     t_axis = next((a for a in study.conditions + study.design if a.key == "temperature"), None)
     lo, hi = (float(t_axis.values.min()), float(t_axis.values.max())) if t_axis is not None else (25.0, 25.0)
     if hi - lo < 1:
         lo, hi = lo - 20, hi + 20
     temps = np.linspace(lo, hi, 27)
-    v_axis = next((a for a in study.conditions + study.design if a.key == "vcc"), None)
+    v_axis = next(a for a in study.conditions + study.design if a.key == "vcc")
     vccs = np.unique([v_axis.values.min(), v_axis.nominal or np.median(v_axis.values), v_axis.values.max()])
     design = {a.key: top[a.column].to_numpy() for a in study.design}
     rows = []
@@ -224,7 +228,7 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
     run_info = dict(run_info, meets_spec=meets)
     return Report(
         name=study.name, title=study.title, circuit=study.circuit, timer_name=study.timer.name,
-        ideal=ideal, main_output=main[0] if main else None,
+        ideal=ideal, main_output=chart_output(study),
         part_columns=[a.column for a in study.design],
         condition_columns=[a.column for a in study.conditions],
         summary=lines, cautions=cautions(study, designs), points=points,

@@ -48,9 +48,10 @@ def _guard(path: Path) -> None:
 
 def read_study_sheet(path: Path) -> str:
     """The Study sheet (row 1 a note, row 2 the header, rows from 3: section, key, value) as TOML."""
-    import defusedxml
-    defusedxml.defuse_stdlib()
     from openpyxl import load_workbook
+    from openpyxl.xml import DEFUSEDXML
+    if not DEFUSEDXML:      # openpyxl parses through defusedxml whenever it is installed
+        raise InputError(str(path), "", "refusing to read a workbook without defusedxml installed")
 
     from .study import rows_to_toml
     _guard(path)

@@ -127,37 +127,61 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         i_b = timer.threshold_current_a   # net input current drawn from the timing node [ds-bip]
 
     if circuit in ("astable", "astable-diode"):
-        if circuit == "astable":
-            vs_c, rs_c = vcc, ra_t + rb_t                       # charge through RA + RB [book]
-        else:
-            vs_c, rs_c = vcc - parts.diode_drop_v, ra_t         # through RA and the diode [derived]
         v_d, r_d = thevenin_with_sat(vcc, ra_t, timer.saturation_v, timer.saturation_ohm)
         vs_d, rs_d = v_d, rb_t + r_d                             # discharge through RB [book]
     elif circuit == "astable-symmetric":
-        vs_c, rs_c = v_oh, r_t + timer.high_ohm                  # output high drives R [derived]
         vs_d, rs_d = v_ol, r_t + timer.low_ohm                   # output low sinks R [derived]
+    # the charge phase runs in up to two segments: segment 1 while the capacitor is below v_sw,
+    # then segment 2 [derived]. Only the diode circuit has two: RB sits across the diode, so the
+    # diode conducts while (VCC - V) RB / (RA + RB) >= Vd, i.e. below v_sw = VCC - Vd (RA+RB)/RB;
+    # above it the capacitor charges through RA + RB towards VCC.
+    if circuit == "astable":
+        seg1 = seg2 = (vcc, ra_t + rb_t)                          # through RA + RB [book]
+        v_sw = -np.inf
+    elif circuit == "astable-diode":
+        vd = parts.diode_drop_v
+        seg1 = (vcc - vd, ra_t)                                  # RA and the conducting diode
+        seg2 = (vcc, ra_t + rb_t)                                # diode off: RA + RB
+        v_sw = vcc - vd * (ra_t + rb_t) / rb_t
+    elif circuit == "astable-symmetric":
+        seg1 = seg2 = (v_oh, r_t + timer.high_ohm)               # output high drives R [derived]
+        v_sw = -np.inf
     elif circuit == "monostable":
         vs_c, rs_c = vcc, r_t
 
     if circuit in ASTABLES:
-        vinf_c, tau_c = node_source(vs_c, rs_c, g_leak, i_b, c_eff)
+        vinf1, tau1 = node_source(*seg1, g_leak, i_b, c_eff)
+        vinf2, tau2 = node_source(*seg2, g_leak, i_b, c_eff)
         vinf_d, tau_d = node_source(vs_d, rs_d, g_leak, i_b, c_eff)
-        stalls = (vinf_c <= v_up) | (vinf_d >= v_lo_th)
+        last2 = v_sw < v_up                  # the threshold is met in segment 2
+        vinf_c = np.where(last2, vinf2, vinf1)
+        tau_c = np.where(last2, tau2, tau1)
         # each phase runs on for the propagation delay past its threshold [derived]
         v_top = vinf_c - (vinf_c - v_up) * np.exp(-tpd / tau_c)
         v_bot = vinf_d - (vinf_d - v_lo_th) * np.exp(-tpd / tau_d)
-        t_h = rc_time_s(tau_c, vinf_c, v_bot, v_up) + tpd
+        v_mid = np.clip(v_sw, v_bot, v_up)
+        t1 = rc_time_s(tau1, vinf1, v_bot, v_mid)
+        t2 = rc_time_s(tau2, vinf2, v_mid, v_up)
+        stalls = ((vinf_c <= v_up) | (vinf_d >= v_lo_th) | np.isnan(t1) | np.isnan(t2)
+                  | ((v_mid > v_bot) & (vinf1 <= v_mid)))
+        t_h = t1 + t2 + tpd
         t_l = rc_time_s(tau_d, vinf_d, v_top, v_lo_th) + tpd
         t_h = np.where(stalls, np.nan, t_h)
         t_l = np.where(stalls, np.nan, t_l)
         period = t_h + t_l
-        vm_h = mean_on_exponential_v(tau_c, vinf_c, v_bot, t_h)
         vm_l = mean_on_exponential_v(tau_d, vinf_d, v_top, t_l)
-        i_charge_h = (vs_c - vm_h) / rs_c                          # drawn from the supply
+        # supply current while charging: each segment's mean, weighted by its time [derived]
+        d1 = t1 + np.where(last2, 0.0, tpd)
+        d2 = t2 + np.where(last2, tpd, 0.0)
+        with np.errstate(all="ignore"):
+            i1 = np.where(d1 > 0, (seg1[0] - mean_on_exponential_v(tau1, vinf1, v_bot, d1)) / seg1[1], 0.0)
+            i2 = np.where(d2 > 0, (seg2[0] - mean_on_exponential_v(tau2, vinf2, v_mid, d2)) / seg2[1], 0.0)
+        i_charge_h = (d1 * i1 + d2 * i2) / t_h                    # drawn from the supply
+        i_start = np.where(v_sw > v_bot, (seg1[0] - v_bot) / seg1[1], (seg2[0] - v_bot) / seg2[1])
         if circuit == "astable-symmetric":
             i_ra_l = np.zeros_like(vm_l)
             dis_peak = np.zeros_like(vm_l)
-            p_res = (vs_c - v_bot) ** 2 / rs_c ** 2 * r_t
+            p_res = i_start ** 2 * r_t
             p_dis_l = 0.0
         else:
             # node D during the low phase: VCC via RA, V_sat via R_sat, capacitor via RB [derived]
@@ -170,8 +194,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
             vd_top = v_node_d(v_top)
             dis_peak = (vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t
             # RA: worst of the low phase (VCC across it, less node D) and the start of the high
-            p_res = np.maximum((vcc - v_node_d(v_bot)) ** 2 / ra_t,
-                               ((vs_c - v_bot) / rs_c) ** 2 * ra_t)
+            p_res = np.maximum((vcc - v_node_d(v_bot)) ** 2 / ra_t, i_start ** 2 * ra_t)
             p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
         i_h = iq_h + i_charge_h + i_load_h
         i_l = iq_l + i_ra_l + i_load_l

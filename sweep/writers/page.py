@@ -1,0 +1,928 @@
+"""The chart page: one self-contained HTML file of interactive charts that opens offline.
+
+The page lays out what the :class:`~sweep.report.Report` holds; it computes nothing about the
+circuit. The only arithmetic here is presentation: log scales, tick positions, which designs
+sit inside the spec at their nominal point, and the yield/current trade-off frontier.
+
+Every piece of user text (title, summary, cautions, flags, part values) is HTML-escaped, both in
+the page and inside the charts, whose labels plotly reads as a small subset of HTML.
+"""
+from __future__ import annotations
+
+import html
+import math
+import os
+import pathlib
+import tempfile
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+import plotly.io as pio
+from plotly.subplots import make_subplots
+
+from sweep.report import Report
+from sweep.values import format_eng
+from sweep.variables import VARIABLES, Variable
+
+#: most designs drawn in any chart, the best-ranked first; the page says so when it cuts
+MAX_DESIGNS = 20_000
+#: up to this many values of the third part, the design map gets one panel per value
+MAX_PANELS = 6
+
+# Okabe & Ito (2008), "Color Universal Design": a qualitative set readable with the common
+# colour-vision deficiencies. Yellow is left out of lines: it vanishes on white.
+BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY, BLACK = (
+    "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+PALETTE = [BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY, BLACK]
+SYMBOLS = ["circle", "square", "diamond", "triangle-up", "triangle-down", "pentagon", "hexagon"]
+DASHES = ["solid", "dash", "dot", "dashdot", "longdash", "longdashdot"]
+SEQUENTIAL = "Cividis"   # sequential scale designed to read the same with colour-vision deficiency
+YELLOW = "#F0E442"   # Okabe-Ito yellow: only as the fill of the black-edged pick star
+GREY = "#8c8c8c"
+LIMIT = "#3a3a3a"    # spec limit lines: dark grey, apart from every data colour
+FONT = "system-ui, -apple-system, sans-serif"
+
+HEADINGS = {
+    "map": "Design map",
+    "duty": "Duty cycle against frequency",
+    "yield": "Yield against supply current",
+    "mc": "Monte Carlo builds of the pick",
+    "temperature": "Temperature drift of the top five",
+    "parallel": "Every design across all columns",
+}
+
+CIRCUIT_TEXT = {
+    "astable": "astable (free-running)",
+    "astable-diode": "astable with a diode across RB (duty below 50 %)",
+    "astable-symmetric": "symmetric astable (one resistor from the output)",
+    "monostable": "monostable (one pulse per trigger)",
+    "bistable": "bistable (set/reset latch)",
+}
+
+_TEMPLATE = go.layout.Template(layout=dict(
+    font=dict(family=FONT, size=13, color="#222222"),
+    paper_bgcolor="white", plot_bgcolor="white", colorway=PALETTE,
+    xaxis=dict(showgrid=True, gridcolor="#e8e8e8", showline=True, linecolor="#9a9a9a",
+               ticks="outside", tickcolor="#9a9a9a", zeroline=False, automargin=True),
+    yaxis=dict(showgrid=True, gridcolor="#e8e8e8", showline=True, linecolor="#9a9a9a",
+               ticks="outside", tickcolor="#9a9a9a", zeroline=False, automargin=True),
+    legend=dict(bgcolor="rgba(255,255,255,0.9)", bordercolor="#d0d0d0", borderwidth=1),
+    hoverlabel=dict(bgcolor="white", bordercolor="#666666",
+                    font=dict(family=FONT, size=12, color="#222222")),
+    margin=dict(l=70, r=30, t=30, b=60),
+))
+_CONFIG = {"displaylogo": False, "responsive": True,
+           "modeBarButtonsToRemove": ["select2d", "lasso2d", "autoScale2d"]}
+
+
+@dataclass
+class Section:
+    """One block of the page: a heading, how to read it, and a chart or the reason it is absent."""
+    key: str
+    heading: str
+    explain: str
+    figure: go.Figure | None = None
+    note: str = ""          # plain text shown above the chart (a cap, left-out rows, a skip reason)
+
+
+# --- small helpers -----------------------------------------------------------------------------
+def _var(name: str) -> Variable:
+    return VARIABLES.get(name) or Variable(name, name, "", "text", "")
+
+
+def _base(name: str) -> str:
+    """'frequency_hz_nom' -> 'frequency_hz' (the registry entry of a per-design column)."""
+    for suffix in ("_nom", "_min", "_max", "_wc_min", "_wc_max", "_mc_mean", "_mc_std"):
+        if name.endswith(suffix) and name[: -len(suffix)] in VARIABLES:
+            return name[: -len(suffix)]
+    return name
+
+
+def _fmt_unit(name: str) -> str:
+    v = _var(_base(name))
+    return "%" if v.fmt == "pct" else v.unit
+
+
+def _fmt(value: float, name: str) -> str:
+    """One value as text a person reads: 4.7 kΩ, 100 nF, 35 %, 9.00 V."""
+    v = _var(_base(name))
+    if v.fmt in ("fixed1", "fixed2"):
+        x = float(value)
+        return "" if math.isnan(x) else f"{x:.{v.fmt[-1]}f} {v.unit}".strip()
+    return format_eng(value, _fmt_unit(name))
+
+
+def _fmt_series(values: pd.Series, name: str) -> pd.Series:
+    """Text for a whole column, formatting each distinct value once (part columns repeat)."""
+    uniq = pd.unique(values.to_numpy())
+    text = {u: _fmt(u, name) for u in uniq}
+    return values.map(text).fillna("").astype(str)
+
+
+def _header(name: str, extra: str = "") -> str:
+    v = _var(_base(name))
+    label = v.label + (f" {extra}" if extra else "")
+    unit = "%" if v.fmt == "pct" else v.unit
+    return f"{label} [{unit}]" if unit else label
+
+
+def _is_log(name: str) -> bool:
+    return _var(_base(name)).log
+
+
+def _round(x: float) -> float:
+    return float(f"{x:.12g}")
+
+
+def _nice_step(raw: float) -> float:
+    mag = 10.0 ** math.floor(math.log10(raw))
+    return next(m * mag for m in (1, 2, 2.5, 5, 10) if m * mag >= raw)
+
+
+def nice_ticks(lo: float, hi: float, log: bool, count: int = 6,
+               enclose: bool = False) -> list[float]:
+    """Round tick positions (data units) for [lo, hi]: 1-2-5 per decade on a wide log range,
+    plain round steps otherwise. With ``enclose`` the first and last tick lie at or beyond
+    ``lo`` and ``hi``, so they can serve as the ends of an axis."""
+    if not (math.isfinite(lo) and math.isfinite(hi)):
+        return []
+    if hi <= lo:
+        return [lo]
+    if log and lo > 0 and hi / lo >= 10:
+        k0, k1 = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
+        mants = (1,) if k1 - k0 > 5 else (1, 2, 5)
+        ticks = sorted(_round(m * 10.0 ** k) for k in range(k0, k1 + 1) for m in mants)
+        if enclose:
+            i0 = max(i for i, t in enumerate(ticks) if t <= lo * (1 + 1e-9))
+            i1 = min(i for i, t in enumerate(ticks) if t >= hi * (1 - 1e-9))
+            return ticks[i0:i1 + 1]
+        ticks = [t for t in ticks if lo * (1 - 1e-9) <= t <= hi * (1 + 1e-9)]
+        if len(ticks) >= 2:
+            return ticks
+    step = _nice_step((hi - lo) / count)
+    if enclose:
+        first, last = math.floor(lo / step + 1e-9), math.ceil(hi / step - 1e-9)
+    else:
+        first, last = math.ceil(lo / step - 1e-9), math.floor(hi / step + 1e-9)
+    ticks = [_round(k * step) for k in range(first, last + 1)]
+    return [t for t in ticks if t > 0] if log else ticks
+
+
+def _axis(name: str, title: str | None = None, values: np.ndarray | None = None,
+          span: tuple[float, float] | None = None, discrete: bool = False) -> dict:
+    """Axis settings for a machine column: log where the registry says so, and ticks written
+    in engineering notation (4.7 kΩ, 100 nF): at the actual values when a part (``discrete``)
+    takes only a few, else at round values across ``values`` or ``span`` (data units)."""
+    v = _var(_base(name))
+    ax: dict = {"title": {"text": title or _header(name)}}
+    if v.log:
+        ax["type"] = "log"
+    if v.fmt == "pct":
+        ax["tickformat"] = ".0%"
+    elif v.fmt == "eng":
+        ax["tickformat"] = "~s"
+        fin = _finite(values) if values is not None else np.zeros(0)
+        fin = fin[fin > 0] if v.log else fin
+        uniq = np.unique(fin)
+        if discrete and 1 <= len(uniq) <= 12:
+            ticks = uniq.tolist()
+        elif span is not None or fin.size:
+            lo, hi = span if span is not None else (float(fin.min()), float(fin.max()))
+            ticks = nice_ticks(lo, hi, v.log)
+        else:
+            ticks = []
+        if ticks:
+            ax["tickvals"] = ticks
+            ax["ticktext"] = [format_eng(t, v.unit) for t in ticks]
+    return ax
+
+
+def _html_div(fig: go.Figure, div_id: str, first: bool) -> str:
+    return pio.to_html(fig, include_plotlyjs=first, full_html=False, config=_CONFIG,
+                       div_id=div_id, default_width="100%")
+
+
+def _finite(a) -> np.ndarray:
+    a = np.asarray(a, dtype=float)
+    return a[np.isfinite(a)]
+
+
+def _main_limits(report: Report) -> tuple[float, float, float | None]:
+    """(low, high, target) of the spec on the main output; open ends are -inf/+inf."""
+    lo, hi, target = -np.inf, np.inf, None
+    for row in report.spec:
+        if report.main_output and row.column == report.main_output:
+            lo, hi = max(lo, row.lo), min(hi, row.hi)
+            target = row.target if row.target is not None else target
+    return lo, hi, target
+
+
+def _spec_of(report: Report, column: str) -> tuple[float, float]:
+    lo, hi = -np.inf, np.inf
+    for row in report.spec:
+        if row.column == column:
+            lo, hi = max(lo, row.lo), min(hi, row.hi)
+    return lo, hi
+
+
+def pareto_frontier(current: np.ndarray, yld: np.ndarray) -> np.ndarray:
+    """Mask of the designs no other design beats on both counts (higher yield AND lower
+    current). Of designs tied on both, one is kept. Rows with NaN are never on it."""
+    current, yld = np.asarray(current, float), np.asarray(yld, float)
+    mask = np.zeros(len(current), dtype=bool)
+    ok = np.flatnonzero(np.isfinite(current) & np.isfinite(yld))
+    if ok.size == 0:
+        return mask
+    order = ok[np.lexsort((-yld[ok], current[ok]))]          # current up, then yield down
+    y = yld[order]
+    best_before = np.maximum.accumulate(np.concatenate([[-np.inf], y[:-1]]))
+    mask[order[y > best_before]] = True
+    return mask
+
+
+# --- the design table the charts share --------------------------------------------------------
+@dataclass
+class _Designs:
+    table: pd.DataFrame      # capped, best-ranked first
+    total: int
+    custom: np.ndarray       # (rows, fields) hover text per design, already escaped
+    template: str            # plotly hovertemplate that lays the fields out
+    feasible: np.ndarray
+    pick: np.ndarray         # True on the rank-1 row
+
+    @property
+    def capped(self) -> bool:
+        return self.total > len(self.table)
+
+    def hover(self, rows) -> dict:
+        """Trace settings that show the hover text of ``rows`` (mask or indices). The layout is
+        written once per trace; each design carries only its formatted values."""
+        return dict(customdata=self.custom[rows], hovertemplate=self.template)
+
+
+def _designs(report: Report) -> _Designs:
+    d = report.designs
+    if "rank" in d.columns:
+        d = d.sort_values("rank", kind="stable")
+    d = d.head(MAX_DESIGNS).reset_index(drop=True)
+    n = len(d)
+    num = d["design"].astype(str) if "design" in d.columns else pd.Series(
+        np.arange(1, n + 1).astype(str))
+    rank = d["rank"] if "rank" in d.columns else pd.Series(np.arange(1, n + 1))
+    fields = [num.map(html.escape), rank.astype(str)]
+    lines = ["<b>Design %{customdata[0]}</b> (rank %{customdata[1]})"]
+
+    def add(label: str, text: pd.Series) -> None:
+        lines.append(f"{html.escape(label)}: %{{customdata[{len(fields)}]}}")
+        fields.append(text)
+
+    for col in report.part_columns:
+        if col in d.columns:
+            add(_var(col).label, _fmt_series(d[col], col).map(html.escape))
+    main = report.main_output
+    for col in ([f"{main}_nom"] if main else []) + ["duty_nom"]:
+        if col in d.columns and (col != "duty_nom" or main != "duty"):
+            add(f"{_var(_base(col)).label} (nominal)", _fmt_series(d[col], col))
+    if "yield" in d.columns:
+        add("Yield", _fmt_series(d["yield"], "duty"))
+    cur = _current_column(d)
+    if cur:
+        add("Supply current" + (" (highest)" if cur.endswith("_max") else ""),
+            _fmt_series(d[cur], cur))
+    template = "<br>".join(lines)
+    if "flags" in d.columns:
+        flags = d["flags"].fillna("").astype(str).map(html.escape)
+        template += f"%{{customdata[{len(fields)}]}}"
+        fields.append(pd.Series(np.where(flags != "", "<br>Flags: " + flags, ""), index=d.index))
+    custom = (np.column_stack([f.to_numpy(dtype=object) for f in fields]) if n
+              else np.empty((0, len(fields)), dtype=object))
+    feasible = (d["feasible"].fillna(False).astype(bool).to_numpy() if "feasible" in d.columns
+                else np.ones(n, dtype=bool))
+    pick = rank.to_numpy() == 1
+    return _Designs(d, len(report.designs), custom, template + "<extra></extra>", feasible, pick)
+
+
+def _current_column(d: pd.DataFrame) -> str | None:
+    for col in ("supply_current_a_max", "supply_current_a_nom"):
+        if col in d.columns and np.isfinite(d[col].to_numpy(float)).any():
+            return col
+    return None
+
+
+def _cap_note(ds: _Designs) -> str:
+    if not ds.capped:
+        return ""
+    return (f"This study has {ds.total:,} designs; this chart shows the {len(ds.table):,} "
+            "best-ranked.").replace(",", " ")
+
+
+def _pick_trace(x, y, hover: dict, **kw) -> go.Scatter:
+    return go.Scatter(x=x, y=y, mode="markers", name="The pick (rank 1)", legendgroup="pick",
+                      **hover,
+                      marker=dict(symbol="star", size=19, color=YELLOW,
+                                  line=dict(color=BLACK, width=1.5)), **kw)
+
+
+def _legend_only(name: str, group: str, **style) -> go.Scatter:
+    """A legend entry with no data: it explains a mark or line drawn elsewhere."""
+    return go.Scatter(x=[None], y=[None], name=name, legendgroup=group, hoverinfo="skip",
+                      **style)
+
+
+def _spec_lines(fig: go.Figure, report: Report, axis: str) -> None:
+    """The spec limits (solid) and target (dashed) on the main output as lines across the
+    plot, named in the legend rather than with labels that could sit on the data."""
+    lo, hi, target = _main_limits(report)
+    unit = _fmt_unit(report.main_output)
+    add = fig.add_vline if axis == "x" else fig.add_hline
+    limits = [v for v in (lo, hi) if np.isfinite(v)]
+    for v in limits:
+        add(v, line=dict(color=LIMIT, width=2.5))
+    if limits:
+        text = " and ".join(format_eng(v, unit) for v in limits)
+        fig.add_trace(_legend_only(f"Spec limit{'s' if len(limits) > 1 else ''}: {text}", "spec",
+                                   mode="lines", line=dict(color=LIMIT, width=2.5)))
+    if target is not None and np.isfinite(target):
+        add(target, line=dict(color=BLACK, width=1.5, dash="dash"))
+        fig.add_trace(_legend_only(f"Target: {format_eng(target, unit)}", "spec", mode="lines",
+                                   line=dict(color=BLACK, width=1.5, dash="dash")))
+
+
+# --- 1. design map -----------------------------------------------------------------------------
+def _map_section(report: Report, ds: _Designs) -> Section:
+    sec = Section("map", HEADINGS["map"], "")
+    d = ds.table
+    parts = [c for c in report.part_columns if c in d.columns]
+    if len(parts) < 2 or d.empty:
+        sec.note = "this study chooses fewer than two parts, so there is no map of parts to draw."
+        return sec
+    xcol, ycol = parts[:2]
+    fcol = parts[2] if len(parts) > 2 else None
+    main = report.main_output
+    nomcol = f"{main}_nom" if main and f"{main}_nom" in d.columns else None
+    ccol = nomcol or ("yield" if "yield" in d.columns else None)
+    craw = d[ccol].to_numpy(float) if ccol else np.full(len(d), np.nan)
+    clog = bool(ccol) and _is_log(ccol)
+    cval = craw
+    if clog:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cval = np.where(craw > 0, np.log10(np.where(craw > 0, craw, 1.0)), np.nan)
+    has_c = np.isfinite(cval)
+    lo, hi, _ = _main_limits(report)
+    has_spec = nomcol is not None and (np.isfinite(lo) or np.isfinite(hi))
+    nominal = d[nomcol].to_numpy(float) if nomcol else np.full(len(d), np.nan)
+    in_spec = (nominal >= lo) & (nominal <= hi) if has_spec else np.zeros(len(d), dtype=bool)
+
+    x_all, y_all = d[xcol].to_numpy(float), d[ycol].to_numpy(float)
+    side = max(len(np.unique(x_all)), len(np.unique(y_all)))
+    size = float(np.clip(280 / max(side, 1), 5, 13))
+
+    fvals = np.unique(d[fcol].to_numpy(float)) if fcol else np.array([np.nan])
+    groups = [(v, d[fcol].to_numpy(float) == v) if fcol else (v, np.ones(len(d), dtype=bool))
+              for v in fvals]
+    flabel = _var(fcol).label if fcol else ""
+    names = [f"{flabel} = {_fmt(v, fcol)}" if fcol else "" for v, _ in groups]
+    facets = len(groups) <= MAX_PANELS
+    ncols = min(len(groups), 3) if facets else 1
+    nrows = math.ceil(len(groups) / ncols) if facets else 1
+    xax, yax = _axis(xcol, values=x_all, discrete=True), _axis(ycol, values=y_all, discrete=True)
+    fig = make_subplots(rows=nrows, cols=ncols, shared_xaxes="all", shared_yaxes="all",
+                        subplot_titles=[html.escape(n) for n in names] if facets and fcol else None,
+                        horizontal_spacing=0.05, vertical_spacing=0.14 if nrows > 1 else 0.1,
+                        x_title=xax.pop("title")["text"], y_title=yax.pop("title")["text"])
+    kinds = [("Meets every limit", ds.feasible & has_c, "circle", None),
+             ("Breaks a limit", ~ds.feasible & has_c, "x", None),
+             ("No nominal value", ~has_c, "diamond-open", GREY)]
+    spans = []
+    for i, (value, m) in enumerate(groups):
+        row, col = (i // ncols + 1, i % ncols + 1) if facets else (1, 1)
+        show = facets or i == 0
+        start = len(fig.data)
+        for name, which, symbol, colour in kinds:
+            sel = m & which
+            if not sel.any():
+                continue
+            marker = dict(symbol=symbol, size=size, line=dict(width=0.5, color="#333333"))
+            if colour:
+                marker.update(color=colour, line=dict(width=1.2, color=colour))
+            else:
+                marker.update(color=cval[sel], coloraxis="coloraxis")
+            fig.add_trace(go.Scatter(
+                x=x_all[sel], y=y_all[sel], mode="markers", name=name, legendgroup=name,
+                showlegend=False, marker=marker, **ds.hover(sel), visible=show), row=row, col=col)
+        sel = m & in_spec
+        if sel.any():
+            fig.add_trace(go.Scatter(
+                x=x_all[sel], y=y_all[sel], mode="markers", legendgroup="spec", showlegend=False,
+                hoverinfo="skip", visible=show,
+                marker=dict(symbol="circle-open", size=size + 9, color=BLACK,
+                            line=dict(width=1.6, color=BLACK))), row=row, col=col)
+        sel = m & ds.pick
+        if sel.any():
+            fig.add_trace(_pick_trace(x_all[sel], y_all[sel], ds.hover(sel), visible=show,
+                                      showlegend=False), row=row, col=col)
+        spans.append((start, len(fig.data)))
+    # the legend: entries with fixed colours (the colour bar explains the fill)
+    keys = len(fig.data)
+    for name, which, symbol, colour in kinds:
+        if which.any():
+            fig.add_trace(_legend_only(name, name, mode="markers", marker=dict(
+                symbol=symbol, size=11, color=colour or "#5a5a5a",
+                line=dict(width=1.2 if colour else 0.5, color=colour or "#333333"))))
+    if in_spec.any():
+        fig.add_trace(_legend_only("Nominal inside the spec", "spec", mode="markers", marker=dict(
+            symbol="circle-open", size=15, color=BLACK, line=dict(width=1.6, color=BLACK))))
+    if ds.pick.any():
+        fig.add_trace(_legend_only("The pick (rank 1)", "pick", mode="markers", marker=dict(
+            symbol="star", size=17, color=YELLOW, line=dict(color=BLACK, width=1.5))))
+
+    fig.update_xaxes(**xax)
+    fig.update_yaxes(**yax)
+    cax = dict(colorscale=SEQUENTIAL, colorbar=dict(
+        title=dict(text=html.escape(_header(ccol, "(nominal)") if nomcol else "Yield")
+                   if ccol else "", side="right"), thickness=14, len=0.9))
+    fin = _finite(craw[craw > 0] if clog else craw)
+    if fin.size:
+        ticks = nice_ticks(float(fin.min()), float(fin.max()), clog)
+        cax["colorbar"]["tickvals"] = [math.log10(t) for t in ticks] if clog else ticks
+        cax["colorbar"]["ticktext"] = [_fmt(t, ccol) for t in ticks]
+        c0, c1 = (math.log10(fin.min()), math.log10(fin.max())) if clog else (fin.min(), fin.max())
+        cax.update(cmin=c0 - 0.5, cmax=c1 + 0.5) if c0 == c1 else cax.update(cmin=c0, cmax=c1)
+    legend_y = -80 / (340 * nrows - 40)   # about 80 px under the plots
+    fig.update_layout(template=_TEMPLATE, coloraxis=cax, height=340 * nrows + 130,
+                      legend=dict(orientation="h", x=0, y=legend_y, yanchor="top"),
+                      margin=dict(l=90, r=30, t=50, b=120))
+    if not facets:
+        n = len(fig.data)
+        buttons = [dict(label=html.escape(name), method="update",
+                        args=[{"visible": [start <= k < stop or k >= keys for k in range(n)]}])
+                   for (start, stop), name in zip(spans, names)]
+        fig.update_layout(
+            updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
+                              yanchor="bottom", showactive=True, bgcolor="white",
+                              bordercolor="#9a9a9a")],
+            margin=dict(t=80))
+        fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
+                           xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
+                           showarrow=False)
+    sec.figure = fig
+
+    main_label = _var(main).label.lower() if main else ""
+    panels = ""
+    if fcol and facets and len(groups) > 1:
+        panels = f" There is one panel per {html.escape(flabel)} value."
+    elif fcol and not facets:
+        panels = (f" {html.escape(flabel)} takes {len(groups)} values: choose one in the list "
+                  "at the top left of the chart.")
+    colour = ""
+    if nomcol:
+        colour = f"Colour is the nominal {html.escape(main_label)} (scale on the right). "
+    elif ccol:
+        colour = "Colour is the yield (scale on the right). "
+    sec.explain = (
+        f"Each mark is one design, placed by its {html.escape(_var(xcol).label)} and "
+        f"{html.escape(_var(ycol).label)} values on log scales.{panels} {colour}"
+        "Round marks meet every limit in every condition; crosses break at least one. "
+        + ("A black ring marks a design whose nominal value sits inside the spec. "
+           if has_spec else "")
+        + "The star is the pick."
+        + (" Look for round marks with a ring and ringed neighbours: there the next standard "
+           "value up or down still lands in spec, so tolerances and drift have room."
+           if has_spec else ""))
+    notes = [_cap_note(ds)]
+    if has_spec and not in_spec.any():
+        notes.append("No design shown has its nominal value inside the spec.")
+    sec.note = " ".join(n for n in notes if n)
+    return sec
+
+
+# --- 2. duty against frequency -----------------------------------------------------------------
+def _padded(values: np.ndarray, limits: tuple[float, float], log: bool,
+            clip: tuple[float, float] | None = None) -> tuple[float, float]:
+    """Axis range (in axis units: log10 for log axes) that holds the data and finite limits."""
+    pts = np.concatenate([_finite(values), _finite(np.asarray(limits, dtype=float))])
+    if log:
+        pts = pts[pts > 0]
+    if pts.size == 0:
+        return (0.0, 1.0)
+    lo, hi = float(pts.min()), float(pts.max())
+    if clip:
+        lo, hi = max(lo, clip[0]), min(hi, clip[1])
+    if log:
+        lo, hi = math.log10(lo), math.log10(hi)
+        pad = max((hi - lo) * 0.06, 0.05)
+    else:
+        pad = max((hi - lo) * 0.06, abs(hi) * 0.02, 1e-3)
+    return (lo - pad, hi + pad)
+
+
+def _design_marks(fig: go.Figure, x: np.ndarray, y: np.ndarray, ds: _Designs) -> None:
+    for name, sel, symbol, colour in (("Meets every limit", ds.feasible, "circle", BLUE),
+                                      ("Breaks a limit", ~ds.feasible, "x", VERMILLION)):
+        if sel.any():
+            fig.add_trace(go.Scatter(x=x[sel], y=y[sel], mode="markers", name=name,
+                                     marker=dict(symbol=symbol, size=8, color=colour, opacity=0.8,
+                                                 line=dict(width=0.5, color="#333333")),
+                                     **ds.hover(sel)))
+
+
+def _duty_section(report: Report, ds: _Designs) -> Section:
+    sec = Section("duty", HEADINGS["duty"], (
+        "Each mark is one design at its nominal point: frequency across (log scale), duty cycle "
+        "(the share of each period the output is high) up. The shaded box is what the spec "
+        "allows for the two together. Prefer marks well inside the box to marks near its edge: "
+        "tolerances, supply and temperature move every design around its mark."))
+    d = ds.table
+    if not report.circuit.startswith("astable"):
+        sec.note = (f"only a free-running (astable) circuit has a duty cycle; this study is "
+                    f"{html.escape(report.circuit)}.")
+        return sec
+    if not {"duty_nom", "frequency_hz_nom"} <= set(d.columns) or d.empty:
+        sec.note = "the designs table holds no nominal duty and frequency."
+        return sec
+    f, du = d["frequency_hz_nom"].to_numpy(float), d["duty_nom"].to_numpy(float)
+    flo, fhi = _spec_of(report, "frequency_hz")
+    dlo, dhi = _spec_of(report, "duty")
+    xr = _padded(f, (flo, fhi), log=True)
+    yr = _padded(du, (dlo, dhi), log=False, clip=(0.0, 1.0))
+    fig = go.Figure()
+    notes = []
+    if any(np.isfinite(v) for v in (flo, fhi, dlo, dhi)):
+        x0 = flo if np.isfinite(flo) and flo > 0 else 10 ** xr[0]
+        x1 = fhi if np.isfinite(fhi) else 10 ** xr[1]
+        y0 = dlo if np.isfinite(dlo) else yr[0]
+        y1 = dhi if np.isfinite(dhi) else yr[1]
+        box = dict(fillcolor="rgba(86,180,233,0.28)", line=dict(color=BLUE, width=1.5, dash="dash"))
+        fig.add_shape(type="rect", xref="x", yref="y", x0=x0, x1=x1, y0=y0, y1=y1,
+                      layer="below", **box)
+        fig.add_trace(_legend_only("Spec: the allowed region", "spec", mode="markers",
+                                   marker=dict(symbol="square", size=15, color=box["fillcolor"],
+                                               line=dict(color=BLUE, width=1.5))))
+    else:
+        notes.append("The spec sets no limit on frequency or duty, so no box is drawn.")
+    _design_marks(fig, f, du, ds)
+    if ds.pick.any():
+        fig.add_trace(_pick_trace(f[ds.pick], du[ds.pick], ds.hover(ds.pick)))
+    xax = _axis("frequency_hz", _header("frequency_hz", "(nominal)"), values=f,
+                span=(10 ** xr[0], 10 ** xr[1]))
+    fig.update_layout(template=_TEMPLATE, height=480,
+                      xaxis=dict(**xax, range=list(xr)),
+                      yaxis=dict(**_axis("duty", "Duty cycle (nominal)"), range=list(yr)),
+                      legend=dict(orientation="h", x=0, y=-0.18, yanchor="top"),
+                      margin=dict(b=100))
+    sec.figure = fig
+    sec.note = " ".join(n for n in notes + [_cap_note(ds)] if n)
+    return sec
+
+
+# --- 3. yield against supply current -----------------------------------------------------------
+def _yield_section(report: Report, ds: _Designs) -> Section:
+    d = ds.table
+    cur = _current_column(d)
+    worst = cur == "supply_current_a_max"
+    sec = Section("yield", HEADINGS["yield"], (
+        "Yield is the share of simulated builds, with every part drawn within its tolerance, "
+        "that meet the spec at every supply and temperature. Supply current is the average "
+        + ("draw in the condition that draws most. " if worst else "draw at the nominal point. ")
+        + "The stepped black line joins the designs that no other design beats on both counts: "
+          "for a given current budget, the best yield on offer sits on the line. Walk along it "
+          "from the left until the yield is high enough; further right only costs battery."))
+    if cur is None or "yield" not in d.columns or not np.isfinite(d["yield"].to_numpy(float)).any():
+        sec.note = ("this run has no yield or no supply current per design (a study without a "
+                    "[spec] has no yield).")
+        return sec
+    x, y = d[cur].to_numpy(float), d["yield"].to_numpy(float)
+    front = pareto_frontier(x, y)
+    order = np.flatnonzero(front)[np.argsort(x[front], kind="stable")]
+    fig = go.Figure()
+    _design_marks(fig, x, y, ds)
+    fig.add_trace(go.Scatter(x=x[order], y=y[order], mode="lines+markers", line_shape="hv",
+                             name="Frontier: no design has more yield for less current",
+                             line=dict(color=BLACK, width=2),
+                             marker=dict(symbol="circle-open", size=12, color=BLACK,
+                                         line=dict(width=1.5)),
+                             **ds.hover(order)))
+    if ds.pick.any():
+        fig.add_trace(_pick_trace(x[ds.pick], y[ds.pick], ds.hover(ds.pick)))
+    xr = _padded(x, (np.nan, np.nan), log=True)
+    xax = _axis(cur, _header(cur, "(highest)" if worst else "(nominal)"), values=x,
+                span=(10 ** xr[0], 10 ** xr[1]))
+    fig.update_layout(template=_TEMPLATE, height=480,
+                      xaxis=dict(**xax, range=list(xr)),
+                      yaxis=dict(title=dict(text="Yield"), tickformat=".0%", range=[-0.04, 1.06]),
+                      legend=dict(orientation="h", x=0, y=-0.18, yanchor="top"),
+                      margin=dict(b=100))
+    sec.figure = fig
+    sec.note = _cap_note(ds)
+    return sec
+
+
+# --- 4. Monte Carlo histogram ------------------------------------------------------------------
+def _mc_section(report: Report) -> Section:
+    main = report.main_output
+    label = _var(main).label.lower() if main else "main output"
+    sec = Section("mc", HEADINGS["mc"], (
+        f"Each bar counts simulated builds of the pick, every part drawn at random within its "
+        f"tolerance, with the {html.escape(label)} taken in the pick's worst condition. The "
+        "solid vertical lines are the spec limits, the dashed one the target. A narrow hump well "
+        "inside the limits means the design is robust; builds beyond a line are the yield lost."))
+    mc = report.mc_samples
+    if main is None or mc is None or "value" not in mc.columns or mc.empty:
+        sec.note = ("this run has no Monte Carlo builds (the circuit has no timing output, or "
+                    "Monte Carlo was turned off).")
+        return sec
+    raw = mc["value"].to_numpy(float)
+    vals = _finite(raw)
+    if vals.size == 0:
+        sec.note = "none of the pick's Monte Carlo builds produced a value (the timing stalls)."
+        return sec
+    unit = _fmt_unit(main)
+    fig = go.Figure(go.Histogram(x=vals, nbinsx=min(60, max(10, int(np.sqrt(vals.size)))),
+                                 marker=dict(color=BLUE, line=dict(color="white", width=0.5)),
+                                 name="Builds", showlegend=False,
+                                 hovertemplate=f"%{{x}} {html.escape(unit)}: %{{y}} builds"
+                                               "<extra></extra>"))
+    _spec_lines(fig, report, "x")
+    xr = _padded(vals, _main_limits(report)[:2], log=False)
+    fig.update_layout(template=_TEMPLATE, height=440, bargap=0.02,
+                      xaxis=dict(title=dict(text=_header(main)), tickformat="~s", range=list(xr)),
+                      yaxis=dict(title=dict(text="Builds")),
+                      legend=dict(orientation="h", x=0, y=-0.2, yanchor="top"),
+                      margin=dict(t=20, b=100))
+    sec.figure = fig
+    dropped = raw.size - vals.size
+    notes = [f"{vals.size:,} builds.".replace(",", " ")]
+    if dropped:
+        notes.append(f"{dropped} builds gave no value (the timing stalls) and are not drawn.")
+    sec.note = " ".join(notes)
+    return sec
+
+
+# --- 5. temperature curves ---------------------------------------------------------------------
+def _temperature_section(report: Report, ds: _Designs) -> Section:
+    main = report.main_output
+    label = _var(main).label.lower() if main else "main output"
+    sec = Section("temperature", HEADINGS["temperature"], (
+        f"How the {html.escape(label)} of the five best-ranked designs moves with the ambient "
+        "temperature, one line per supply voltage. Colour and marker shape tell the designs "
+        "apart, the dash pattern tells the supply. Flat lines that stay close together mean the "
+        "design shrugs off heat and supply changes; a steep or fanning line shows where its "
+        "margin goes. Click a legend entry to hide a line."))
+    tc = report.temperature_curves
+    need = {"rank", "vcc_v", "temperature_c", "value"}
+    if main is None or tc is None or tc.empty or not need <= set(tc.columns):
+        sec.note = "this run has no temperature curves (the circuit has no timing output)."
+        return sec
+    tc = tc.sort_values(["rank", "vcc_v", "temperature_c"])
+    ranks = sorted(pd.unique(tc["rank"]))[:5]
+    vccs = sorted(pd.unique(tc["vcc_v"]))
+    design_of = {}
+    if "rank" in ds.table.columns and "design" in ds.table.columns:
+        design_of = dict(zip(ds.table["rank"], ds.table["design"]))
+    unit = _fmt_unit(main)
+    fig = go.Figure()
+    for i, r in enumerate(ranks):
+        colour, symbol = PALETTE[i % len(PALETTE)], SYMBOLS[i % len(SYMBOLS)]
+        group = f"Rank {r}" + (f" (design {design_of[r]})" if r in design_of else "")
+        for j, v in enumerate(vccs):
+            sub = tc[(tc["rank"] == r) & (tc["vcc_v"] == v)]
+            if sub.empty:
+                continue
+            vt = format_eng(v, "V")
+            hover = [f"{html.escape(group)}, {vt} supply<br>{t:g} °C: {format_eng(val, unit)}"
+                     for t, val in zip(sub["temperature_c"], sub["value"])]
+            fig.add_trace(go.Scatter(
+                x=sub["temperature_c"], y=sub["value"], mode="lines+markers",
+                name=f"{vt} supply", legendgroup=f"rank{r}",
+                legendgrouptitle=dict(text=html.escape(group)),
+                line=dict(color=colour, dash=DASHES[j % len(DASHES)], width=2),
+                marker=dict(symbol=symbol, size=8, color=colour),
+                text=hover, hovertemplate="%{text}<extra></extra>"))
+    _spec_lines(fig, report, "y")
+    lo, hi, target = _main_limits(report)
+    yr = _padded(tc["value"].to_numpy(float), (lo, hi, np.nan if target is None else target),
+                 log=False)
+    rows = len(ranks) * (len(vccs) + 1) + 2          # legend lines: group titles, supplies, spec
+    fig.update_layout(template=_TEMPLATE, height=max(460, 190 + 21 * rows + 8 * len(ranks)),
+                      xaxis=dict(title=dict(text=_header("temperature_c"))),
+                      yaxis=dict(title=dict(text=_header(main)), tickformat="~s", range=list(yr)),
+                      legend=dict(groupclick="toggleitem", tracegroupgap=8),
+                      margin=dict(r=20, t=20))
+    sec.figure = fig
+    return sec
+
+
+# --- 6. parallel coordinates -------------------------------------------------------------------
+def _pc_dimension(name: str, label: str, values: np.ndarray, parts: list[str]) -> dict:
+    log = _is_log(name)
+    fin = _finite(values[values > 0] if log else values)
+    lo, hi = (float(fin.min()), float(fin.max())) if fin.size else (0.0, 1.0)
+    if name == "yield":
+        ticks, lo, hi = [0, 0.25, 0.5, 0.75, 1.0], 0.0, 1.0
+        text = [f"{t:.0%}" for t in ticks]
+    else:
+        uniq = np.unique(fin)
+        if name in parts and len(uniq) <= 10:
+            ticks = uniq.tolist()
+        else:
+            ticks = nice_ticks(lo, hi, log, count=5, enclose=True)
+            lo, hi = min(lo, ticks[0]), max(hi, ticks[-1])
+        text = [_fmt(t, name) for t in ticks]
+    tv = [math.log10(t) for t in ticks] if log else list(ticks)
+    rng = [math.log10(lo), math.log10(hi)] if log else [lo, hi]
+    if rng[0] == rng[1]:
+        rng = [rng[0] - 0.5, rng[1] + 0.5]
+    vals = np.log10(values) if log else values
+    return dict(label=html.escape(label), values=vals, tickvals=tv, ticktext=text, range=rng)
+
+
+def _parallel_section(report: Report, ds: _Designs) -> Section:
+    sec = Section("parallel", HEADINGS["parallel"], (
+        "Every design is one line crossing the axes from left to right: its parts (log scales), "
+        "then what they give. Colour is the yield, darkest for the best. Drag along an axis to "
+        "keep only the lines that pass through that stretch; click the axis outside it to clear. "
+        "For example, drag over the top of the yield axis to see which part values the good "
+        "designs share. Drag an axis title sideways to reorder the axes."))
+    d = ds.table
+    if d.empty:
+        sec.note = "there are no designs to show."
+        return sec
+    main = report.main_output
+    cur = _current_column(d)
+    cols = [c for c in report.part_columns if c in d.columns]
+    labels = [_var(c).header for c in cols]
+    for col, lab in ((f"{main}_nom" if main else "", _header(main, "(nominal)") if main else ""),
+                     ("yield", "Yield"),
+                     (cur or "", _header(cur or "", "(highest)" if cur == "supply_current_a_max"
+                                         else "(nominal)"))):
+        if col and col in d.columns and np.isfinite(d[col].to_numpy(float)).any():
+            cols.append(col)
+            labels.append(lab)
+    if len(cols) < 2:
+        sec.note = "there are too few columns to compare."
+        return sec
+    data = d[cols].to_numpy(float)
+    logs = np.array([_is_log(c) for c in cols])
+    with np.errstate(invalid="ignore"):
+        usable = np.isfinite(data).all(axis=1) & ((data > 0) | ~logs).all(axis=1)
+    data = data[usable]
+    if not len(data):
+        sec.note = "no design has every column filled in, so there are no lines to draw."
+        return sec
+    dims = [_pc_dimension(c, lab, data[:, k], report.part_columns)
+            for k, (c, lab) in enumerate(zip(cols, labels))]
+    if "yield" in cols:
+        line = dict(color=d["yield"].to_numpy(float)[usable], colorscale=SEQUENTIAL,
+                    reversescale=True, cmin=0, cmax=1, showscale=True,
+                    colorbar=dict(title=dict(text="Yield"), tickformat=".0%", thickness=14,
+                                  x=1.02, xanchor="left"))
+    else:
+        line = dict(color=BLUE)
+    fig = go.Figure(go.Parcoords(dimensions=dims, line=line,
+                                 labelfont=dict(size=13), tickfont=dict(size=11),
+                                 rangefont=dict(size=1, color="rgba(0,0,0,0)")))
+    fig.update_layout(template=_TEMPLATE, height=520, margin=dict(l=80, r=110, t=80, b=40))
+    sec.figure = fig
+    notes = [_cap_note(ds)]
+    if (~usable).sum():
+        notes.append(f"{int((~usable).sum())} designs without a value in some column are left out.")
+    sec.note = " ".join(n for n in notes if n)
+    return sec
+
+
+# --- the page ----------------------------------------------------------------------------------
+def build_sections(report: Report) -> list[Section]:
+    """The six sections of the page, each with its figure or the reason it has none."""
+    return _sections(report, _designs(report))
+
+
+def _sections(report: Report, ds: _Designs) -> list[Section]:
+    return [_map_section(report, ds), _duty_section(report, ds), _yield_section(report, ds),
+            _mc_section(report), _temperature_section(report, ds), _parallel_section(report, ds)]
+
+
+_CSS = """
+:root { --ink: #1f2328; --muted: #5b6168; --rule: #d9dde1; --accent: #0072B2; }
+* { box-sizing: border-box; }
+body { margin: 0; font-family: system-ui, -apple-system, sans-serif; color: var(--ink);
+       background: #f6f7f8; line-height: 1.5; }
+.wrap { max-width: 1180px; margin: 0 auto; padding: 24px 20px 48px; }
+header.top { background: white; border: 1px solid var(--rule); border-radius: 6px;
+             padding: 22px 26px; }
+.kicker { margin: 0; color: var(--muted); font-size: 13px; letter-spacing: .04em;
+          text-transform: uppercase; }
+h1 { margin: 4px 0 14px; font-size: 26px; line-height: 1.25; overflow-wrap: anywhere; }
+h2 { margin: 0 0 6px; font-size: 20px; }
+.facts { display: grid; grid-template-columns: max-content 1fr; gap: 2px 16px; margin: 0 0 14px; }
+.facts dt { color: var(--muted); }
+.facts dd { margin: 0; overflow-wrap: anywhere; }
+table.summary { border-collapse: collapse; margin: 4px 0 12px; min-width: 50%; }
+table.summary th, table.summary td { text-align: left; padding: 5px 14px 5px 0;
+    border-bottom: 1px solid var(--rule); vertical-align: top; overflow-wrap: anywhere; }
+table.summary th { color: var(--muted); font-weight: 600; white-space: nowrap; }
+.cautions { border: 2px solid #E69F00; border-left-width: 8px; background: #fff7e6;
+            border-radius: 4px; padding: 10px 16px; margin: 14px 0 6px; }
+.cautions h2 { font-size: 16px; margin: 0 0 4px; }
+.cautions ul { margin: 0; padding-left: 20px; }
+.badge { display: inline-block; border: 1px solid var(--accent); color: var(--accent);
+         border-radius: 3px; padding: 0 6px; font-size: 13px; }
+.capnote { color: var(--ink); background: #eef5fb; border-left: 4px solid var(--accent);
+           padding: 6px 12px; margin: 10px 0 0; }
+nav.toc { margin-top: 14px; font-size: 14px; display: flex; flex-wrap: wrap; gap: 4px 18px; }
+nav.toc a { color: var(--accent); }
+section.chart-block { background: white; border: 1px solid var(--rule); border-radius: 6px;
+                      padding: 18px 22px; margin-top: 18px; }
+section.chart-block p.how { margin: 0 0 8px; max-width: 90ch; }
+section.chart-block p.note { margin: 0 0 8px; color: var(--muted); font-style: italic; }
+section.chart-block p.skip { margin: 4px 0; color: var(--muted); }
+.chart { width: 100%; }
+footer { color: var(--muted); font-size: 13px; margin-top: 24px; }
+"""
+
+
+def _header_html(report: Report, ds: _Designs) -> str:
+    esc = html.escape
+    circuit = CIRCUIT_TEXT.get(report.circuit, report.circuit)
+    facts = [("Circuit", esc(circuit)), ("Timer model", esc(report.timer_name))]
+    facts.append(("Model", '<span class="badge">ideal: textbook formulas, no non-idealities</span>'
+                  if report.ideal else "realistic (bias currents, output stage, drift, parts)"))
+    if report.main_output:
+        facts.append(("Main output", esc(_var(report.main_output).label)))
+    facts.append(("Designs", f"{ds.total:,}".replace(",", " ")))
+    facts.append(("Points evaluated", f"{report.points_total:,}".replace(",", " ")))
+    out = ['<header class="top">', '<p class="kicker">timer-sweep chart page</p>',
+           f"<h1>{esc(report.title)}</h1>", '<dl class="facts">']
+    out += [f"<dt>{k}</dt><dd>{v}</dd>" for k, v in facts]
+    out.append("</dl>")
+    if report.summary:
+        out.append('<table class="summary"><tbody>')
+        out += [f"<tr><th scope=\"row\">{esc(str(k))}</th><td>{esc(str(v))}</td></tr>"
+                for k, v in report.summary]
+        out.append("</tbody></table>")
+    if report.cautions:
+        out.append('<div class="cautions" role="note"><h2>Cautions</h2><ul>')
+        out += [f"<li>{esc(str(c))}</li>" for c in report.cautions]
+        out.append("</ul></div>")
+    if ds.capped:
+        note = _cap_note(ds).replace("this chart shows", "the charts show")
+        out.append(f'<p class="capnote">{esc(note)}</p>')
+    return "\n".join(out)
+
+
+def render_page(report: Report) -> str:
+    """The whole page as one HTML string (plotly's JavaScript embedded once)."""
+    esc = html.escape
+    ds = _designs(report)
+    sections = _sections(report, ds)
+    parts = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+             '<meta name="viewport" content="width=device-width, initial-scale=1">',
+             f"<title>{esc(report.title)} - timer-sweep</title>", f"<style>{_CSS}</style>",
+             "</head>", "<body>", '<div class="wrap">', _header_html(report, ds)]
+    parts.append('<nav class="toc">' + "".join(
+        f'<a href="#sec-{s.key}">{esc(s.heading)}</a>' for s in sections) + "</nav></header>")
+    parts.append("<main>")
+    first = True
+    for s in sections:
+        parts.append(f'<section class="chart-block" id="sec-{s.key}">')
+        parts.append(f"<h2>{esc(s.heading)}</h2>")
+        if s.figure is None:
+            parts.append(f'<p class="skip">Not shown: {s.note}</p>')
+        else:
+            # explain and note hold our own sentences with user text already escaped
+            parts.append(f'<p class="how">{s.explain}</p>')
+            if s.note:
+                parts.append(f'<p class="note">{s.note}</p>')
+            parts.append(f'<div class="chart">{_html_div(s.figure, f"chart-{s.key}", first)}</div>')
+            first = False
+        parts.append("</section>")
+    parts.append("</main>")
+    info = report.run_info or {}
+    bits = [f"{esc(str(k))} {esc(str(info[k]))}" for k in ("version", "seed", "digest")
+            if k in info]
+    made = "Made by timer-sweep" + "".join(f" &middot; {b}" for b in bits)
+    parts.append(f"<footer>{made}. The charts work offline: everything they need is inside this "
+                 "file.</footer>")
+    parts += ["</div>", "</body>", "</html>", ""]
+    return "\n".join(parts)
+
+
+def write_page(path: pathlib.Path, report: Report) -> None:
+    """Write the chart page for ``report`` to ``path`` atomically: a temporary file in the same
+    folder, renamed onto ``path``; nothing is left behind if anything fails."""
+    path = pathlib.Path(path)
+    text = render_page(report)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+        os.chmod(tmp, 0o644)   # a page to share: readable like any other written file
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise

@@ -1,0 +1,728 @@
+"""The XLSX workbook: seven sheets a colleague can open, filter, check and re-run.
+
+Sheets, in order: Summary, Designs, Points, Parts, Check, Study, Notes. The writer lays out what
+the :class:`sweep.report.Report` holds and computes nothing but cell positions, the cached
+results of the Check formulas (the engine's own figures) and the display formats.
+
+Number formats (the choice)
+---------------------------
+Every numeric cell holds a true number in base SI units (ohm, farad, second, hertz, ampere...),
+so sorting, filtering, the Check formulas and any formula a reader adds work on plain values.
+A spreadsheet number format can divide by thousands (the ``,`` scaling) but cannot multiply,
+so SI prefixes are possible above one and impossible below it. A column of the registry format
+"eng" therefore takes one of two formats, chosen from the column's own finite values so that a
+column always reads one way:
+
+* every value >= 1 (resistances, most frequencies): the conditional format
+  ``[>=1000000]0.00,," M";[>=1000]0.00," k";0.00``, shown as ``4.70 k``, ``1.20 M``, ``2.05``;
+* any value below 1 or below zero (capacitances, times, currents, powers): engineering notation
+  ``##0.00E+0``, whose exponent is always a multiple of three, so it maps one-to-one on the SI
+  prefix: ``100.00E-9`` = 100 n, ``2.20E-6`` = 2.2 µ, ``347.25E-3`` = 347.25 m.
+
+Part values (RA, RB, R, C: standard values of two or three figures) use ``0.0#`` in place of
+``0.00`` (``4.7 k``, ``100.0E-9``), so a part reads as it is marked; computed figures keep two
+decimals so a column lines up.
+
+Scaled helper columns (``C [nF]``) were rejected: they double the tables, need a per-column
+prefix that fits no sweep spanning several decades, and would break the Check formulas, which
+reference SI cells. Ratios (duty, yield, tolerance) use ``0.0%``; the registry's "fixed1",
+"fixed2" and "int" formats map to ``0.0``, ``0.00`` and ``0``. The Summary and Notes sheets
+explain the exponent-to-prefix reading.
+
+Safety of text
+--------------
+User text (title, notes, summary, study values, flags...) is written with ``write_string``
+only, in a workbook opened with ``strings_to_formulas``, ``strings_to_numbers`` and
+``strings_to_urls`` all off, so no text ever becomes a formula, number or link. Text starting
+with = + - @ tab or CR also gets the "quote prefix" cell style, so editing the cell later in a
+spreadsheet program keeps it text. NaN and infinities become empty cells, never error values.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+import textwrap
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import xlsxwriter
+from xlsxwriter.utility import xl_rowcol_to_cell
+
+from sweep.report import Report
+from sweep.values import format_eng
+from sweep.variables import AXES, VARIABLES
+
+__all__ = ["write_workbook", "column_header", "column_format", "eng_number_format",
+           "SHEETS", "KM_FORMAT", "ENG_FORMAT"]
+
+SHEETS = ("Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes")
+
+KM_FORMAT = '[>=1000000]0.00,," M";[>=1000]0.00," k";0.00'
+ENG_FORMAT = "##0.00E+0"
+_PART_COLUMNS = ("ra_ohm", "rb_ohm", "r_ohm", "c_f")
+_FIXED = {"pct": "0.0%", "fixed1": "0.0", "fixed2": "0.00", "fixed3": "0.000", "int": "0"}
+
+_DANGER = ("=", "+", "-", "@", "\t", "\r")   # text a spreadsheet could read as a formula
+_MAX_ROWS = 1_048_576                        # rows in one sheet [cp: the spreadsheet programs' limit]
+_CHUNK = 20_000                              # rows converted to Python objects at a time
+
+# colours: light fills that print as distinct greys; pass/fail also differ in text and style
+_HEADER_FILL = "#D9D9D9"
+_FAIL_FILL = "#F8CBAD"
+_PASS_FILL = "#E2EFDA"
+_FLAG_FILL = "#FCE4D6"
+_INPUT_FILL = "#FFF2CC"
+_INPUT_FONT = "#0000FF"        # blue inputs [cp: spreadsheet modelling practice]
+_CAUTION_FILL = "#FFE699"
+
+_SAFETY_LINE = ("Mains-powered loads, relays and other inductive loads (fit a flyback diode), "
+                "batteries and hot parts can hurt people and start fires. timer-sweep checks "
+                "timing and electrical limits only: follow local codes and licensed practice, "
+                "and have such designs reviewed by a qualified person.")
+_FORMAT_LINE = ("Cells hold plain SI values (ohm, farad, second, hertz, ampere, watt). Large values "
+                "show as 4.7 k or 1.2 M; small ones in engineering notation whose exponent names "
+                "the prefix: E-3 = m (milli), E-6 = µ (micro), E-9 = n (nano), E-12 = p (pico); "
+                "e.g. 100.0E-9 F = 100 nF.")
+_CHECK_NOTE = ("Change a part value (blue cells) to see the formula move; the engine's figures "
+               "stay as computed")
+
+
+# --- headers and number formats ----------------------------------------------------------------
+_SUFFIXES = (("_wc_min", "worst-case min"), ("_wc_max", "worst-case max"),
+             ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std. dev."),
+             ("_nom", "nominal"), ("_min", "min"), ("_max", "max"))
+_SPECIAL = {"yield": ("Yield", "pct"), "sn_db": ("S/N [dB]", "fixed2"),
+            "feasible": ("Feasible", "bool"), "rank": ("Rank", "int"),
+            "verdict": ("Result", "text")}
+
+
+def _split(name: str):
+    """(base variable, suffix word) of a per-design column, or (None, None)."""
+    for suffix, word in _SUFFIXES:
+        if name.endswith(suffix) and name[:-len(suffix)] in VARIABLES:
+            return VARIABLES[name[:-len(suffix)]], word
+    return None, None
+
+
+def _part_label(key: str) -> str:
+    col = AXES.get(key, (None,))[0]
+    return VARIABLES[col].label if col in VARIABLES else key.upper()
+
+
+def column_header(name: str) -> str:
+    """What a person reads for a machine column: 'ra_ohm' -> 'RA [Ω]',
+    'frequency_hz_wc_min' -> 'Frequency [Hz] worst-case min', 'sens_ra' -> 'Sensitivity to RA'."""
+    if name in _SPECIAL:
+        return _SPECIAL[name][0]
+    if name in VARIABLES:
+        return VARIABLES[name].header
+    var, word = _split(name)
+    if var is not None:
+        return f"{var.header} {word}"
+    if name.startswith("sens_"):
+        return f"Sensitivity to {_part_label(name[5:])}"
+    return name
+
+
+def column_format(name: str) -> str:
+    """Registry format kind of a machine column: eng, pct, fixed1, fixed2, fixed3, int, text, bool."""
+    if name in _SPECIAL:
+        return _SPECIAL[name][1]
+    if name in VARIABLES:
+        return VARIABLES[name].fmt
+    var, _ = _split(name)
+    if var is not None:
+        return var.fmt
+    if name.startswith("sens_"):
+        return "fixed3"
+    return "general"
+
+
+def eng_number_format(values, part: bool = False) -> str:
+    """The display format of an "eng" column (see the module docstring): KM_FORMAT when every
+    finite non-zero value is >= 1, else ENG_FORMAT; ``part=True`` for part values (0.0#)."""
+    v = np.asarray(values, dtype=float).ravel()
+    v = v[np.isfinite(v) & (v != 0)]
+    fmt = KM_FORMAT if v.size == 0 or v.min() >= 1.0 else ENG_FORMAT
+    return fmt.replace("0.00", "0.0#") if part else fmt
+
+
+def _number_format(kind: str, values, name: str = "") -> str | None:
+    if kind == "eng":
+        return eng_number_format(values, part=name in _PART_COLUMNS)
+    return _FIXED.get(kind)
+
+
+# --- formats and safe cells --------------------------------------------------------------------
+class _Styles:
+    """Formats made once per distinct property set (a workbook has a limited number)."""
+
+    def __init__(self, wb: xlsxwriter.Workbook):
+        self.wb = wb
+        self._cache: dict[tuple, object] = {}
+
+    def get(self, **props):
+        props = {k: v for k, v in props.items() if v is not None}
+        if not props:
+            return None
+        key = tuple(sorted(props.items()))
+        if key not in self._cache:
+            self._cache[key] = self.wb.add_format(props)
+        return self._cache[key]
+
+    def header(self):
+        return self.get(bold=True, text_wrap=True, valign="top", bg_color=_HEADER_FILL, bottom=1)
+
+
+def _text(ws, st: _Styles, row: int, col: int, text, **props) -> None:
+    """Write user text as a string cell, never a formula; risky text gets the quote prefix."""
+    s = "" if text is None else str(text)
+    if s.startswith(_DANGER):
+        props["quote_prefix"] = True
+    ws.write_string(row, col, s, st.get(**props))
+
+
+def _finite(value) -> float | None:
+    try:
+        f = float(value)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def _value(ws, st: _Styles, row: int, col: int, value, **props) -> None:
+    """A single cell of any type: number (NaN/inf -> empty), bool, or text."""
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        ws.write_blank(row, col, None, st.get(**props))
+    elif isinstance(value, (bool, np.bool_)):
+        ws.write_boolean(row, col, bool(value), st.get(**props))
+    elif isinstance(value, (int, float, np.integer, np.floating)):
+        f = _finite(value)
+        if f is None:
+            ws.write_blank(row, col, None, st.get(**props))
+        else:
+            ws.write_number(row, col, f, st.get(**props))
+    elif isinstance(value, (dict, list, tuple)):
+        _text(ws, st, row, col, json.dumps(value, default=str), **props)
+    else:
+        _text(ws, st, row, col, value, **props)
+
+
+def _lines(text: str, width: float) -> int:
+    """Lines ``text`` takes when wrapped in a column ``width`` characters wide (an estimate)."""
+    return max(1, len(textwrap.wrap(str(text), max(4, int(width) - 1))))
+
+
+def _header_row(ws, st: _Styles, row: int, headers: list[str], widths: list[float]) -> None:
+    """Bold wrapped headers in a row made tall enough for them (spreadsheet programs do not all
+    fit row heights when they open a file)."""
+    ws.set_row(row, 15 * max((_lines(h, w) for h, w in zip(headers, widths)), default=1))
+    for c, h in enumerate(headers):
+        _text(ws, st, row, c, h, bold=True, text_wrap=True, valign="top",
+              bg_color=_HEADER_FILL, bottom=1)
+
+
+def _width(header: str, kind: str, texts=None) -> float:
+    longest_word = max((len(w) for w in header.split()), default=4)
+    if kind == "text":
+        n = max((len(t) for t in texts), default=0) if texts is not None else 12
+        return float(min(48, max(10, longest_word + 2, n + 2)))
+    return float(min(18, max(10, longest_word + 2)))
+
+
+def _note_row(ws, st: _Styles, row: int, text: str) -> None:
+    """A line of explanation above a table (it overflows into the empty cells beside it)."""
+    _text(ws, st, row, 0, text, italic=True)
+
+
+# --- tables --------------------------------------------------------------------------------
+@dataclass
+class _Col:
+    name: str
+    header: str
+    kind: str                  # "num", "bool" or "text"
+    values: np.ndarray         # float64 / int64 / bool / object (str)
+    num_format: str | None
+    width: float
+    text_props: dict | None = None   # style of a non-empty text cell
+    fail_extra: dict | None = None   # added to the row's fail style in this column
+
+    def cell_props(self) -> dict:
+        """Format of a number or boolean cell of this column."""
+        return {"num_format": self.num_format, "align": "center" if self.kind == "bool" else None}
+
+
+def _columns(frame: pd.DataFrame, names: list[str], header=column_header) -> list[_Col]:
+    cols = []
+    for name in names:
+        s = frame[name]
+        kind_fmt = column_format(name)
+        if pd.api.types.is_bool_dtype(s):
+            cols.append(_Col(name, header(name), "bool", s.to_numpy(bool), None,
+                             _width(header(name), "bool")))
+        elif pd.api.types.is_numeric_dtype(s) and kind_fmt not in ("text",):
+            if pd.api.types.is_integer_dtype(s) and not s.isna().any():
+                v = s.to_numpy(np.int64)
+            else:
+                v = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+            cols.append(_Col(name, header(name), "num", v, _number_format(kind_fmt, v, name),
+                             _width(header(name), "num")))
+        else:
+            v = s.astype(object).where(s.notna(), "").astype(str).to_numpy(dtype=object)
+            sample = v[:2000]
+            cols.append(_Col(name, header(name), "text", v, None,
+                             _width(header(name), "text", sample)))
+    return cols
+
+
+def _cell_objects(col: _Col, lo: int, hi: int) -> np.ndarray:
+    """Python objects for rows lo:hi of a column, None where a number is not finite."""
+    v = col.values[lo:hi]
+    out = v.astype(object)
+    if col.kind == "num" and v.dtype.kind == "f":
+        out[~np.isfinite(v)] = None
+    return out
+
+
+def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
+                 fail_props: dict | None = None) -> int:
+    """Header at first_row, data below; returns the last row written (0-based).
+
+    Rows are written strictly in order (constant_memory). Plain rows go through ``write_row``
+    per run of numeric columns, taking each column's format from ``set_column``; text cells go
+    through ``write_string``; rows where ``fail`` is true are styled cell by cell."""
+    for i, c in enumerate(cols):
+        ws.set_column(i, i, c.width, st.get(**c.cell_props()))
+    _header_row(ws, st, first_row, [c.header for c in cols], [c.width for c in cols])
+    n = len(cols[0].values) if cols else 0
+    n = min(n, _MAX_ROWS - first_row - 1)
+    text_idx = [i for i, c in enumerate(cols) if c.kind == "text"]
+    runs, start = [], None
+    for i, c in enumerate(cols + [None]):
+        if c is not None and c.kind != "text":
+            start = i if start is None else start
+        elif start is not None:
+            runs.append((start, i))
+            start = None
+    fail_props = fail_props or {}
+    for lo in range(0, n, _CHUNK):
+        hi = min(n, lo + _CHUNK)
+        block = np.empty((hi - lo, len(cols)), dtype=object)
+        for i, c in enumerate(cols):
+            block[:, i] = _cell_objects(c, lo, hi)
+        rows = block.tolist()
+        fails = None if fail is None else np.asarray(fail[lo:hi], dtype=bool).tolist()
+        r = first_row + 1 + lo
+        for k, row in enumerate(rows):
+            if fails is not None and fails[k]:
+                for i, c in enumerate(cols):
+                    base = ((c.text_props or {}) if c.kind == "text"
+                            else c.cell_props())
+                    props = {**base, **fail_props, **(c.fail_extra or {})}
+                    _value(ws, st, r, i, row[i], **props)
+            else:
+                for a, b in runs:
+                    ws.write_row(r, a, row[a:b])
+                for i in text_idx:
+                    s = row[i]
+                    if s:
+                        _text(ws, st, r, i, s, **(cols[i].text_props or {}))
+            r += 1
+    return first_row + n
+
+
+# --- sheets ------------------------------------------------------------------------------------
+_SUMMARY_CHARS = 4 * 14 + 44   # columns B-F
+
+
+def _wide_text(ws, st: _Styles, row: int, c0: int, c1: int, text, chars: float, **props) -> None:
+    """Long text wrapped across the merged cells c0..c1 of a row made tall enough for it."""
+    ws.set_row(row, 15 * _lines(text, chars))
+    props.update(text_wrap=True, valign="top")
+    ws.merge_range(row, c0, row, c1, None, st.get(**props))
+    _text(ws, st, row, c0, text, **props)
+
+
+def _page_setup(ws, header_row: int | None) -> None:
+    """Print landscape, one page wide, the header row repeated on every page."""
+    ws.set_landscape()
+    ws.fit_to_pages(1, 0)
+    if header_row is not None:
+        ws.repeat_rows(header_row)
+
+
+def _summary(ws, st: _Styles, report: Report) -> None:
+    ws.set_column(0, 0, 24)
+    ws.set_column(1, 4, 14)
+    ws.set_column(5, 5, 44)
+    r = 0
+    ws.set_row(r, 21)
+    _text(ws, st, r, 0, report.title, bold=True, font_size=14)
+    r += 1
+    model = "ideal (textbook) model" if report.ideal else "realistic model"
+    _text(ws, st, r, 0, f"{report.circuit} circuit, {report.timer_name}, {model}", italic=True)
+    r += 2
+    _text(ws, st, r, 0, "Result", bold=True, bottom=1)
+    r += 1
+    for label, text in report.summary:
+        _text(ws, st, r, 0, label, bold=True, valign="top")
+        _wide_text(ws, st, r, 1, 5, text, _SUMMARY_CHARS)
+        r += 1
+    r += 1
+    _text(ws, st, r, 0, "Cautions", bold=True, bottom=1)
+    r += 1
+    if report.cautions:
+        for text in report.cautions:
+            _text(ws, st, r, 0, "CAUTION", bold=True, bg_color=_CAUTION_FILL, border=1,
+                  valign="top")
+            _wide_text(ws, st, r, 1, 5, text, _SUMMARY_CHARS, bold=True)
+            r += 1
+    else:
+        _text(ws, st, r, 1, "No caution raised for this study.")
+        r += 1
+    r += 1
+    _text(ws, st, r, 0, "Spec", bold=True, bottom=1)
+    r += 1
+    if report.spec:
+        heads = ["Key", "Quantity", "Min", "Max", "Target", "As text (blank: open)"]
+        for c, h in enumerate(heads):
+            _text(ws, st, r, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1)
+        r += 1
+        for s in report.spec:
+            var = VARIABLES.get(s.column)
+            kind = var.fmt if var else "general"
+            nums = [x for x in (s.lo, s.hi, s.target) if _finite(x) is not None]
+            nf = _number_format(kind, nums)
+            _text(ws, st, r, 0, s.key)
+            _text(ws, st, r, 1, column_header(s.column))
+            for c, x in ((2, s.lo), (3, s.hi), (4, s.target)):
+                _value(ws, st, r, c, None if x is None else float(x), num_format=nf)
+            _text(ws, st, r, 5, _spec_text(s, var))
+            r += 1
+    else:
+        _text(ws, st, r, 1, "No [spec] limits in this study.")
+        r += 1
+    r += 1
+    _text(ws, st, r, 0, "Run", bold=True, bottom=1)
+    r += 1
+    for key, value in (report.run_info or {}).items():
+        _text(ws, st, r, 0, key, bold=True)
+        _value(ws, st, r, 1, value, align="left")
+        r += 1
+    r += 1
+    _text(ws, st, r, 0, "Numbers", bold=True, valign="top")
+    _wide_text(ws, st, r, 1, 5, _FORMAT_LINE, _SUMMARY_CHARS, italic=True)
+    _page_setup(ws, None)
+
+
+def _unit_for_eng(var) -> str:
+    if var is None:
+        return ""
+    if var.fmt == "pct":
+        return "%"
+    return {"Ω": "ohm", "°C": "C"}.get(var.unit, var.unit)
+
+
+def _spec_text(s, var) -> str:
+    unit = _unit_for_eng(var)
+    parts = []
+    lo, hi = _finite(s.lo), _finite(s.hi)
+    if lo is not None and hi is not None:
+        parts.append(f"{format_eng(lo, unit)} to {format_eng(hi, unit)}")
+    elif lo is not None:
+        parts.append(f"at least {format_eng(lo, unit)}")
+    elif hi is not None:
+        parts.append(f"at most {format_eng(hi, unit)}")
+    if _finite(s.target) is not None:
+        parts.append(f"target {format_eng(float(s.target), unit)}")
+    return ", ".join(parts)
+
+
+def _designs(ws, st: _Styles, report: Report) -> None:
+    df = report.designs.copy()
+    keys = [c for c in ["rank", "design", *report.part_columns] if c in df.columns]
+    flags = (df["flags"].fillna("").astype(str) if "flags" in df.columns
+             else pd.Series("", index=df.index))
+    feasible = (df["feasible"].fillna(False).astype(bool) if "feasible" in df.columns
+                else pd.Series(True, index=df.index))
+    fail = (~feasible.to_numpy()) | (flags.str.strip().to_numpy() != "")
+    df["verdict"] = np.where(fail, "fail", "pass")
+    rest = [c for c in df.columns if c not in keys and c not in ("verdict", "flags")]
+    names = keys + ["verdict"] + rest + (["flags"] if "flags" in df.columns else [])
+    cols = _columns(df, names)
+    for c in cols:
+        if c.name == "verdict":   # "pass" on light green; "fail" bold on the fail fill
+            c.width, c.fail_extra = 8.0, {"bold": True}
+            c.text_props = {"bg_color": _PASS_FILL, "align": "center"}
+    last = _write_table(ws, st, cols, 0, fail=fail,
+                        fail_props={"italic": True, "bg_color": _FAIL_FILL})
+    ws.freeze_panes(1, len(keys) + 1)
+    ws.autofilter(0, 0, max(last, 0), len(cols) - 1)
+    _page_setup(ws, 0)
+
+
+def _points(ws, st: _Styles, report: Report) -> None:
+    df = report.points
+    names = list(df.columns)
+    cols = _columns(df, names)
+    for c in cols:
+        if c.name == "flags":
+            c.text_props = {"bg_color": _FLAG_FILL, "italic": True}
+    total = len(df)
+    note = report.points_note
+    if total > _MAX_ROWS - 2:
+        note += f" (this sheet holds the first {_MAX_ROWS - 2} rows, its limit)"
+    _note_row(ws, st, 0, note)
+    last = _write_table(ws, st, cols, 1)
+    keys = sum(1 for n in names[:2] if n in ("design", "condition"))
+    ws.freeze_panes(2, keys)
+    if cols:
+        ws.autofilter(1, 0, max(last, 1), len(cols) - 1)
+    _page_setup(ws, 1)
+
+
+def _parts(ws, st: _Styles, report: Report) -> None:
+    heads = {"rank": "Rank", "design": "Design", "ref": "Ref.", "value_text": "Value",
+             "rkm": "RKM code", "series": "Series", "tolerance": "Tolerance",
+             "technology": "Technology", "rating": "Rating"}
+    df = report.parts
+    names = [n for n in heads if n in df.columns]
+    if "tolerance" in names:
+        df = df.assign(tolerance=pd.to_numeric(df["tolerance"], errors="coerce"))
+    fmt_kind = {"rank": "int", "design": "int", "tolerance": "pct"}
+    cols = []
+    for c in _columns(df, names, header=lambda n: heads[n]):
+        if c.kind == "num":
+            c.num_format = _FIXED.get(fmt_kind.get(c.name, ""), c.num_format)
+        cols.append(c)
+    last = _write_table(ws, st, cols, 0)
+    ws.freeze_panes(1, 0)
+    if cols:
+        ws.autofilter(0, 0, max(last, 0), len(cols) - 1)
+    _page_setup(ws, 0)
+
+
+# Check-sheet formulas [book: DOMAIN.md section 2; any circuits text]
+def _check_formulas(circuit: str, ref: dict, vc_given: bool, helpers: bool) -> dict[str, str]:
+    """Live formulas (without '=') for one Check row. ref maps ra/rb/r/c/vcc/vc/vd to cells."""
+    RA, RB, R, C, VCC, VD = (ref.get(k) for k in ("ra", "rb", "r", "c", "vcc", "vd"))
+    VC = ref["vc"] if vc_given else f"(2/3*{VCC})"
+    if circuit == "monostable":
+        if vc_given:
+            return {"pulse_width_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
+        return {"pulse_width_s": f"LN(3)*{R}*{C}"}
+    if circuit == "astable" and not helpers:
+        return {"frequency_hz": f"1/(LN(2)*({RA}+2*{RB})*{C})",
+                "duty": f"({RA}+{RB})/({RA}+2*{RB})"}
+    if circuit == "astable-symmetric" and not helpers:
+        return {"frequency_hz": f"1/(2*LN(2)*{R}*{C})", "duty": "1/2"}
+    if circuit == "astable":
+        th = (f"({RA}+{RB})*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))" if vc_given
+              else f"LN(2)*({RA}+{RB})*{C}")
+        tl = f"LN(2)*{RB}*{C}"
+    elif circuit == "astable-diode":
+        th = f"{RA}*{C}*LN(({VCC}-{VD}-{VC}/2)/({VCC}-{VD}-{VC}))"
+        tl = f"LN(2)*{RB}*{C}"
+    elif circuit == "astable-symmetric":
+        th = f"{R}*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))" if vc_given else f"LN(2)*{R}*{C}"
+        tl = f"LN(2)*{R}*{C}"
+    else:
+        return {}
+    TH, TL = ref["th"], ref["tl"]
+    return {"high_time_s": th, "low_time_s": tl, "frequency_hz": f"1/({TH}+{TL})",
+            "duty": f"{TH}/({TH}+{TL})"}
+
+
+_FORMULA_TEXT = {
+    "astable": "f = 1/(ln 2 · (RA + 2·RB) · C), duty = (RA + RB)/(RA + 2·RB); with a control "
+               "voltage Vc: tH = (RA + RB)·C·ln((VCC − Vc/2)/(VCC − Vc)), tL = ln 2 · RB · C",
+    "astable-diode": "tH = RA·C·ln((VCC − Vd − Vc/2)/(VCC − Vd − Vc)), tL = ln 2 · RB · C, "
+                     "f = 1/(tH + tL), duty = tH/(tH + tL); Vc = 2/3 VCC without a control voltage",
+    "astable-symmetric": "f = 1/(2 · ln 2 · R · C), duty = 50 % (rail-to-rail output); with a "
+                         "control voltage Vc: tH = R·C·ln((VCC − Vc/2)/(VCC − Vc)), tL = ln 2 · R · C",
+    "monostable": "pulse width = R·C·ln(VCC/(VCC − Vc)) = ln 3 · R · C with the internal divider",
+}
+
+
+def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
+    circuit, chk = report.circuit, report.check
+    outputs = {"monostable": ["pulse_width_s"]}.get(circuit, ["frequency_hz", "duty"])
+    if circuit == "bistable" or report.main_output is None:
+        _note_row(ws, st, 0, "Bistable (set/reset latch): there is no timing, so there is no "
+                             "formula to check.")
+        ws.set_column(0, 0, 90)
+        return
+    _note_row(ws, st, 0, _CHECK_NOTE)
+    _text(ws, st, 1, 0, f"Textbook formulas, {circuit} [book]: {_FORMULA_TEXT.get(circuit, '')}",
+          italic=True)
+    _text(ws, st, 2, 0, "Engine ideal: every non-ideality off (the textbook case); engine "
+          "realistic: the full model at this supply; formula vs ideal = formula / ideal - 1.",
+          italic=True)
+    if chk is None or len(chk) == 0:
+        _text(ws, st, 4, 0, "No design to check.")
+        return
+    n = len(chk)
+    parts = [c for c in report.part_columns if c in chk.columns]
+
+    def col(name: str, default: float = np.nan) -> np.ndarray:
+        if name not in chk.columns:
+            return np.full(n, default, float)
+        return pd.to_numeric(chk[name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+
+    vc_given = np.isfinite(col("control_voltage_v"))
+    helpers = circuit == "astable-diode" or (circuit in ("astable", "astable-symmetric")
+                                            and bool(vc_given.any()))
+    # layout: inputs, then (helpers), then per output: formula, ideal, realistic, difference
+    layout = [("rank", "Rank", "int", "key"), ("design", "Design", "int", "key")]
+    layout += [(p, column_header(p), VARIABLES[p].fmt if p in VARIABLES else "general", "input")
+               for p in parts]
+    layout += [("vcc_v", column_header("vcc_v"), "fixed2", "input"),
+               ("control_voltage_v", column_header("control_voltage_v") + " (blank: divider)",
+                "fixed2", "input")]
+    if circuit == "astable-diode":
+        layout.append(("diode_drop_v", "Diode drop [V]", "fixed2", "input"))
+    if helpers:
+        layout += [("f:high_time_s", "High time [s] formula", "eng", "formula"),
+                   ("f:low_time_s", "Low time [s] formula", "eng", "formula")]
+    for out in outputs:
+        h = column_header(out)
+        kind = VARIABLES[out].fmt
+        layout += [(f"f:{out}", f"{h} formula", kind, "formula"),
+                   (f"ideal_{out}", f"{h} engine ideal", kind, "engine"),
+                   (f"real_{out}", f"{h} engine realistic", kind, "engine"),
+                   (f"d:{out}", f"{VARIABLES[out].label}: formula vs ideal", "diff", "diff")]
+    pos = {name: i for i, (name, *_rest) in enumerate(layout)}
+    ideal = {o: col(f"ideal_{o}") for o in outputs}
+    values = {name: col(name, 0.0 if name == "diode_drop_v" else np.nan) for name, *_r in layout
+              if not name.startswith(("f:", "d:"))}
+    if "frequency_hz" in ideal:   # engine's own high/low times, as cached helper results
+        f, d = ideal["frequency_hz"], ideal.get("duty", np.full(n, np.nan))
+        ideal["high_time_s"], ideal["low_time_s"] = d / f, (1 - d) / f
+    fmts = {}
+    for name, head, kind, role in layout:
+        data = values.get(name, ideal.get(name[2:], np.array([])))
+        nf = "0.000%" if kind == "diff" else _number_format(kind, data, name)
+        props = {"num_format": nf, "border": 1, "border_color": "#BFBFBF"}
+        if role == "input":
+            props.update(font_color=_INPUT_FONT, bg_color=_INPUT_FILL)
+        elif role == "engine":
+            props.update(font_color="#404040")
+        elif role == "formula":
+            props.update(bold=True)
+        fmts[name] = props
+    widths = [max(12.0, min(18.0, max(len(w) for w in h.split()) + 2)) for _, h, *_ in layout]
+    for i, w in enumerate(widths):
+        ws.set_column(i, i, w)
+    hr = 4
+    _header_row(ws, st, hr, [h for _, h, *_ in layout], widths)
+    for k in range(n):
+        r = hr + 1 + k
+        cell = {name: xl_rowcol_to_cell(r, pos[name]) for name in pos}
+        ref = {"ra": cell.get("ra_ohm"), "rb": cell.get("rb_ohm"), "r": cell.get("r_ohm"),
+               "c": cell.get("c_f"), "vcc": cell["vcc_v"], "vc": cell["control_voltage_v"],
+               "vd": cell.get("diode_drop_v"), "th": cell.get("f:high_time_s"),
+               "tl": cell.get("f:low_time_s")}
+        formulas = _check_formulas(circuit, ref, bool(vc_given[k]), helpers)
+        for name, head, kind, role in layout:
+            c = pos[name]
+            if role in ("key", "input", "engine"):
+                v = values[name][k]
+                if name == "control_voltage_v" and not vc_given[k]:
+                    _value(ws, st, r, c, None, **{**fmts[name], "bg_color": _HEADER_FILL,
+                                                  "font_color": None})
+                else:
+                    _value(ws, st, r, c, v, **fmts[name])
+            elif role == "formula":
+                out = name[2:]
+                cached_v = _finite(ideal[out][k]) if cached else 0
+                ws.write_formula(r, c, "=" + formulas[out], st.get(**fmts[name]),
+                                 0 if cached_v is None else cached_v)
+            else:
+                out = name[2:]
+                fc, ic = cell[f"f:{out}"], cell[f"ideal_{out}"]
+                ws.write_formula(r, c, f"={fc}/{ic}-1", st.get(**fmts[name]), 0)
+    ws.freeze_panes(hr + 1, 2)
+    _page_setup(ws, hr)
+
+
+def _study(ws, st: _Styles, report: Report, file_name: str) -> None:
+    """Row 1 a note, row 2 the header, data from row 3, columns A-D (the reader relies on it)."""
+    ws.set_column(0, 0, 14)
+    ws.set_column(1, 1, 22)
+    ws.set_column(2, 2, 40, st.get(num_format="@"))
+    ws.set_column(3, 3, 70)
+    _text(ws, st, 0, 0, "Edit the Value column (TOML text), save, then re-run with: "
+          f"timer-sweep run {file_name}", italic=True)
+    for c, h in enumerate(("Section", "Key", "Value (TOML)", "Meaning")):
+        _text(ws, st, 1, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1)
+    for i, (section, key, value, meaning) in enumerate(report.study_rows):
+        r = 2 + i
+        _text(ws, st, r, 0, section)
+        _text(ws, st, r, 1, key)
+        _text(ws, st, r, 2, value, num_format="@")
+        _text(ws, st, r, 3, meaning)
+    ws.freeze_panes(2, 0)
+    _page_setup(ws, 1)
+
+
+def _notes(ws, st: _Styles, report: Report) -> None:
+    ws.set_column(0, 0, 18)
+    ws.set_column(1, 1, 110)
+    for c, h in enumerate(("Topic", "Text")):
+        _text(ws, st, 0, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1)
+    rows = [(t, x, {}) for t, x in report.notes]
+    rows += [("Caution", x, {"bold": True}) for x in report.cautions]
+    rows += [("Number formats", _FORMAT_LINE, {}), ("Safety", _SAFETY_LINE, {"bold": True})]
+    for i, (topic, text, props) in enumerate(rows):
+        r = 1 + i
+        ws.set_row(r, 15 * _lines(text, 110))
+        _text(ws, st, r, 0, topic, bold=True, valign="top")
+        _text(ws, st, r, 1, text, text_wrap=True, valign="top", **props)
+    ws.freeze_panes(1, 0)
+    _page_setup(ws, 0)
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+# --- the workbook --------------------------------------------------------------------------
+def write_workbook(path: Path, report: Report, *, cached_results: bool = True) -> None:
+    """Write ``report`` as an XLSX workbook at ``path``, atomically.
+
+    The workbook is written to a temporary file in the same folder and renamed onto ``path``;
+    on any error the temporary file is removed and ``path`` is left as it was.
+    ``cached_results=False`` stores 0 as the cached result of every Check formula (for tests that
+    prove a spreadsheet program really recalculated)."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".xlsx.tmp", dir=path.parent)
+    os.close(fd)
+    try:
+        wb = xlsxwriter.Workbook(tmp, {"constant_memory": True, "strings_to_formulas": False,
+                                       "strings_to_numbers": False, "strings_to_urls": False,
+                                       "nan_inf_to_errors": False})
+        st = _Styles(wb)
+        sheets = {name: wb.add_worksheet(name) for name in SHEETS}
+        _summary(sheets["Summary"], st, report)
+        _designs(sheets["Designs"], st, report)
+        _points(sheets["Points"], st, report)
+        _parts(sheets["Parts"], st, report)
+        _check(sheets["Check"], st, report, cached_results)
+        _study(sheets["Study"], st, report, path.name)
+        _notes(sheets["Notes"], st, report)
+        sheets["Summary"].activate()
+        wb.close()
+        os.chmod(tmp, 0o666 & ~_umask())   # mkstemp makes it private; give it a normal mode
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise

@@ -1,0 +1,343 @@
+"""The realistic model against an independent simulation of the timing network.
+
+The reference here is scipy's general-purpose ODE solver (`solve_ivp`, DOP853, threshold events)
+integrating Kirchhoff's current law written in this file from the circuit description, not from
+timer-sweep's formulas [book: nodal analysis and the 555 block diagram, e.g. Horowitz & Hill,
+*The Art of Electronics*, oscillators and timers; Sedra & Smith, *Microelectronic Circuits*]:
+
+- timing node X (the capacitor, C_eff, with leakage conductance g and the comparator input
+  current i_b drawn from it): C dV/dt = i_in(V) - g V - i_b
+- discharge node D (no capacitance, so it is solved algebraically at every step): RA from VCC,
+  RB to X, the discharge transistor to ground as a source V_sat0 in series with R_sat when on,
+  and in the diode circuit a diode from D to X modelled as a constant forward drop that conducts
+  only when forward biased (current >= 0)
+- symmetric astable: the output as a source (V_OH loaded, or V_OL loaded) behind the stage's
+  resistance, the element model timer-sweep uses
+- comparators switch the output a propagation delay after the node crosses a threshold: the
+  simulation keeps integrating the same equations for t_pd before switching.
+
+Part data (the capacitor's temperature curve, DC-bias curve and leakage rule) come from
+sweep.physics.parts: the simulation checks timing dynamics, not capacitor data. Both are run on
+the same element values, so the only differences left are the model's algebra and the solver's
+error; 0.5 % is a generous bound for an exact model and a 1e-10 solver, while a wrong term
+(a missing bias current, the wrong Thevenin resistance, the delay on the wrong side) is larger.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+from sweep.models import load_timer
+from sweep.physics import CAPACITORS, FLAG_BITS, Load, Parts, evaluate
+from sweep.physics.parts import (capacitance_temperature_factor, dc_bias_factor,
+                                 leakage_conductance_s)
+
+TIMERS = {name: load_timer(name) for name in ("bipolar", "cmos")}
+TIMED = ("astable", "astable-diode", "astable-symmetric", "monostable")
+RTOL_ODE = 1e-10
+TOLERANCE = 0.005          # agreement required, relative
+N_DESIGNS = 480
+MIN_COMPARED = 200
+STALL = FLAG_BITS["timing-stalls"]
+
+
+@dataclass(frozen=True)
+class Network:
+    """Element values of one design at its operating point (SI units)."""
+    circuit: str
+    vcc: float
+    v_up: float            # upper threshold
+    v_lo: float            # lower threshold
+    c: float               # effective capacitance
+    g_leak: float          # capacitor leakage conductance
+    i_b: float             # comparator input current drawn from X
+    ra: float
+    rb: float
+    r: float
+    v_sat0: float
+    r_sat: float
+    v_diode: float
+    v_oh: float            # symmetric astable: output source when high, when low
+    r_oh: float
+    v_ol: float
+    r_ol: float
+    t_pd: float
+
+    @property
+    def tau_scale(self) -> float:
+        """An upper bound on any time constant of the network, for the integration window."""
+        r = {"astable": self.ra + self.rb, "astable-diode": self.ra + self.rb,
+             "astable-symmetric": self.r + max(self.r_oh, self.r_ol)}.get(self.circuit, self.r)
+        return r * self.c
+
+
+def network(circuit, timer, parts, load, *, vcc, temperature, c, ra=np.nan, rb=np.nan, r=np.nan,
+            control_voltage=np.nan) -> Network:
+    """Element values from the data records, written out here rather than taken from the model."""
+    # R(T) = R25 (1 + alpha (T - 25 C)) [cp: DOMAIN.md section 4]
+    k_r = 1.0 + parts.resistor_tempco_per_k * (temperature - 25.0)
+    # thresholds: control voltage (internal divider, or driven) and half of it [book]
+    v_up = timer.threshold_fraction * vcc if math.isnan(control_voltage) else control_voltage
+    cap = parts.technology
+    # the model takes the DC-bias loss at the mean node voltage of the ramp: 3/4 of the upper
+    # threshold in an astable (between Vc/2 and Vc), half of it in the monostable (0 to Vc)
+    v_mean = (0.5 if circuit == "monostable" else 0.75) * v_up
+    c_eff = (c * float(capacitance_temperature_factor(cap, temperature))
+             * float(dc_bias_factor(cap, v_mean, parts.capacitor_voltage_v, parts.dc_bias_loss))
+             + parts.stray_capacitance_f)
+    g_leak = float(leakage_conductance_s(cap, c, parts.capacitor_voltage_v, temperature))
+    # output stage as a straight line V = V0 -/+ R I against the load line [derived]
+    v_oh, v_ol = vcc - timer.high_drop_v, timer.low_drop_v
+    if math.isfinite(load.resistance_ohm):
+        if load.to == "ground":     # the load hangs on the output when it is high
+            i = max(0.0, (v_oh - load.forward_voltage_v) / (load.resistance_ohm + timer.high_ohm))
+            v_oh -= timer.high_ohm * i
+        else:                       # the load pulls the output up when it is low
+            i = max(0.0, (vcc - load.forward_voltage_v - v_ol)
+                    / (load.resistance_ohm + timer.low_ohm))
+            v_ol += timer.low_ohm * i
+    return Network(circuit=circuit, vcc=vcc, v_up=v_up, v_lo=0.5 * v_up, c=c_eff, g_leak=g_leak,
+                   i_b=timer.threshold_current_a, ra=ra * k_r, rb=rb * k_r, r=r * k_r,
+                   v_sat0=timer.saturation_v, r_sat=timer.saturation_ohm,
+                   v_diode=parts.diode_drop_v, v_oh=v_oh, r_oh=timer.high_ohm, v_ol=v_ol,
+                   r_ol=timer.low_ohm, t_pd=timer.propagation_delay_s)
+
+
+# --- node equations ------------------------------------------------------------------------
+def node_d_off(n: Network, v):
+    """Discharge node with the transistor off and no diode current: RA and RB in series."""
+    return (n.vcc / n.ra + v / n.rb) / (1.0 / n.ra + 1.0 / n.rb)
+
+
+def node_d_on(n: Network, v):
+    """Discharge node with the transistor on: KCL with RA to VCC, RB to X, V_sat0 + R_sat."""
+    return ((n.vcc / n.ra + v / n.rb + n.v_sat0 / n.r_sat)
+            / (1.0 / n.ra + 1.0 / n.rb + 1.0 / n.r_sat))
+
+
+def current_into_x(n: Network, v, high: bool):
+    """Current [A] delivered to the timing node by the network in each output state."""
+    if n.circuit == "astable":
+        vd = node_d_off(n, v) if high else node_d_on(n, v)
+        return (vd - v) / n.rb
+    if n.circuit == "astable-diode":
+        if high:
+            # the diode clamps D at most Vd above X; it is off when RB alone keeps D lower.
+            # All of RA's current then reaches X (through RB, the diode, or both).
+            vd = min(v + n.v_diode, node_d_off(n, v))
+            return (n.vcc - vd) / n.ra
+        vd = node_d_on(n, v)
+        assert vd - v < n.v_diode          # diode reverse biased while discharging
+        return (vd - v) / n.rb
+    if n.circuit == "astable-symmetric":
+        return (n.v_oh - v) / (n.r + n.r_oh) if high else (n.v_ol - v) / (n.r + n.r_ol)
+    if n.circuit == "monostable":
+        return (n.vcc - v) / n.r
+    raise ValueError(n.circuit)
+
+
+def phase(n: Network, v0: float, high: bool, t_window: float):
+    """Integrate one output state from v0 until the node crosses its threshold, then for the
+    propagation delay. Returns (duration, end voltage), or None if the threshold is never
+    reached within t_window."""
+    def rhs(t, y):
+        v = y[0]
+        return [(current_into_x(n, v, high) - n.g_leak * v - n.i_b) / n.c]
+
+    target = n.v_up if high else n.v_lo
+
+    def crossing(t, y):
+        return y[0] - target
+    crossing.terminal = True
+    crossing.direction = 1.0 if high else -1.0
+    opts = dict(method="DOP853", rtol=RTOL_ODE, atol=1e-13 * n.vcc)
+    sol = solve_ivp(rhs, (0.0, t_window), [v0], events=crossing, max_step=t_window / 50, **opts)
+    assert sol.status >= 0, sol.message
+    if sol.t_events[0].size == 0:
+        return None
+    t_cross, v_cross = sol.t_events[0][0], sol.y_events[0][0][0]
+    if n.t_pd == 0.0:
+        return t_cross, v_cross
+    run_on = solve_ivp(rhs, (0.0, n.t_pd), [v_cross], **opts)
+    return t_cross + n.t_pd, run_on.y[0, -1]
+
+
+def simulate(n: Network, max_cycles: int = 8):
+    """Astable: (tH, tL) of the settled cycle, starting from an empty capacitor at power-up.
+    Monostable: (pulse width, None) from the idle voltage. None if the timer stalls."""
+    window = 200.0 * n.tau_scale
+    if n.circuit == "monostable":
+        # at rest the discharge transistor holds X: KCL with R to VCC, V_sat0 + R_sat, leakage
+        v_idle = ((n.vcc / n.r + n.v_sat0 / n.r_sat - n.i_b)
+                  / (1.0 / n.r + 1.0 / n.r_sat + n.g_leak))
+        res = phase(n, v_idle, True, window)
+        return None if res is None else (res[0], None)
+    v, last = 0.0, None
+    for _ in range(max_cycles):
+        hi = phase(n, v, True, window)
+        if hi is None:
+            return None
+        lo = phase(n, hi[1], False, window)
+        if lo is None:
+            return None
+        v = lo[1]
+        cycle = (hi[0], lo[0])
+        if last is not None and all(abs(a - b) <= 1e-9 * a for a, b in zip(cycle, last)):
+            return cycle + (hi[1],)
+        last = cycle
+    raise AssertionError(f"period did not settle in {max_cycles} cycles: {n}")
+
+
+# --- random designs --------------------------------------------------------------------------
+RATINGS = (6.3, 10.0, 16.0, 25.0, 50.0, 100.0)
+
+
+def random_designs(seed: int, count: int):
+    rng = np.random.default_rng(seed)
+
+    def log_u(lo, hi):
+        return float(np.exp(rng.uniform(math.log(lo), math.log(hi))))
+
+    out = []
+    for i in range(count):
+        circuit = TIMED[i % 4]
+        name = ("bipolar", "cmos")[(i // 4) % 2]
+        timer = TIMERS[name]
+        vcc = float(rng.uniform(timer.min_v, timer.max_v))
+        cap = str(rng.choice(sorted(CAPACITORS)))
+        rating = float(rng.choice([x for x in RATINGS if x >= vcc]))
+        parts = Parts(capacitor=cap, capacitor_voltage_v=rating,
+                      resistor_tempco_per_k=float(rng.choice([100e-6, -300e-6, 25e-6])),
+                      stray_capacitance_f=float(rng.choice([2e-12, 5e-12, 20e-12])))
+        kind = int(rng.integers(4))
+        load = [Load(), Load(resistance_ohm=log_u(300.0, 100e3)),
+                Load(resistance_ohm=log_u(300.0, 100e3), to="supply"),
+                Load(resistance_ohm=log_u(300.0, 10e3), forward_voltage_v=1.9)][kind]
+        cv = float(rng.uniform(0.45, 0.8) * vcc) if rng.random() < 0.25 else math.nan
+        kw = dict(vcc=vcc, temperature=float(rng.uniform(-40.0, 105.0)),
+                  c=log_u(100e-12, 1000e-6), control_voltage=cv)
+        if circuit in ("astable", "astable-diode"):
+            kw.update(ra=log_u(1e3, 10e6), rb=log_u(1e3, 10e6))
+        else:
+            kw.update(r=log_u(1e3, 10e6))
+        out.append((circuit, name, parts, load, kw))
+    return out
+
+
+def model_times(circuit, timer, parts, load, kw):
+    o = evaluate(circuit, timer, parts, load, **kw)
+    return {k: float(v) for k, v in o.items()}
+
+
+def diode_turns_off(n: Network, v_top: float) -> bool:
+    """True if, at the top of the ramp, RB alone would keep D less than Vd above X (so the
+    diode carries no current for part of the high phase)."""
+    return node_d_off(n, v_top) - v_top < n.v_diode
+
+
+def deviations(circuit, m, sim):
+    """Relative deviations of the model from the simulation."""
+    if circuit == "monostable":
+        return {"pulse_width_s": m["pulse_width_s"] / sim[0] - 1.0}
+    t_h, t_l = sim[0], sim[1]
+    want = {"high_time_s": t_h, "low_time_s": t_l, "frequency_hz": 1.0 / (t_h + t_l),
+            "duty": t_h / (t_h + t_l)}
+    return {k: m[k] / w - 1.0 for k, w in want.items()}
+
+
+def test_model_matches_simulation():
+    worst, worst_case = 0.0, None
+    compared, stalled, diode_off = {}, 0, 0
+    for circuit, name, parts, load, kw in random_designs(20240, N_DESIGNS):
+        timer = TIMERS[name]
+        m = model_times(circuit, timer, parts, load, kw)
+        n = network(circuit, timer, parts, load, **kw)
+        sim = simulate(n)
+        if int(m["flag_mask"]) & STALL:
+            # the model says the node never reaches a threshold: neither may the simulation,
+            # within 200 of the network's longest time constant
+            assert sim is None, (circuit, name, parts, load, kw, sim)
+            stalled += 1
+            continue
+        assert sim is not None, ("simulation stalls, model does not", circuit, name, kw)
+        if circuit == "astable-diode" and diode_turns_off(n, sim[2]):
+            diode_off += 1          # compared all the same: the model charges in two segments
+        for key, dev in deviations(circuit, m, sim).items():
+            assert math.isfinite(dev)
+            if abs(dev) > worst:
+                worst, worst_case = abs(dev), (key, circuit, name, parts, load, kw)
+        compared[(circuit, name)] = compared.get((circuit, name), 0) + 1
+    total = sum(compared.values())
+    print(f"\nODE reference: {total} designs compared, {stalled} stall in both, "
+          f"{diode_off} diode circuits with the diode off part of the time; "
+          f"largest relative deviation {worst:.3e} ({worst_case[0]}, {worst_case[1]}, "
+          f"{worst_case[2]})")
+    print("per circuit and timer:", compared)
+    assert total >= MIN_COMPARED
+    assert len(compared) == 8 and min(compared.values()) >= 15
+    assert stalled >= 1                 # the stall branch was exercised
+    assert diode_off >= 10              # the diode-off segment was exercised
+    assert worst < TOLERANCE, worst_case
+
+
+@pytest.mark.parametrize("circuit", TIMED)
+@pytest.mark.parametrize("name", ["bipolar", "cmos"])
+def test_stalls_agree_with_simulation(circuit, name):
+    # [cp] aluminium electrolytic leakage 0.01 C V: 1000 uF rated 16 V leaks 160 uA, about
+    # 100 kOhm, so a 3.3 MOhm timing resistor can never lift the node to its upper threshold
+    timer = TIMERS[name]
+    parts = Parts(capacitor="electrolytic", capacitor_voltage_v=16.0)
+    kw = dict(vcc=12.0, temperature=60.0, c=1000e-6)
+    kw.update(dict(ra=1e6, rb=3.3e6) if circuit in ("astable", "astable-diode") else dict(r=3.3e6))
+    m = model_times(circuit, timer, parts, Load(), kw)
+    assert int(m["flag_mask"]) & STALL
+    assert simulate(network(circuit, timer, parts, Load(), **kw)) is None
+
+
+def test_simulation_detects_a_wrong_model():
+    # the harness itself must be able to fail: leaving out the 0.1 uA threshold current at
+    # 10 MOhm and 5 V moves the pulse by several percent [ds-bip; derived], far beyond 0.5 %
+    timer = TIMERS["bipolar"]
+    kw = dict(vcc=5.0, temperature=25.0, c=10e-9, r=10e6)
+    t_sim = simulate(network("monostable", timer, Parts(capacitor="C0G"), Load(), **kw))[0]
+    no_bias = replace(timer, threshold_current_a=0.0)
+    t_no_bias = simulate(network("monostable", no_bias, Parts(capacitor="C0G"), Load(), **kw))[0]
+    assert abs(t_no_bias / t_sim - 1.0) > 0.02
+    m = model_times("monostable", timer, Parts(capacitor="C0G"), Load(), kw)
+    assert abs(m["pulse_width_s"] / t_sim - 1.0) < 1e-5
+    assert abs(m["pulse_width_s"] / t_no_bias - 1.0) > 0.02
+
+
+@pytest.mark.parametrize("name, vcc, ra, rb", [("bipolar", 5.0, 100e3, 1e3),
+                                              ("cmos", 9.0, 1e6, 47e3),
+                                              ("bipolar", 15.0, 470e3, 47e3)])
+def test_astable_diode_when_rb_is_small(name, vcc, ra, rb):
+    # diode across RB [derived: DOMAIN.md section 2] modelled as a constant drop that only
+    # conducts forward; with RB much smaller than RA the drop across RB stays below Vd
+    timer = TIMERS[name]
+    parts = Parts(capacitor="C0G")
+    kw = dict(vcc=vcc, temperature=25.0, c=10e-9, ra=ra, rb=rb)
+    m = model_times("astable-diode", timer, parts, Load(), kw)
+    n = network("astable-diode", timer, parts, Load(), **kw)
+    sim = simulate(n)
+    assert diode_turns_off(n, sim[2])
+    dev = deviations("astable-diode", m, sim)
+    assert abs(dev["high_time_s"]) < TOLERANCE, dev
+
+
+def test_astable_diode_low_supply_does_not_stall():
+    # CMOS timer at 2.0 V [ds-cmos: supply 2-15 V]: VCC - Vd = 1.3 V < 2/3 VCC = 1.33 V, yet with
+    # RA = RB the diode is off above 0.6 V on the capacitor, and RA+RB charge it towards 2 V
+    timer = TIMERS["cmos"]
+    parts = Parts(capacitor="C0G")
+    kw = dict(vcc=2.0, temperature=25.0, c=10e-9, ra=100e3, rb=100e3)
+    n = network("astable-diode", timer, parts, Load(), **kw)
+    sim = simulate(n)
+    assert sim is not None and diode_turns_off(n, sim[2])
+    m = model_times("astable-diode", timer, parts, Load(), kw)
+    assert not int(m["flag_mask"]) & STALL
+    assert abs(deviations("astable-diode", m, sim)["high_time_s"]) < TOLERANCE

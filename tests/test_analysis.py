@@ -1,0 +1,235 @@
+"""Per-design analysis: worst case, Monte Carlo yield, elasticities, ranking, determinism."""
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import replace
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy.stats import norm
+
+from sweep.analysis import Options, analyse_block, rank_designs
+from sweep.physics import evaluate
+from sweep.study import parse_study
+
+QUIET_TIMER = dict(accuracy_astable=0.0, accuracy_monostable=0.0, drift_astable_ppm_per_k=0.0,
+                   drift_monostable_ppm_per_k=0.0, supply_sensitivity_astable_per_v=0.0,
+                   supply_sensitivity_monostable_per_v=0.0)
+
+
+def study_of(text: str, **timer_changes):
+    s = parse_study(text, "t.toml")
+    if timer_changes:
+        s = replace(s, timer=replace(s.timer, **timer_changes))
+    return s
+
+
+def test_monte_carlo_yield_matches_the_normal_distribution():
+    # With only C toleranced (normal, tolerance = 3 sigma) the ideal frequency is f0 / m with
+    # m ~ N(1, sigma), so P(lo <= f <= hi) = Phi((f0/lo - 1)/sigma) - Phi((f0/hi - 1)/sigma)
+    # [book: any probability text; scipy.stats.norm as the outside reference].
+    s = study_of("""
+[study]
+circuit = "astable"
+[design]
+ra = "10k"
+rb = "47k"
+c = "100n"
+[parts]
+resistor_tolerance = "0%"
+capacitor_tolerance = "10%"
+[spec]
+frequency = { min = "135Hz", max = "145Hz" }
+[analysis]
+monte_carlo = 100000
+seed = 42
+""", **QUIET_TIMER)
+    df, _ = analyse_block(s, 0, 1, Options(ideal=True))
+    f0 = 1 / (math.log(2) * (10e3 + 2 * 47e3) * 100e-9)
+    sigma = 0.10 / 3
+    p = norm.cdf((f0 / 135 - 1) / sigma) - norm.cdf((f0 / 145 - 1) / sigma)
+    se = math.sqrt(p * (1 - p) / 100000)
+    assert abs(df["yield"].iloc[0] - p) < 4 * se, (df["yield"].iloc[0], p)
+    assert 0.1 < p < 0.9        # the check means something only away from 0 and 1
+
+
+def test_uniform_distribution_yield():
+    # uniform over +-tol: P(m in [a, b]) = (b - a) / (2 tol) [book]
+    s = study_of("""
+[study]
+circuit = "monostable"
+[design]
+r = "100k"
+c = "1u"
+[parts]
+resistor_tolerance = "0%"
+capacitor_tolerance = "20%"
+[spec]
+pulse_width = { min = "0.1s", max = "0.12s" }
+[analysis]
+monte_carlo = 100000
+distribution = "uniform"
+""", **QUIET_TIMER)
+    df, _ = analyse_block(s, 0, 1, Options(ideal=True))
+    t0 = math.log(3) * 100e3 * 1e-6
+    a, b = max(0.1 / t0, 0.8), min(0.12 / t0, 1.2)
+    p = (b - a) / 0.4
+    assert abs(df["yield"].iloc[0] - p) < 4 * math.sqrt(p * (1 - p) / 100000)
+
+
+SMALL = """
+[study]
+circuit = "{circuit}"
+timer = "{timer}"
+[design]
+{parts}
+[conditions]
+vcc = {{ min = {vlo}, max = {vhi}, steps = 2 }}
+temperature = {{ min = -20, max = 60, steps = 3 }}
+[parts]
+resistor_tolerance = "5%"
+capacitor_tolerance = "10%"
+capacitor = "{cap}"
+[spec]
+supply_current = {{ max = "1A" }}
+[analysis]
+monte_carlo = 0
+"""
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_worst_case_equals_brute_force_enumeration(seed):
+    # Brute force: every corner of every toleranced part at every condition point, each
+    # evaluated on its own with the physics function, plus the timer's band [derived].
+    rng = np.random.default_rng(seed)
+    circuit = ["astable", "astable-diode", "astable-symmetric", "monostable"][seed % 4]
+    timer = ["bipolar", "cmos"][seed % 2]
+    parts = ({"ra": rng.choice([1e3, 4.7e3, 22e3]), "rb": rng.choice([10e3, 47e3])}
+             if circuit.startswith("astable") and circuit != "astable-symmetric" else
+             {"r": rng.choice([10e3, 100e3])})
+    parts["c"] = rng.choice([10e-9, 1e-6])
+    text = SMALL.format(circuit=circuit, timer=timer, cap=rng.choice(["X7R", "C0G", "electrolytic"]),
+                        parts="\n".join(f'{k} = {float(v)!r}' for k, v in parts.items()),
+                        vlo=5.0, vhi=12.0)
+    s = study_of(text)
+    df, _ = analyse_block(s, 0, 1)
+    keys = list(parts)
+    tol = {k: (0.10 if k == "c" else 0.05) for k in keys}
+    main = "pulse_width_s" if circuit == "monostable" else "period_s"
+    acc = s.timer.accuracy_monostable if circuit == "monostable" else s.timer.accuracy_astable
+    drift = (s.timer.drift_monostable_ppm_per_k if circuit == "monostable" else s.timer.drift_astable_ppm_per_k) * 1e-6
+    sens = (s.timer.supply_sensitivity_monostable_per_v if circuit == "monostable"
+            else s.timer.supply_sensitivity_astable_per_v)
+    vnom = 8.5
+    lo, hi = {"t": np.inf, "duty": np.inf, "i": np.inf}, {"t": -np.inf, "duty": -np.inf, "i": -np.inf}
+    for signs in itertools.product((-1, 1), repeat=len(keys)):
+        kw = {k: parts[k] * (1 + sg * tol[k]) for k, sg in zip(keys, signs)}
+        for v in (5.0, 12.0):
+            for t in (-20.0, 20.0, 60.0):
+                out = evaluate(circuit, s.timer, s.parts, s.load, vcc=v, temperature=t, **kw)
+                band = acc + drift * abs(t - 25) + sens * abs(v - vnom)
+                tt = float(out[main])
+                lo["t"], hi["t"] = min(lo["t"], tt * (1 - band)), max(hi["t"], tt * (1 + band))
+                lo["i"] = min(lo["i"], float(out["supply_current_a"]))
+                hi["i"] = max(hi["i"], float(out["supply_current_a"]))
+                if circuit != "monostable":
+                    lo["duty"], hi["duty"] = min(lo["duty"], float(out["duty"])), max(hi["duty"], float(out["duty"]))
+    if circuit == "monostable":
+        assert df["pulse_width_s_wc_min"].iloc[0] == pytest.approx(lo["t"], rel=1e-12)
+        assert df["pulse_width_s_wc_max"].iloc[0] == pytest.approx(hi["t"], rel=1e-12)
+    else:
+        assert df["frequency_hz_wc_max"].iloc[0] == pytest.approx(1 / lo["t"], rel=1e-12)
+        assert df["frequency_hz_wc_min"].iloc[0] == pytest.approx(1 / hi["t"], rel=1e-12)
+        assert df["duty_wc_min"].iloc[0] == pytest.approx(lo["duty"], rel=1e-12)
+        assert df["duty_wc_max"].iloc[0] == pytest.approx(hi["duty"], rel=1e-12)
+    assert df["supply_current_a_wc_min"].iloc[0] == pytest.approx(lo["i"], rel=1e-12)
+    assert df["supply_current_a_wc_max"].iloc[0] == pytest.approx(hi["i"], rel=1e-12)
+
+
+def test_zero_tolerance_worst_case_is_the_condition_range_and_yield_is_0_or_1():
+    text = """
+[study]
+circuit = "astable"
+[design]
+ra = ["1k", "10k"]
+rb = ["10k", "100k"]
+c = "100n"
+[conditions]
+vcc = { min = 6, max = 12, steps = 3 }
+temperature = { min = -20, max = 70, steps = 4 }
+[parts]
+resistor_tolerance = "0%"
+capacitor_tolerance = "0%"
+[spec]
+frequency = { min = "60Hz", max = "500Hz" }
+[analysis]
+monte_carlo = 200
+"""
+    s = study_of(text, **QUIET_TIMER)
+    df, _ = analyse_block(s, 0, s.n_designs)
+    for o in ("frequency_hz", "duty", "supply_current_a"):
+        assert np.allclose(df[f"{o}_wc_min"], df[f"{o}_min"], rtol=1e-12)
+        assert np.allclose(df[f"{o}_wc_max"], df[f"{o}_max"], rtol=1e-12)
+    y = df["yield"].to_numpy()
+    assert set(np.unique(y)) <= {0.0, 1.0}
+    inside = (df["frequency_hz_min"] >= 60) & (df["frequency_hz_max"] <= 500)
+    assert ((y == 1.0) == inside.to_numpy()).all()
+    assert inside.any() and (~inside).any()
+
+
+def test_elasticities_of_the_ideal_astable_match_the_derivatives():
+    # f = 1/(ln2 (RA + 2 RB) C): d ln f / d ln RA = -RA/(RA+2RB), RB: -2RB/(RA+2RB), C: -1 [book]
+    s = study_of("""
+[study]
+circuit = "astable"
+[design]
+ra = ["1k", "33k", "470k"]
+rb = ["2.2k", "100k"]
+c = ["1n", "10u"]
+[analysis]
+monte_carlo = 0
+""")
+    df, _ = analyse_block(s, 0, s.n_designs, Options(ideal=True))
+    ra, rb = df["ra_ohm"].to_numpy(), df["rb_ohm"].to_numpy()
+    assert np.allclose(df["sens_ra"], -ra / (ra + 2 * rb), atol=1e-6)
+    assert np.allclose(df["sens_rb"], -2 * rb / (ra + 2 * rb), atol=1e-6)
+    assert np.allclose(df["sens_c"], -1.0, atol=1e-6)
+
+
+def test_same_seed_same_results_and_block_split_does_not_matter():
+    s = study_of(open("studies/buzzer.toml", encoding="utf-8").read().replace("monte_carlo = 500", "monte_carlo = 64"))
+    whole, _ = analyse_block(s, 0, 300)
+    again, _ = analyse_block(s, 0, 300)
+    pd.testing.assert_frame_equal(whole, again)
+    parts = pd.concat([analyse_block(s, a, b)[0] for a, b in ((0, 7), (7, 150), (150, 300))],
+                      ignore_index=True)
+    pd.testing.assert_frame_equal(whole, parts)
+    other = replace(s, seed=s.seed + 1)
+    moved, _ = analyse_block(other, 0, 300)
+    assert not np.allclose(moved["frequency_hz_mc_mean"].fillna(0), whole["frequency_hz_mc_mean"].fillna(0))
+
+
+def test_ranking_puts_feasible_and_higher_yield_first():
+    s = study_of(open("studies/buzzer.toml", encoding="utf-8").read().replace("monte_carlo = 500", "monte_carlo = 64"))
+    df, _ = analyse_block(s, 0, s.n_designs)
+    r = rank_designs(s, df)
+    assert list(r["rank"]) == list(range(1, len(r) + 1))
+    feas = r["feasible"].to_numpy()
+    assert not np.any(np.diff(feas.astype(int)) > 0)          # no feasible after an infeasible
+    y = r.loc[r["feasible"], "yield"].fillna(-1).to_numpy()
+    assert np.all(np.diff(y) <= 1e-15)
+    # the pick is in spec at the nominal condition and its worst case is reported
+    best = r.iloc[0]
+    assert 2700 * 0.92 <= best["frequency_hz_nom"] <= 2700 * 1.08
+    assert best["frequency_hz_wc_min"] <= best["frequency_hz_nom"] <= best["frequency_hz_wc_max"]
+
+
+def test_taguchi_signal_to_noise_is_mean_square_over_variance():
+    s = study_of(open("studies/buzzer.toml", encoding="utf-8").read().replace("monte_carlo = 500", "monte_carlo = 64"))
+    df, _ = analyse_block(s, 0, 50)
+    m, sd = df["frequency_hz_mc_mean"], df["frequency_hz_mc_std"]
+    ok = m.notna()
+    # nominal-the-best S/N = 10 log10(mean^2 / s^2) [book: Taguchi methods]
+    assert np.allclose(df.loc[ok, "sn_db"], 10 * np.log10(m[ok] ** 2 / sd[ok] ** 2))

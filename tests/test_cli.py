@@ -1,0 +1,135 @@
+"""The command line end to end: every example study, point, check, new, workbook round trip."""
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from openpyxl import load_workbook
+
+from sweep.cli import main
+
+EXAMPLES = sorted(Path("studies").glob("*.toml"))
+MACHINE = ["design", "condition", "vcc_v", "temperature_c", "high_time_s", "low_time_s", "period_s",
+           "frequency_hz", "duty", "pulse_width_s", "supply_current_a", "power_w", "output_high_v",
+           "output_current_a", "discharge_peak_a", "ra_power_w", "junction_temp_c", "flags", "ok"]
+
+
+def cli(args, capsys):
+    try:
+        code = main(args)
+    except SystemExit as e:
+        code = e.code
+    cap = capsys.readouterr()
+    return code, cap.out, cap.err
+
+
+@pytest.mark.parametrize("study", EXAMPLES, ids=[p.stem for p in EXAMPLES])
+def test_every_example_runs_end_to_end(study, tmp_path, capsys):
+    code, out, err = cli(["run", str(study), "--out", str(tmp_path)], capsys)
+    assert code == 0, err
+    name = study.stem
+    files = {p.name for p in tmp_path.iterdir()}
+    assert files == {f"{name}.xlsx", f"{name}.html", "points.parquet", "designs.parquet", "run.json"}
+    wb = load_workbook(tmp_path / f"{name}.xlsx", read_only=True)
+    assert wb.sheetnames == ["Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes"]
+    pts = pd.read_parquet(tmp_path / "points.parquet")
+    assert set(MACHINE) <= set(pts.columns)
+    rec = json.loads((tmp_path / "run.json").read_text())
+    assert rec["points"] == len(pts) == rec["points_in_parquet"]
+    assert len(rec["study_sha256"]) == 64 and rec["seed"] >= 0
+    designs = pd.read_parquet(tmp_path / "designs.parquet")
+    assert list(designs["rank"]) == list(range(1, len(designs) + 1))
+    assert "rank" in out and "wrote" in out                    # the terminal table
+    page = (tmp_path / f"{name}.html").read_text(encoding="utf-8")
+    assert "Plotly.newPlot" in page and '<script src="http' not in page
+    assert not list(tmp_path.glob(".*part*"))                   # no temporary left behind
+
+
+def test_points_rows_agree_with_the_flags_and_ok_columns(tmp_path, capsys):
+    code, _, err = cli(["run", "studies/bike-light.toml", "--out", str(tmp_path), "-q"], capsys)
+    assert code == 0, err
+    pts = pd.read_parquet(tmp_path / "points.parquet")
+    assert (pts["ok"] == (pts["flags"] == "")).all()
+    # frequency = 1 / period and duty = high / period at every point [book: definitions]
+    good = pts["period_s"].notna()
+    assert np.allclose(pts.loc[good, "frequency_hz"] * pts.loc[good, "period_s"], 1.0)
+    assert np.allclose(pts.loc[good, "duty"], pts.loc[good, "high_time_s"] / pts.loc[good, "period_s"])
+    # the diode circuit exists to give duty below 50 % [book]
+    assert (pts.loc[good, "duty"] < 0.5).any()
+
+
+def test_workbook_study_sheet_round_trip(tmp_path, capsys):
+    a, b = tmp_path / "a", tmp_path / "b"
+    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+    assert cli(["run", str(a / "dosing-pump.xlsx"), "--out", str(b), "-q"], capsys)[0] == 0
+    da, db = pd.read_parquet(a / "designs.parquet"), pd.read_parquet(b / "designs.parquet")
+    pd.testing.assert_frame_equal(da, db)
+    ra, rb = json.loads((a / "run.json").read_text()), json.loads((b / "run.json").read_text())
+    assert ra["study_sha256"] == rb["study_sha256"] and ra["sha256"] == rb["sha256"]
+
+
+def test_edited_workbook_changes_the_run(tmp_path, capsys):
+    a = tmp_path / "a"
+    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+    wb = load_workbook(a / "dosing-pump.xlsx")
+    ws = wb["Study"]
+    for row in ws.iter_rows(min_row=3):
+        if row[0].value == "spec" and row[1].value == "pulse_width":
+            row[2].value = '{ target = "6s", tolerance = "10%" }'
+    wb.save(tmp_path / "edited.xlsx")
+    b = tmp_path / "b"
+    assert cli(["run", str(tmp_path / "edited.xlsx"), "--out", str(b), "-q"], capsys)[0] == 0
+    best = pd.read_parquet(b / "designs.parquet").iloc[0]
+    assert 5.4 <= best["pulse_width_s_nom"] <= 6.6
+
+
+def test_point_json_equals_the_textbook_in_ideal_mode(capsys):
+    code, out, _ = cli(["point", "--circuit", "astable", "--timer", "bipolar", "--ra", "10k",
+                        "--rb", "47k", "--c", "100n", "--vcc", "9", "--ideal", "--json"], capsys)
+    assert code == 0
+    row = json.loads(out)
+    # f = 1 / (ln2 (RA + 2 RB) C) [book]
+    assert row["frequency_hz"] == pytest.approx(1 / (math.log(2) * 104e3 * 100e-9), rel=1e-12)
+    assert row["ra_ohm"] == 10e3 and row["flags"] == "" and row["ok"] is True
+    assert row["pulse_width_s"] is None
+
+
+def test_point_takes_part_and_load_options(capsys):
+    code, out, _ = cli(["point", "--circuit", "monostable", "--r", "1M", "--c", "1000u",
+                        "--capacitor", "electrolytic", "--capacitor-voltage", "16V", "--load", "1k",
+                        "--load-to", "supply", "--json"], capsys)
+    assert code == 0
+    row = json.loads(out)
+    assert "timing-stalls" in row["flags"]      # leakage 0.01 C V = 160 uA [cp]
+    assert row["output_current_a"] > 0
+
+
+@pytest.mark.parametrize("circuit", ["astable", "astable-diode", "astable-symmetric", "monostable", "bistable"])
+def test_new_writes_a_valid_commented_starter(circuit, tmp_path, capsys):
+    path = tmp_path / f"{circuit}.toml"
+    assert cli(["new", circuit, "--out", str(path)], capsys)[0] == 0
+    text = path.read_text(encoding="utf-8")
+    assert text.count("#") > 10 and f'circuit = "{circuit}"' in text
+    code, out, err = cli(["check", str(path)], capsys)
+    assert code == 0, err
+    assert "points" in out and "time" in out
+    assert cli(["new", circuit, "--out", str(path)], capsys)[0] == 2     # no silent overwrite
+
+
+def test_check_counts_points(capsys):
+    code, out, _ = cli(["check", "studies/buzzer.toml"], capsys)
+    assert code == 0
+    # E24 1k..10k = 25 values, E24 1k..47k = 41, three capacitors, 3 x 3 conditions [std IEC 60063]
+    assert f"{25 * 41 * 3 * 9:,}" in out
+
+
+def test_version_and_help(capsys):
+    code, out, _ = cli(["--version"], capsys)
+    assert code == 0 and out.startswith("timer-sweep ")
+    for cmd in (["--help"], ["run", "--help"], ["point", "--help"], ["check", "--help"], ["new", "--help"]):
+        code, out, _ = cli(cmd, capsys)
+        assert code == 0 and "Usage" in out
