@@ -46,5 +46,5 @@ class Report:
     notes: list[tuple[str, str]]     # (topic, text) for the Notes sheet: model, assumptions, sources
     run_info: dict = field(default_factory=dict)  # version, seed, digest, timings
     mc_samples: pd.DataFrame | None = None        # the pick's Monte Carlo builds: main output per
-                                                  # build at its worst condition (column 'value')
+                                                  # build and condition (column 'value')
     temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value

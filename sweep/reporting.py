@@ -220,6 +220,23 @@ def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.D
     return pd.concat(rows, ignore_index=True)
 
 
+STATS = ("nom", "min", "max", "wc_min", "wc_max", "mc_mean", "mc_std")
+
+
+def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
+    """The ranked designs with the columns a reviewer reads first on the left: rank, parts,
+    verdict, yield and margins, then the main outputs, the spec outputs, the rest."""
+    from .analysis import summary_outputs
+    first = ["rank", "design"] + [a.column for a in study.design] + ["feasible", "yield", "wc_margin", "sn_db"]
+    outs = []
+    for o in summary_outputs(study):
+        outs += [f"{o}_{k}" for k in STATS]
+    sens = [c for c in designs.columns if c.startswith("sens_")]
+    tail = ["series_need", "distinct_values", "screened", "flags"]
+    cols = [c for c in first + outs + sens + tail if c in designs.columns]
+    return designs[cols]
+
+
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
     screened = int((designs.get("screened", pd.Series(dtype=str)) != "").sum())
@@ -232,7 +249,8 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         part_columns=[a.column for a in study.design],
         condition_columns=[a.column for a in study.conditions],
         summary=lines, cautions=cautions(study, designs), points=points,
-        points_total=study.n_points, points_note=points_note, designs=designs,
+        points_total=study.n_points, points_note=points_note,
+        designs=designs_for_people(study, designs),
         parts=parts_list(study, designs), check=check_table(study, designs),
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
         study_rows=study_rows(study), notes=NOTES + ([("Notes from the study", study.notes)] if study.notes else []),

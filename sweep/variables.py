@@ -52,6 +52,15 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("flags", "Flags", "", "text", "Limits broken at this point (space-separated codes)"),
     _V("ok", "OK", "", "bool", "No flag at this point"),
     _V("design", "Design", "", "int", "Design number (row of the Designs table)"),
+    # per-design figures
+    _V("rank", "Rank", "", "int", "Place in the ranking (1 = the pick)"),
+    _V("feasible", "Feasible", "", "bool", "No limit flag at any condition and nominal figures in spec"),
+    _V("yield", "Yield", "", "pct", "Share of Monte Carlo builds meeting every spec limit at every condition"),
+    _V("wc_margin", "Worst-case margin", "", "pct", "Smallest relative distance from the worst case to a spec limit (negative: outside)"),
+    _V("sn_db", "S/N", "dB", "fixed2", "Taguchi nominal-the-best signal-to-noise ratio of the main output"),
+    _V("series_need", "Series needed", "", "int", "Coarsest IEC 60063 series holding every part (0 = E3 ... 6 = E192, 7 = none)"),
+    _V("distinct_values", "Distinct resistors", "", "int", "Different resistor values in the design"),
+    _V("screened", "Screened out", "", "text", "Why the Monte Carlo was skipped (yield 0)"),
     _V("condition", "Condition", "", "int", "Condition number within the design"),
 ]}
 

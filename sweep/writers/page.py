@@ -625,7 +625,8 @@ def _mc_section(report: Report) -> Section:
     label = _var(main).label.lower() if main else "main output"
     sec = Section("mc", HEADINGS["mc"], (
         f"Each bar counts simulated builds of the pick, every part drawn at random within its "
-        f"tolerance, with the {html.escape(label)} taken in the pick's worst condition. The "
+        f"tolerance, with the {html.escape(label)} taken at every supply and temperature condition "
+        "(each build counts once per condition). The "
         "solid vertical lines are the spec limits, the dashed one the target. A narrow hump well "
         "inside the limits means the design is robust; builds beyond a line are the yield lost."))
     mc = report.mc_samples

@@ -95,9 +95,7 @@ _CHECK_NOTE = ("Change a part value (blue cells) to see the formula move; the en
 _SUFFIXES = (("_wc_min", "worst-case min"), ("_wc_max", "worst-case max"),
              ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std. dev."),
              ("_nom", "nominal"), ("_min", "min"), ("_max", "max"))
-_SPECIAL = {"yield": ("Yield", "pct"), "sn_db": ("S/N [dB]", "fixed2"),
-            "feasible": ("Feasible", "bool"), "rank": ("Rank", "int"),
-            "verdict": ("Result", "text")}
+_SPECIAL = {"verdict": ("Result", "text")}
 
 
 def _split(name: str):
