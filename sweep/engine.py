@@ -16,7 +16,7 @@ import numpy as np
 from .physics import FLAG_BITS, evaluate
 from .study import Axis, Study
 
-DEFAULT_CHUNK = 1 << 17        # points per block: 64k-256k is fastest on a 2-core machine
+DEFAULT_CHUNK = 1 << 14        # points per block: arrays stay in the core's cache (measured: 16k-32k fastest)
 TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s")
 SPEC_MISS = np.uint32(FLAG_BITS["spec-miss"])
 

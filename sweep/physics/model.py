@@ -38,17 +38,15 @@ FLAG_BITS = {name: 1 << i for i, name in enumerate([
 
 def rc_time_s(tau_s, v_inf_v, v_start_v, v_end_v):
     """Time for an RC node to go from v_start to v_end towards v_inf:
-    t = tau ln((V_inf - V1) / (V_inf - V2)) [book: RC law]. NaN where v_end is never reached."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = (v_inf_v - v_start_v) / (v_inf_v - v_end_v)
-        return np.where(ratio >= 1.0, tau_s * np.log(ratio), np.nan)
+    t = tau ln((V_inf - V1) / (V_inf - V2)) [book: RC law]. The caller masks points where
+    v_end is never reached (they give NaN or a negative time here)."""
+    return tau_s * np.log((v_inf_v - v_start_v) / (v_inf_v - v_end_v))
 
 
-def mean_on_exponential_v(tau_s, v_inf_v, v_start_v, t_s):
-    """Mean node voltage over t_s along V(t) = V_inf + (V0 - V_inf) exp(-t/tau) [derived]."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        frac = tau_s / t_s * -np.expm1(-t_s / tau_s)
-    return v_inf_v + (v_start_v - v_inf_v) * frac
+def mean_between_v(tau_s, v_inf_v, v_start_v, v_end_v, t_s):
+    """Mean node voltage over a segment of V(t) = V_inf + (V0 - V_inf) exp(-t/tau) that goes from
+    v_start to v_end in t_s: V_inf + tau (V0 - V1) / t, the integral of the RC law [derived]."""
+    return v_inf_v + tau_s * (v_start_v - v_end_v) / t_s
 
 
 def thevenin_with_sat(vcc_v, r_pull_ohm, v_sat_v, r_sat_ohm):
@@ -150,51 +148,63 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         vs_c, rs_c = vcc, r_t
 
     if circuit in ASTABLES:
-        vinf1, tau1 = node_source(*seg1, g_leak, i_b, c_eff)
+        diode = circuit == "astable-diode"
         vinf2, tau2 = node_source(*seg2, g_leak, i_b, c_eff)
         vinf_d, tau_d = node_source(vs_d, rs_d, g_leak, i_b, c_eff)
-        last2 = v_sw < v_up                  # the threshold is met in segment 2
-        vinf_c = np.where(last2, vinf2, vinf1)
-        tau_c = np.where(last2, tau2, tau1)
+        if diode:
+            vinf1, tau1 = node_source(*seg1, g_leak, i_b, c_eff)
+            last2 = v_sw < v_up              # the threshold is met in segment 2
+            vinf_c, tau_c = np.where(last2, vinf2, vinf1), np.where(last2, tau2, tau1)
+        else:
+            vinf_c, tau_c = vinf2, tau2
         # each phase runs on for the propagation delay past its threshold [derived]
         v_top = vinf_c - (vinf_c - v_up) * np.exp(-tpd / tau_c)
         v_bot = vinf_d - (vinf_d - v_lo_th) * np.exp(-tpd / tau_d)
-        v_mid = np.clip(v_sw, v_bot, v_up)
-        t1 = rc_time_s(tau1, vinf1, v_bot, v_mid)
-        t2 = rc_time_s(tau2, vinf2, v_mid, v_up)
-        stalls = ((vinf_c <= v_up) | (vinf_d >= v_lo_th) | np.isnan(t1) | np.isnan(t2)
-                  | ((v_mid > v_bot) & (vinf1 <= v_mid)))
-        t_h = t1 + t2 + tpd
-        t_l = rc_time_s(tau_d, vinf_d, v_top, v_lo_th) + tpd
-        t_h = np.where(stalls, np.nan, t_h)
+        with np.errstate(all="ignore"):      # stalled points give NaN, masked just below
+            if diode:
+                v_mid = np.clip(v_sw, v_bot, v_up)
+                t1 = rc_time_s(tau1, vinf1, v_bot, v_mid)
+                t2 = rc_time_s(tau2, vinf2, v_mid, v_up)
+                stalls = (vinf_c <= v_up) | ((v_mid > v_bot) & (vinf1 <= v_mid))
+            else:
+                t1, t2 = 0.0, rc_time_s(tau_c, vinf_c, v_bot, v_up)
+                stalls = vinf_c <= v_up
+            t_l = rc_time_s(tau_d, vinf_d, v_top, v_lo_th) + tpd
+        stalls = stalls | (vinf_d >= v_lo_th)
+        t_h = np.where(stalls, np.nan, t1 + t2 + tpd)
         t_l = np.where(stalls, np.nan, t_l)
         period = t_h + t_l
-        vm_l = mean_on_exponential_v(tau_d, vinf_d, v_top, t_l)
-        # supply current while charging: each segment's mean, weighted by its time [derived]
-        d1 = t1 + np.where(last2, 0.0, tpd)
-        d2 = t2 + np.where(last2, tpd, 0.0)
-        with np.errstate(all="ignore"):
-            i1 = np.where(d1 > 0, (seg1[0] - mean_on_exponential_v(tau1, vinf1, v_bot, d1)) / seg1[1], 0.0)
-            i2 = np.where(d2 > 0, (seg2[0] - mean_on_exponential_v(tau2, vinf2, v_mid, d2)) / seg2[1], 0.0)
-        i_charge_h = (d1 * i1 + d2 * i2) / t_h                    # drawn from the supply
-        i_start = np.where(v_sw > v_bot, (seg1[0] - v_bot) / seg1[1], (seg2[0] - v_bot) / seg2[1])
+        # charge drawn from the supply along a segment from v0 to v1 in time t:
+        # Q = ((V_s - V_inf) t + tau (v1 - v0)) / R_s, the integral of the RC law [derived]
+        if diode:
+            end1 = np.where(last2, v_mid, v_top)
+            q1 = ((seg1[0] - vinf1) * (t1 + np.where(last2, 0.0, tpd)) + tau1 * (end1 - v_bot)) / seg1[1]
+            q2 = np.where(last2, ((seg2[0] - vinf2) * (t2 + tpd) + tau2 * (v_top - v_mid)) / seg2[1], 0.0)
+            i_charge_h = (q1 + q2) / t_h
+            i_start = np.where(v_sw > v_bot, (seg1[0] - v_bot) / seg1[1], (seg2[0] - v_bot) / seg2[1])
+        else:
+            i_charge_h = ((seg2[0] - vinf_c) * t_h + tau_c * (v_top - v_bot)) / seg2[1] / t_h
+            i_start = (seg2[0] - v_bot) / seg2[1]
+        # mean capacitor voltage in the low phase: V_inf + tau (v0 - v1) / t [derived]
+        vm_l = mean_between_v(tau_d, vinf_d, v_top, v_bot, t_l)
         if circuit == "astable-symmetric":
-            i_ra_l = np.zeros_like(vm_l)
-            dis_peak = np.zeros_like(vm_l)
+            i_ra_l = 0.0
+            dis_peak = np.zeros(np.shape(period))
             p_res = i_start ** 2 * r_t
             p_dis_l = 0.0
         else:
-            # node D during the low phase: VCC via RA, V_sat via R_sat, capacitor via RB [derived]
-            def v_node_d(v_cap):
-                num = (vcc * timer.saturation_ohm * rb_t + timer.saturation_v * ra_t * rb_t
-                       + v_cap * ra_t * timer.saturation_ohm)
-                return num / (timer.saturation_ohm * rb_t + ra_t * rb_t + ra_t * timer.saturation_ohm)
-            vd_mean = v_node_d(vm_l)
+            # node D during the low phase: VCC via RA, V_sat via R_sat, capacitor via RB,
+            # linear in the capacitor voltage: V_D = a + b V [derived]
+            rs_, vs_ = timer.saturation_ohm, timer.saturation_v
+            den = rs_ * rb_t + ra_t * rb_t + ra_t * rs_
+            a_d = (vcc * rs_ * rb_t + vs_ * ra_t * rb_t) / den
+            b_d = ra_t * rs_ / den
+            vd_mean = a_d + b_d * vm_l
             i_ra_l = (vcc - vd_mean) / ra_t
-            vd_top = v_node_d(v_top)
+            vd_top = a_d + b_d * v_top
             dis_peak = (vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t
             # RA: worst of the low phase (VCC across it, less node D) and the start of the high
-            p_res = np.maximum((vcc - v_node_d(v_bot)) ** 2 / ra_t, i_start ** 2 * ra_t)
+            p_res = np.maximum((vcc - a_d - b_d * v_bot) ** 2 / ra_t, i_start ** 2 * ra_t)
             p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
         i_h = iq_h + i_charge_h + i_load_h
         i_l = iq_l + i_ra_l + i_load_l
@@ -203,16 +213,17 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         p_chip_l = vcc * iq_l + v_ol * i_load_l + p_dis_l
         p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
         out.update(high_time_s=t_h, low_time_s=t_l, period_s=period, frequency_hz=1.0 / period,
-                   duty=t_h / period, pulse_width_s=np.full_like(period, np.nan),
-                   supply_current_a=supply, idle_current_a=np.full_like(period, np.nan),
-                   discharge_peak_a=dis_peak, ra_power_w=p_res)
+                   duty=t_h / period, pulse_width_s=np.nan, supply_current_a=supply,
+                   idle_current_a=np.nan, discharge_peak_a=dis_peak, ra_power_w=p_res)
     elif circuit == "monostable":
         # at rest the discharge transistor holds C near V_sat [derived]
         v0, _ = thevenin_with_sat(vcc, r_t, timer.saturation_v, timer.saturation_ohm)
         vinf_c, tau_c = node_source(vs_c, rs_c, g_leak, i_b, c_eff)
         stalls = vinf_c <= v_up
-        pw = np.where(stalls, np.nan, rc_time_s(tau_c, vinf_c, v0, v_up) + tpd)
-        vm_h = mean_on_exponential_v(tau_c, vinf_c, v0, pw)
+        with np.errstate(all="ignore"):
+            pw = np.where(stalls, np.nan, rc_time_s(tau_c, vinf_c, v0, v_up) + tpd)
+        v_end = vinf_c - (vinf_c - v_up) * np.exp(-tpd / tau_c)
+        vm_h = mean_between_v(tau_c, vinf_c, v0, v_end, pw)
         i_idle_r = (vcc - v0) / r_t
         supply = iq_h + (vcc - vm_h) / r_t + i_load_h
         idle = iq_l + i_idle_r + i_load_l
@@ -242,11 +253,12 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     out = {k: np.broadcast_to(np.asarray(v, dtype=float), shape) for k, v in out.items()}
 
     # flags [ds-bip]/[ds-cmos] limits from the timer model, [cp] part limits
-    m = np.zeros(shape, dtype=np.uint32)
+    m = np.zeros((), dtype=np.uint32)
 
     def flag(name, cond):
+        """Set a flag bit where cond holds; cond keeps its own (often smaller) shape."""
         nonlocal m
-        m = m | np.where(np.broadcast_to(cond, shape), np.uint32(FLAG_BITS[name]), np.uint32(0))
+        m = m | np.where(cond, np.uint32(FLAG_BITS[name]), np.uint32(0))
 
     flag("supply-below-min", vcc < timer.min_v)
     flag("supply-above-max", vcc > timer.max_v)
@@ -268,7 +280,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         flag("timing-stalls", stalls)
         if circuit in ASTABLES:
             flag("frequency-too-high", out["frequency_hz"] > timer.max_frequency_hz)
-    out["flag_mask"] = m
+    out["flag_mask"] = np.broadcast_to(m, shape)
     return out
 
 

@@ -137,5 +137,4 @@ def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c):
         floor_a = 3e-6 if cap.leakage == "electrolytic" else 0.5e-6
         i_a = np.maximum(0.01e-6 * (c_f * 1e6) * v_rated_v, floor_a)
         return i_a / v_rated_v * 2.5 ** ((np.asarray(temperature_c, dtype=float) - 20.0) / 40.0)
-    r_ins = np.minimum(10e9, 500.0 / c_f)
-    return 1.0 / r_ins + 0.0 * np.asarray(temperature_c, dtype=float)
+    return 1.0 / np.minimum(10e9, 500.0 / c_f)       # no temperature dependence modelled
