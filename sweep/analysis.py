@@ -142,37 +142,49 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
             for i, p in enumerate(parts):
                 row[f"sens_{p}"] = ((np.log(ev[:, 2 * i]) - np.log(ev[:, 2 * i + 1]))
                                     / (math.log1p(SENS_STEP) - math.log1p(-SENS_STEP)))
-    # 5. Monte Carlo on the designs whose worst case can still meet the spec
-    n_mc = study.monte_carlo if opt.monte_carlo is None else opt.monte_carlo
+    # 5. screening for the Monte Carlo: a design whose worst case lies wholly outside a spec
+    # limit cannot yield a build that meets it [derived]
     reach = np.ones(nd, dtype=bool)
     for s in study.spec:
         reach &= ~((row[f"{s.column}_wc_max"] < s.lo) | (row[f"{s.column}_wc_min"] > s.hi))
+    row["reach"] = reach
     row["screened"] = np.where(reach, "", "worst case entirely outside the spec")
-    yld = np.where(reach, np.nan, 0.0)
-    mc_mean = {o: np.full(nd, np.nan) for o in outs}
-    mc_std = {o: np.full(nd, np.nan) for o in outs}
-    if n_mc > 0 and reach.any():
-        r_idx = np.flatnonzero(reach)
-        y, mean, std = _monte_carlo(study, {k: v[r_idx] for k, v in design.items()}, cond, outs,
-                                    n_mc, ideal, opt.mc_chunk)
-        yld[r_idx] = y
-        for o in outs:
-            mc_mean[o][r_idx], mc_std[o][r_idx] = mean[o], std[o]
-    for o in outs:
-        row[f"{o}_mc_mean"], row[f"{o}_mc_std"] = mc_mean[o], mc_std[o]
-    row["yield"] = yld
-    if main:
-        m = main[0]
-        with np.errstate(all="ignore"):
-            row["sn_db"] = 10 * np.log10(mc_mean[m] ** 2 / mc_std[m] ** 2)  # Taguchi nominal-the-best
+    row["yield"] = np.where(reach, np.nan, 0.0)
     nom_fail = spec_fail(study, nom)[:, 0, 0] if study.spec else np.zeros(nd, dtype=bool)
     limits = (mask & LIMIT_BITS) != 0
     row["feasible"] = ~limits & ~nom_fail
     row["flag_mask"] = mask
     row["wc_margin"] = _wc_margin(study, row)
     df = pd.DataFrame(row)
+    df["series_need"], df["distinct_values"] = plainness(study, df)
+    df["flags"] = flag_text(mask)
     points = points_frame(study, d_idx, c_idx, design, cond, sweep) if opt.keep_points else None
     return df, points
+
+
+def mc_columns(study: Study) -> list[str]:
+    cols = ["design", "yield"]
+    for o in summary_outputs(study):
+        cols += [f"{o}_mc_mean", f"{o}_mc_std"]
+    return cols + ["sn_db"]
+
+
+def monte_carlo_block(study: Study, designs: np.ndarray, opt: Options = Options()) -> pd.DataFrame:
+    """Monte Carlo figures of the given designs (1-based numbers): yield, mean and standard
+    deviation of each summary output over builds x conditions, Taguchi S/N of the main output."""
+    n_mc = study.monte_carlo if opt.monte_carlo is None else opt.monte_carlo
+    outs = summary_outputs(study)
+    design = axis_values(study.design, np.asarray(designs) - 1)
+    cond = axis_values(study.conditions, np.arange(study.n_conditions))
+    y, mean, std = _monte_carlo(study, design, cond, outs, n_mc, opt.ideal, opt.mc_chunk)
+    row: dict[str, np.ndarray] = {"design": np.asarray(designs), "yield": y}
+    for o in outs:
+        row[f"{o}_mc_mean"], row[f"{o}_mc_std"] = mean[o], std[o]
+    main = main_outputs(study.circuit)
+    with np.errstate(all="ignore"):     # Taguchi nominal-the-best [book: Taguchi methods]
+        row["sn_db"] = (10 * np.log10(mean[main[0]] ** 2 / std[main[0]] ** 2) if main
+                        else np.full(len(designs), np.nan))
+    return pd.DataFrame(row)
 
 
 def _reduce(v: np.ndarray, fn) -> np.ndarray:
@@ -197,6 +209,8 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
     z = mc_draws(study, n_mc)
     acc, drift, sens = timer_bands(study)
     nd = len(next(iter(design.values()))) if design else 1
+    if not design:       # a circuit with no timing parts: one design
+        design = {}
     nc = len(next(iter(cond.values())))
     b_step = max(1, chunk // max(1, nd * nc))
     ok = np.zeros(nd)
@@ -290,15 +304,37 @@ def plainness(study: Study, designs: pd.DataFrame) -> tuple[np.ndarray, np.ndarr
     return worst, distinct
 
 
-def rank_designs(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
-    """Feasible first, then yield, worst-case margin, supply current, plainer parts."""
-    d = designs.copy()
-    d["series_need"], d["distinct_values"] = plainness(study, d)
-    d["_y"] = d["yield"].fillna(-1.0)
-    d["_sc"] = d["supply_current_a_max"].fillna(np.inf)
-    d = d.sort_values(["feasible", "_y", "wc_margin", "_sc", "series_need", "distinct_values", "design"],
-                      ascending=[False, False, False, True, True, True, True], kind="mergesort")
-    d = d.drop(columns=["_y", "_sc"]).reset_index(drop=True)
-    d.insert(0, "rank", np.arange(1, len(d) + 1))
-    d["flags"] = flag_text(d["flag_mask"].to_numpy())
-    return d
+RANK_KEYS = ["design", "feasible", "yield", "wc_margin", "supply_current_a_max", "series_need",
+             "distinct_values"]
+
+
+def rank_designs(designs: pd.DataFrame) -> np.ndarray:
+    """Rank of each row (1 = the pick): feasible first, then yield, worst-case margin, supply
+    current, plainer parts (coarser series, fewer distinct values), design number."""
+    order = np.lexsort((designs["design"].to_numpy(),
+                        designs["distinct_values"].to_numpy(),
+                        designs["series_need"].to_numpy(),
+                        designs["supply_current_a_max"].fillna(np.inf).to_numpy(),
+                        -designs["wc_margin"].to_numpy(),
+                        -designs["yield"].fillna(-1.0).to_numpy(),
+                        ~designs["feasible"].to_numpy(dtype=bool)))
+    rank = np.empty(len(designs), dtype=np.int64)
+    rank[order] = np.arange(1, len(designs) + 1)
+    return rank
+
+
+def analyse_designs(study: Study, start: int, stop: int, opt: Options = Options()) -> pd.DataFrame:
+    """Every figure of designs [start, stop) in one table, Monte Carlo included for the designs
+    the screening keeps (for small sweeps and tests; the pipeline runs the two passes apart)."""
+    df, _ = analyse_block(study, start, stop, opt)
+    n_mc = study.monte_carlo if opt.monte_carlo is None else opt.monte_carlo
+    keep = df.loc[df["reach"], "design"].to_numpy()
+    if n_mc > 0 and len(keep):
+        mc = monte_carlo_block(study, keep, opt)
+        df = df.drop(columns=["yield"]).merge(mc, on="design", how="left")
+        df["yield"] = df["yield"].where(df["reach"], 0.0)
+    else:
+        for c in mc_columns(study)[2:]:
+            df[c] = np.nan
+    tail = mc_columns(study)[1:]
+    return df[[c for c in df.columns if c not in tail] + tail]

@@ -2,21 +2,20 @@
 order, so they equal a serial run exactly."""
 from __future__ import annotations
 
-from .analysis import analyse_block
 from .errors import InputError
 
 
 def _run(args):
-    study, opt, a, b = args
-    return analyse_block(study, a, b, opt)
+    fn, study, opt, job = args
+    return fn(study, *job, opt) if isinstance(job, tuple) else fn(study, job, opt)
 
 
 def process_mapper(workers: int):
     """Spread blocks over `workers` local processes."""
-    def mapper(study, opt, blocks):
+    def mapper(fn, study, opt, jobs):
         from concurrent.futures import ProcessPoolExecutor
         with ProcessPoolExecutor(workers) as ex:
-            yield from ex.map(_run, [(study, opt, a, b) for a, b in blocks])
+            yield from ex.map(_run, [(fn, study, opt, job) for job in jobs])
     return mapper
 
 
@@ -27,14 +26,14 @@ def dask_mapper(address: str):
     except ImportError:
         raise InputError("", "--scheduler", "needs dask.distributed: pip install 'timer-sweep[cluster]'") from None
 
-    def mapper(study, opt, blocks):
+    def mapper(fn, study, opt, jobs):
         try:
             client = Client(address, timeout="10s")
         except (OSError, TimeoutError) as e:
             raise InputError("", "--scheduler", f"cannot reach a Dask scheduler at {address}: {e}") from None
         try:
             st = client.scatter(study, broadcast=True)
-            futures = [client.submit(analyse_block, st, a, b, opt, pure=False) for a, b in blocks]
+            futures = [client.submit(_run, (fn, st, opt, job), pure=False) for job in jobs]
             for f in futures:
                 yield f.result()
         finally:

@@ -15,7 +15,8 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 from . import __version__
-from .analysis import Options, analyse_block, points_frame, rank_designs
+from .analysis import (RANK_KEYS, Options, analyse_block, mc_columns, monte_carlo_block,
+                       points_frame, rank_designs)
 from .engine import DEFAULT_CHUNK, axis_values, design_blocks, evaluate_block
 from .errors import InputError
 from .reporting import build_report
@@ -50,35 +51,129 @@ def check_writable(out_dir: Path) -> None:
         raise InputError(str(out_dir), "--out", f"cannot write here: {e.strerror}") from None
 
 
-def analyse(study: Study, opt: Options, chunk: int = DEFAULT_CHUNK, parquet_path: Path | None = None,
-            parquet_limit: int = PARQUET_POINTS, progress: Callable[[int], None] | None = None,
-            mapper=None) -> tuple[pd.DataFrame, int]:
-    """Every design's figures (unranked) and the number of points streamed to parquet_path.
+MC_DESIGNS = 2000             # designs that get a Monte Carlo, best worst-case margins first
+WORKBOOK_DESIGNS = 100_000    # rows of the Designs sheet and of the ranked table kept in memory
 
-    `mapper(fn, blocks)` may run blocks elsewhere (processes, a Dask cluster); it must return
-    results in block order. Points go to parquet_path only while they fit under parquet_limit.
+
+@dataclass
+class Analysis:
+    keys: pd.DataFrame        # every design: the columns ranking and screening need, and rank
+    table: Path               # per-design figures of every design (parquet, design order)
+    mc: pd.DataFrame          # Monte Carlo figures of the sampled designs
+    streamed: int             # points written to the points file
+    screened: dict            # reason -> number of designs without a Monte Carlo
+
+
+def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUNK,
+            points_path: Path | None = None, points_limit: int = PARQUET_POINTS,
+            progress: Callable[[int], None] | None = None, mapper=None,
+            mc_designs: int = MC_DESIGNS) -> Analysis:
+    """Two passes in bounded memory. Pass 1 streams every design's figures (and points, while
+    they fit under points_limit) to parquet and keeps only the ranking keys; pass 2 runs the
+    Monte Carlo on the designs whose worst case can still meet the spec, best margins first.
+
+    `mapper(fn, study, opt, jobs)` may run jobs elsewhere (processes, a Dask cluster); it must
+    return results in job order.
     """
     blocks = list(design_blocks(study, chunk))
-    stream = parquet_path is not None and study.n_points <= parquet_limit
+    stream = points_path is not None and study.n_points <= points_limit
     o = Options(**{**opt.__dict__, "keep_points": stream})
-    frames, written, writer = [], 0, None
+    table = tmp_dir / f".designs-pass1-{os.getpid()}.parquet"
+    keys, streamed = [], 0
+    writers: dict[str, pq.ParquetWriter] = {}
+
+    def write(name, path, df):
+        t = pa.Table.from_pandas(df, preserve_index=False)
+        if name not in writers:
+            writers[name] = pq.ParquetWriter(path, t.schema, compression="zstd")
+        writers[name].write_table(t)
+
     try:
-        results = (mapper(study, o, blocks) if mapper else
+        results = (mapper(analyse_block, study, o, blocks) if mapper else
                    (analyse_block(study, a, b, o) for a, b in blocks))
         for (a, b), (df, pts) in zip(blocks, results):
-            frames.append(df)
+            keys.append(df[RANK_KEYS + ["reach"]])
+            write("designs", table, df.drop(columns=["reach"]))
             if pts is not None:
-                table = pa.Table.from_pandas(pts, preserve_index=False)
-                if writer is None:
-                    writer = pq.ParquetWriter(parquet_path, table.schema, compression="zstd")
-                writer.write_table(table)
-                written += len(pts)
+                write("points", points_path, pts)
+                streamed += len(pts)
             if progress:
                 progress((b - a) * study.n_conditions)
     finally:
+        for w in writers.values():
+            w.close()
+    keys = pd.concat(keys, ignore_index=True)
+    # pass 2: Monte Carlo where the spec can still be met, best worst-case margins first
+    screened = {"worst case entirely outside the spec (yield 0)": int((~keys["reach"]).sum())}
+    n_mc = study.monte_carlo if opt.monte_carlo is None else opt.monte_carlo
+    mc = pd.DataFrame(columns=mc_columns(study))
+    if n_mc > 0:
+        cand = keys[keys["reach"]]
+        cand = cand.iloc[np.lexsort((cand["design"].to_numpy(), -cand["wc_margin"].to_numpy(),
+                                     ~cand["feasible"].to_numpy(dtype=bool)))]
+        if len(cand) > mc_designs:
+            screened[f"beyond the {mc_designs:,} best worst-case margins (not sampled)"] = len(cand) - mc_designs
+            cand = cand.head(mc_designs)
+        numbers = np.sort(cand["design"].to_numpy())
+        per = max(1, (1 << 20) // max(1, n_mc * study.n_conditions))
+        jobs = [numbers[i:i + per] for i in range(0, len(numbers), per)]
+        parts = (mapper(monte_carlo_block, study, opt, jobs) if mapper and jobs else
+                 (monte_carlo_block(study, j, opt) for j in jobs))
+        frames = list(parts)
+        if frames:
+            mc = pd.concat(frames, ignore_index=True)
+        y = pd.Series(mc["yield"].to_numpy(), index=mc["design"].to_numpy())
+        keys["yield"] = keys["design"].map(y).where(lambda v: v.notna(), keys["yield"])
+    keys["rank"] = rank_designs(keys)
+    return Analysis(keys, table, mc, streamed, {k: v for k, v in screened.items() if v})
+
+
+def ranked_designs(study: Study, an: Analysis, limit: int = WORKBOOK_DESIGNS) -> pd.DataFrame:
+    """The best `limit` designs with every figure, ranked (rank 1 first)."""
+    top = an.keys.nsmallest(limit, "rank")[["design", "rank"]]
+    wanted = set(top["design"].tolist())
+    frames = []
+    pf = pq.ParquetFile(an.table)
+    for i in range(pf.num_row_groups):
+        df = pf.read_row_group(i).to_pandas()
+        frames.append(df[df["design"].isin(wanted)])
+    d = pd.concat(frames, ignore_index=True).drop(columns=["yield"])
+    d = d.merge(top, on="design").merge(an.keys[["design", "yield"]], on="design")
+    if len(an.mc):
+        d = d.merge(an.mc.drop(columns=["yield"]), on="design", how="left")
+    d["screened"] = np.where(d["screened"] != "", d["screened"],
+                             np.where(d["yield"].isna() & (study.monte_carlo > 0), "not sampled", ""))
+    d = d.sort_values("rank", kind="mergesort").reset_index(drop=True)
+    cols = ["rank"] + [c for c in d.columns if c != "rank"]
+    return d[cols]
+
+
+def write_designs_table(study: Study, an: Analysis, path: Path) -> None:
+    """Every design with its rank and Monte Carlo figures, in design order, batch by batch."""
+    rank = pd.Series(an.keys["rank"].to_numpy(), index=an.keys["design"].to_numpy())
+    yld = pd.Series(an.keys["yield"].to_numpy(), index=an.keys["design"].to_numpy())
+    mc = an.mc.drop(columns=["yield"]).set_index("design") if len(an.mc) else None
+    pf = pq.ParquetFile(an.table)
+    writer = None
+    try:
+        for i in range(pf.num_row_groups):
+            df = pf.read_row_group(i).to_pandas()
+            df.insert(0, "rank", df["design"].map(rank).to_numpy())
+            df["yield"] = df["design"].map(yld).to_numpy()
+            if mc is not None:
+                df = df.join(mc, on="design")
+            else:
+                for c in mc_columns(study)[2:]:
+                    df[c] = np.nan
+            df = df.drop(columns=["flag_mask"])
+            t = pa.Table.from_pandas(df, preserve_index=False)
+            if writer is None:
+                schema = t.schema
+                writer = pq.ParquetWriter(path, schema, compression="zstd")
+            writer.write_table(t.cast(schema))
+    finally:
         if writer is not None:
             writer.close()
-    return pd.concat(frames, ignore_index=True), written
 
 
 def points_of(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool) -> pd.DataFrame:
@@ -121,10 +216,12 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     tmp = {k: _tmp(p) for k, p in final.items()}
     try:
         limit = study.n_points if all_points else parquet_points
-        designs, streamed = analyse(study, Options(ideal=ideal), chunk, tmp["points"], limit, progress, mapper)
+        an = analyse(study, Options(ideal=ideal), out_dir, chunk, tmp["points"], limit, progress, mapper)
+        tmp["pass1"] = an.table
         t_an = time.perf_counter() - t0
-        ranked = rank_designs(study, designs)
+        ranked = ranked_designs(study, an)
         order = ranked["design"].to_numpy()
+        streamed = an.streamed
         if streamed == study.n_points:
             parquet_note = f"points.parquet holds all {study.n_points:,} points."
         else:
@@ -141,12 +238,15 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
                     f"first. {parquet_note}")
         else:
             note = f"All {study.n_points:,} points, best-ranked designs first. {parquet_note}"
-        ranked.drop(columns=["flag_mask"]).to_parquet(tmp["designs"], index=False)
+        write_designs_table(study, an, tmp["designs"])
+        ranked = ranked.drop(columns=["flag_mask"])
         info = {"tool": "timer-sweep", "version": __version__, "study": study.path,
                 "study_sha256": study.digest, "seed": study.seed, "monte_carlo": study.monte_carlo,
                 "ideal": ideal, "designs": study.n_designs, "conditions": study.n_conditions,
                 "points": study.n_points, "points_in_parquet": streamed,
-                "points_in_workbook": len(wb_pts), "seconds_analysis": round(t_an, 3)}
+                "points_in_workbook": len(wb_pts), "designs_in_workbook": len(ranked),
+                "monte_carlo_designs": len(an.mc), "screened": an.screened,
+                "seconds_analysis": round(t_an, 3)}
         report = build_report(study, ranked, wb_pts, note, ideal, info)
         write_workbook(tmp["workbook"], report)
         write_page(tmp["page"], report)

@@ -28,15 +28,15 @@ def design_text(study: Study, row) -> str:
     return ", ".join(f"{REFS.get(a.key, a.key)} = {eng(row[a.column], a.column)}" for a in study.design)
 
 
-def summary_lines(study: Study, designs: pd.DataFrame, screened: int) -> tuple[list[tuple[str, str]], bool]:
+def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int]) -> tuple[list[tuple[str, str]], bool]:
     """Lines for the Summary sheet and the page, and whether any design meets the spec."""
     lines: list[tuple[str, str]] = []
     best = designs.iloc[0]
     main = main_outputs(study.circuit)
     y = best["yield"]
     meets = bool(best["feasible"] and (not study.spec or not np.isfinite(y) or y > 0))
-    lines.append(("Designs evaluated", f"{len(designs):,} x {study.n_conditions:,} conditions"
-                  f" = {len(designs) * study.n_conditions:,} points"))
+    lines.append(("Designs evaluated", f"{study.n_designs:,} x {study.n_conditions:,} conditions"
+                  f" = {study.n_points:,} points"))
     if not meets:
         why = ("no design is free of limit flags with its nominal figures in spec"
                if not designs["feasible"].any() else "no Monte Carlo build of any design meets every spec limit")
@@ -61,9 +61,8 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: int) -> tuple[l
     if "idle_current_a_nom" in best:
         lines.append(("Idle current", eng(best["idle_current_a_nom"], "idle_current_a")))
     lines.append(("Flags of the pick", best["flags"] or "none"))
-    if screened:
-        lines.append(("Screened out", f"{screened:,} designs skipped the Monte Carlo: their worst case "
-                                      "lies entirely outside the spec (yield 0)"))
+    for why, n in screened.items():
+        lines.append(("No Monte Carlo", f"{n:,} designs: {why}"))
     return lines, meets
 
 
@@ -239,8 +238,7 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
 
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
-    screened = int((designs.get("screened", pd.Series(dtype=str)) != "").sum())
-    lines, meets = summary_lines(study, designs, screened)
+    lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
     main = main_outputs(study.circuit)
     run_info = dict(run_info, meets_spec=meets)
     return Report(

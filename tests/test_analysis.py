@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from sweep.analysis import Options, analyse_block, rank_designs
+from sweep.analysis import Options, analyse_designs, rank_designs
 from sweep.physics import evaluate
 from sweep.study import parse_study
 
@@ -46,7 +46,7 @@ frequency = { min = "135Hz", max = "145Hz" }
 monte_carlo = 100000
 seed = 42
 """, **QUIET_TIMER)
-    df, _ = analyse_block(s, 0, 1, Options(ideal=True))
+    df = analyse_designs(s, 0, 1, Options(ideal=True))
     f0 = 1 / (math.log(2) * (10e3 + 2 * 47e3) * 100e-9)
     sigma = 0.10 / 3
     p = norm.cdf((f0 / 135 - 1) / sigma) - norm.cdf((f0 / 145 - 1) / sigma)
@@ -72,7 +72,7 @@ pulse_width = { min = "0.1s", max = "0.12s" }
 monte_carlo = 100000
 distribution = "uniform"
 """, **QUIET_TIMER)
-    df, _ = analyse_block(s, 0, 1, Options(ideal=True))
+    df = analyse_designs(s, 0, 1, Options(ideal=True))
     t0 = math.log(3) * 100e3 * 1e-6
     a, b = max(0.1 / t0, 0.8), min(0.12 / t0, 1.2)
     p = (b - a) / 0.4
@@ -114,7 +114,7 @@ def test_worst_case_equals_brute_force_enumeration(seed):
                         parts="\n".join(f'{k} = {float(v)!r}' for k, v in parts.items()),
                         vlo=5.0, vhi=12.0)
     s = study_of(text)
-    df, _ = analyse_block(s, 0, 1)
+    df = analyse_designs(s, 0, 1)
     keys = list(parts)
     tol = {k: (0.10 if k == "c" else 0.05) for k in keys}
     main = "pulse_width_s" if circuit == "monostable" else "period_s"
@@ -168,7 +168,7 @@ frequency = { min = "60Hz", max = "500Hz" }
 monte_carlo = 200
 """
     s = study_of(text, **QUIET_TIMER)
-    df, _ = analyse_block(s, 0, s.n_designs)
+    df = analyse_designs(s, 0, s.n_designs)
     for o in ("frequency_hz", "duty", "supply_current_a"):
         assert np.allclose(df[f"{o}_wc_min"], df[f"{o}_min"], rtol=1e-12)
         assert np.allclose(df[f"{o}_wc_max"], df[f"{o}_max"], rtol=1e-12)
@@ -191,7 +191,7 @@ c = ["1n", "10u"]
 [analysis]
 monte_carlo = 0
 """)
-    df, _ = analyse_block(s, 0, s.n_designs, Options(ideal=True))
+    df = analyse_designs(s, 0, s.n_designs, Options(ideal=True))
     ra, rb = df["ra_ohm"].to_numpy(), df["rb_ohm"].to_numpy()
     assert np.allclose(df["sens_ra"], -ra / (ra + 2 * rb), atol=1e-6)
     assert np.allclose(df["sens_rb"], -2 * rb / (ra + 2 * rb), atol=1e-6)
@@ -200,22 +200,23 @@ monte_carlo = 0
 
 def test_same_seed_same_results_and_block_split_does_not_matter():
     s = study_of(open("studies/buzzer.toml", encoding="utf-8").read().replace("monte_carlo = 500", "monte_carlo = 64"))
-    whole, _ = analyse_block(s, 0, 300)
-    again, _ = analyse_block(s, 0, 300)
+    whole = analyse_designs(s, 0, 300)
+    again = analyse_designs(s, 0, 300)
     pd.testing.assert_frame_equal(whole, again)
-    parts = pd.concat([analyse_block(s, a, b)[0] for a, b in ((0, 7), (7, 150), (150, 300))],
+    parts = pd.concat([analyse_designs(s, a, b) for a, b in ((0, 7), (7, 150), (150, 300))],
                       ignore_index=True)
     pd.testing.assert_frame_equal(whole, parts)
     other = replace(s, seed=s.seed + 1)
-    moved, _ = analyse_block(other, 0, 300)
+    moved = analyse_designs(other, 0, 300)
     assert not np.allclose(moved["frequency_hz_mc_mean"].fillna(0), whole["frequency_hz_mc_mean"].fillna(0))
 
 
 def test_ranking_puts_feasible_and_higher_yield_first():
     s = study_of(open("studies/buzzer.toml", encoding="utf-8").read().replace("monte_carlo = 500", "monte_carlo = 64"))
-    df, _ = analyse_block(s, 0, s.n_designs)
-    r = rank_designs(s, df)
-    assert list(r["rank"]) == list(range(1, len(r) + 1))
+    df = analyse_designs(s, 0, s.n_designs)
+    df["rank"] = rank_designs(df)
+    r = df.sort_values("rank").reset_index(drop=True)
+    assert sorted(r["rank"]) == list(range(1, len(r) + 1))
     feas = r["feasible"].to_numpy()
     assert not np.any(np.diff(feas.astype(int)) > 0)          # no feasible after an infeasible
     y = r.loc[r["feasible"], "yield"].fillna(-1).to_numpy()
@@ -228,7 +229,7 @@ def test_ranking_puts_feasible_and_higher_yield_first():
 
 def test_taguchi_signal_to_noise_is_mean_square_over_variance():
     s = study_of(open("studies/buzzer.toml", encoding="utf-8").read().replace("monte_carlo = 500", "monte_carlo = 64"))
-    df, _ = analyse_block(s, 0, 50)
+    df = analyse_designs(s, 0, 50)
     m, sd = df["frequency_hz_mc_mean"], df["frequency_hz_mc_std"]
     ok = m.notna()
     # nominal-the-best S/N = 10 log10(mean^2 / s^2) [book: Taguchi methods]

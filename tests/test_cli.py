@@ -41,8 +41,10 @@ def test_every_example_runs_end_to_end(study, tmp_path, capsys):
     rec = json.loads((tmp_path / "run.json").read_text())
     assert rec["points"] == len(pts) == rec["points_in_parquet"]
     assert len(rec["study_sha256"]) == 64 and rec["seed"] >= 0
-    designs = pd.read_parquet(tmp_path / "designs.parquet")
-    assert list(designs["rank"]) == list(range(1, len(designs) + 1))
+    designs = pd.read_parquet(tmp_path / "designs.parquet")       # every design, design order
+    assert list(designs["design"]) == list(range(1, len(designs) + 1))
+    assert sorted(designs["rank"]) == list(range(1, len(designs) + 1))
+    assert rec["designs"] == len(designs)
     assert "rank" in out and "wrote" in out                    # the terminal table
     page = (tmp_path / f"{name}.html").read_text(encoding="utf-8")
     assert "Plotly.newPlot" in page and '<script src="http' not in page
@@ -83,7 +85,7 @@ def test_edited_workbook_changes_the_run(tmp_path, capsys):
     wb.save(tmp_path / "edited.xlsx")
     b = tmp_path / "b"
     assert cli(["run", str(tmp_path / "edited.xlsx"), "--out", str(b), "-q"], capsys)[0] == 0
-    best = pd.read_parquet(b / "designs.parquet").iloc[0]
+    best = pd.read_parquet(b / "designs.parquet").set_index("rank").loc[1]
     assert 5.4 <= best["pulse_width_s_nom"] <= 6.6
 
 

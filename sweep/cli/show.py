@@ -11,7 +11,7 @@ from rich.table import Table
 from ..reporting import eng
 
 err = Console(stderr=True)
-out = Console()
+out = Console() if sys.stdout.isatty() else Console(width=120)   # pipes and logs get room
 
 
 @contextlib.contextmanager
