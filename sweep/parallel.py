@@ -28,7 +28,7 @@ def dask_mapper(address: str):
 
     def mapper(fn, study, opt, jobs):
         try:
-            client = Client(address, timeout="10s")
+            client = Client(address, timeout="5s")
         except (OSError, TimeoutError) as e:
             raise InputError("", "--scheduler", f"cannot reach a Dask scheduler at {address}: {e}") from None
         try:

@@ -82,23 +82,34 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
     keys, streamed = [], 0
     writers: dict[str, pq.ParquetWriter] = {}
 
-    def write(name, path, df):
-        t = pa.Table.from_pandas(df, preserve_index=False)
-        if name not in writers:
-            writers[name] = pq.ParquetWriter(path, t.schema, compression="zstd")
-        writers[name].write_table(t)
+    pending: dict[str, list[pd.DataFrame]] = {"designs": [], "points": []}
+    paths = {"designs": table, "points": points_path}
+    group = {"designs": 1 << 16, "points": 1 << 18}      # rows per parquet row group
+
+    def write(name, df, flush=False):
+        """Buffer rows and write them in large row groups (few, big groups read fast)."""
+        if df is not None:
+            pending[name].append(df)
+        if pending[name] and (flush or sum(map(len, pending[name])) >= group[name]):
+            t = pa.Table.from_pandas(pd.concat(pending[name], ignore_index=True), preserve_index=False)
+            pending[name].clear()
+            if name not in writers:
+                writers[name] = pq.ParquetWriter(paths[name], t.schema, compression="zstd")
+            writers[name].write_table(t.cast(writers[name].schema))
 
     try:
         results = (mapper(analyse_block, study, o, blocks) if mapper else
                    (analyse_block(study, a, b, o) for a, b in blocks))
         for (a, b), (df, pts) in zip(blocks, results):
             keys.append(df[RANK_KEYS + ["reach"]])
-            write("designs", table, df.drop(columns=["reach"]))
+            write("designs", df.drop(columns=["reach"]))
             if pts is not None:
-                write("points", points_path, pts)
+                write("points", pts)
                 streamed += len(pts)
             if progress:
                 progress((b - a) * study.n_conditions)
+        write("designs", None, flush=True)
+        write("points", None, flush=True)
     finally:
         for w in writers.values():
             w.close()
@@ -176,23 +187,46 @@ def write_designs_table(study: Study, an: Analysis, path: Path) -> None:
             writer.close()
 
 
-def points_of(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool) -> pd.DataFrame:
-    """Points of the given designs (1-based numbers, in this order) up to `limit` rows."""
+def iter_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool):
+    """Point tables of the given designs (1-based numbers, in this order), block by block, up to
+    `limit` rows in all."""
     nc = study.n_conditions
-    keep = design_numbers[: max(1, limit // max(nc, 1))]
-    d_idx = keep - 1
-    design = axis_values(study.design, d_idx)
+    keep = np.asarray(design_numbers)[: max(1, limit // max(nc, 1))]
     c_idx = np.arange(nc)
     cond = axis_values(study.conditions, c_idx)
-    frames = []
     step = max(1, DEFAULT_CHUNK // max(nc, 1))
-    for s in range(0, len(d_idx), step):
-        sl = slice(s, s + step)
-        dd = {k: v[sl] for k, v in design.items()}
+    left = limit
+    for s in range(0, len(keep), step):
+        d_idx = keep[s:s + step] - 1
+        dd = axis_values(study.design, d_idx)
         out = evaluate_block(study, dd, cond, ideal=ideal)
-        frames.append(points_frame(study, d_idx[sl], c_idx, dd, cond, out))
-    df = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
-    return df.head(limit)
+        df = points_frame(study, d_idx, c_idx, dd, cond, out).head(left)
+        left -= len(df)
+        yield df
+        if left <= 0:
+            break
+
+
+def points_of(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool) -> pd.DataFrame:
+    """Points of the given designs (in this order) up to `limit` rows, as one table."""
+    frames = list(iter_points(study, design_numbers, limit, ideal))
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+
+
+def write_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool, path: Path) -> int:
+    """Stream the points of the given designs to parquet in row groups; returns the row count."""
+    writer, n = None, 0
+    try:
+        for df in iter_points(study, design_numbers, limit, ideal):
+            t = pa.Table.from_pandas(df, preserve_index=False)
+            if writer is None:
+                writer = pq.ParquetWriter(path, t.schema, compression="zstd")
+            writer.write_table(t.cast(writer.schema))
+            n += len(df)
+    finally:
+        if writer is not None:
+            writer.close()
+    return n
 
 
 def _tmp(path: Path) -> Path:
@@ -225,9 +259,8 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         if streamed == study.n_points:
             parquet_note = f"points.parquet holds all {study.n_points:,} points."
         else:
-            top_pts = points_of(study, order, parquet_points, ideal)
-            top_pts.to_parquet(tmp["points"], index=False, compression="zstd")
-            streamed = len(top_pts)
+            everyone = an.keys["design"].to_numpy()[np.argsort(an.keys["rank"].to_numpy(), kind="stable")]
+            streamed = write_points(study, everyone, parquet_points, ideal, tmp["points"])
             parquet_note = (f"The sweep has {study.n_points:,} points; points.parquet holds the "
                             f"{streamed:,} points of the best-ranked designs (use --all-points for all).")
         wb_pts = points_of(study, order, workbook_points, ideal)

@@ -67,10 +67,9 @@ def plain_point(st, ra, rb, c, vcc, t):
     return 1 / (th + tl), th / (th + tl)
 
 
-def main() -> None:
-    ap = argparse.ArgumentParser()
-    ap.add_argument("--loop-points", type=int, default=30_000)
-    args = ap.parse_args()
+def measure(loop_points: int = 30_000, ode_points: int = 40) -> dict:
+    """Engine points/s on a realistic astable sweep, a plain per-point loop of the same model and
+    a per-point ODE simulation (scipy solve_ivp), all measured in this run."""
     st = parse_study(STUDY.format(ra_max="1M"), "bench.toml")
     n = st.n_points
     # engine: every block of the whole study, timed end to end
@@ -82,7 +81,7 @@ def main() -> None:
         f_sum += float(np.nansum(out["frequency_hz"]))
     t_engine = time.perf_counter() - t0
     # plain loop over the first points, same model, same run
-    m = min(args.loop_points, n)
+    m = min(loop_points, n)
     d_per = max(1, m // st.n_conditions)
     design = axis_values(st.design, np.arange(d_per))
     t0 = time.perf_counter()
@@ -97,12 +96,40 @@ def main() -> None:
     ref = evaluate_block(st, design, cond, with_spec=False)["frequency_hz"][:, 0, :].ravel()
     assert np.allclose([g[0] for g in got], ref, rtol=1e-9), "plain loop disagrees with the engine"
     eng_rate, loop_rate = n / t_engine, loop_points / t_loop
+    ode_rate = _ode_rate(st, design, cond, ode_points)
     print(f"sweep: {st.n_designs:,} designs x {st.n_conditions} conditions = {n:,} points")
     print(f"engine      {eng_rate / 1e6:8.2f} M points/s  ({t_engine:.2f} s)")
     print(f"plain loop  {loop_rate / 1e6:8.3f} M points/s  ({loop_points:,} points, {t_loop:.2f} s)")
-    print(f"ratio       {eng_rate / loop_rate:8.1f} x")
-    print(json.dumps({"engine_points_per_s": round(eng_rate), "loop_points_per_s": round(loop_rate),
-                      "engine_over_loop": round(eng_rate / loop_rate, 2), "points": n}))
+    print(f"ODE         {ode_rate:8.1f} points/s  ({ode_points} points)")
+    print(f"ratio       {eng_rate / loop_rate:8.1f} x the plain loop, {eng_rate / ode_rate:,.0f} x the ODE")
+    return {"engine_points_per_s": round(eng_rate), "loop_points_per_s": round(loop_rate),
+            "engine_over_loop": round(eng_rate / loop_rate, 2), "ode_points_per_s": round(ode_rate, 1),
+            "engine_over_ode": round(eng_rate / ode_rate), "points": n}
+
+
+def _ode_rate(st, design, cond, count):
+    """Points per second of the independent ODE simulation used by the reference tests."""
+    import sys
+    from pathlib import Path
+    sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+    from tests.reference.test_ode import network, simulate
+    t0 = time.perf_counter()
+    done = 0
+    for i in range(count):
+        j = i % st.n_conditions
+        n = network("astable", st.timer, st.parts, st.load, vcc=float(cond["vcc"][j]),
+                    temperature=float(cond["temperature"][j]), c=float(design["c"][i % len(design["c"])]),
+                    ra=float(design["ra"][i % len(design["ra"])]), rb=float(design["rb"][i % len(design["rb"])]))
+        simulate(n)
+        done += 1
+    return done / (time.perf_counter() - t0)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--loop-points", type=int, default=30_000)
+    args = ap.parse_args()
+    print(json.dumps(measure(args.loop_points)))
 
 
 if __name__ == "__main__":

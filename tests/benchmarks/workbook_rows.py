@@ -46,6 +46,10 @@ def points_frame(n: int, seed: int = 1) -> pd.DataFrame:
 def main() -> None:
     n = int(sys.argv[1]) if len(sys.argv) > 1 else 100_000
     n_pd = int(sys.argv[2]) if len(sys.argv) > 2 else 10_000
+    print(json.dumps(measure(n, n_pd)))
+
+
+def measure(n: int = 100_000, n_pd: int = 10_000) -> dict:
     base = make_report()
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
@@ -71,11 +75,11 @@ def main() -> None:
           f"(other sheets {rest_s:.2f} s): {ours_rows_s:,.0f} rows/s, file {size_mb:.1f} MB")
     print(f"pandas to_excel(openpyxl): {n_pd} rows in {pd_s:.2f} s: {pd_rows_s:,.0f} rows/s")
     print(f"ratio: {ours_rows_s / pd_rows_s:.1f}x")
-    print(json.dumps({"rows": n, "columns": int(pts.shape[1]), "workbook_s": round(ours_s, 3),
+    return ({"rows": n, "columns": int(pts.shape[1]), "workbook_s": round(ours_s, 3),
                       "workbook_rows_per_s": round(ours_rows_s), "pandas_rows": n_pd,
                       "pandas_openpyxl_s": round(pd_s, 3),
                       "pandas_openpyxl_rows_per_s": round(pd_rows_s),
-                      "ratio": round(ours_rows_s / pd_rows_s, 2), "file_mb": round(size_mb, 2)}))
+                      "ratio": round(ours_rows_s / pd_rows_s, 2), "file_mb": round(size_mb, 2)})
 
 
 if __name__ == "__main__":

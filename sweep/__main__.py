@@ -1,0 +1,4 @@
+"""python -m sweep: the timer-sweep command line."""
+from .cli import main
+
+main()
