@@ -20,7 +20,7 @@ LIMIT_BYTES = 8 * 2**30
 @dataclass(frozen=True)
 class Estimate:
     points: int
-    evaluations: int          # sweep + worst-case corners + Monte Carlo (before screening)
+    evaluations: int          # sweep + worst-case corners + Monte Carlo (at most MC_DESIGNS designs)
     bytes: int                # peak memory, roughly
     seconds: float            # one process
     rate: float               # evaluations per second measured here
@@ -29,7 +29,9 @@ class Estimate:
 def estimate(study: Study, sample: int = 20_000) -> Estimate:
     nd, nc = study.n_designs, study.n_conditions
     corners = 2 ** len(varied_parts(study))
-    evals = nd * nc * (1 + corners + study.monte_carlo) + nd * (1 + 2 * len(varied_parts(study)))
+    from .pipeline import MC_DESIGNS
+    evals = (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
+             + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
     # measure this machine on a slice of the study itself
     k = max(1, min(nd, sample // max(nc, 1)))
     cond = axis_values(study.conditions, np.arange(min(nc, sample)))

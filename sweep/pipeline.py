@@ -4,6 +4,8 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import shutil
+import signal
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -229,8 +231,33 @@ def write_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bo
     return n
 
 
-def _tmp(path: Path) -> Path:
-    return path.with_name(f".{path.name}.part-{os.getpid()}")
+STAGING = ".timer-sweep-run-"
+
+
+def clean_stale(out_dir: Path) -> None:
+    """Remove the staging folder of a run that was killed outright (SIGKILL, power loss)."""
+    for p in out_dir.glob(STAGING + "*"):
+        try:
+            pid = int(p.name[len(STAGING):])
+            os.kill(pid, 0)
+        except ValueError:
+            continue
+        except ProcessLookupError:
+            shutil.rmtree(p, ignore_errors=True)
+        except PermissionError:
+            pass
+
+
+def commit(pairs: list[tuple[Path, Path]]) -> None:
+    """Rename every temporary onto its final name with SIGINT and SIGTERM held back, so a
+    run stopped at any moment leaves either all the new outputs or all the old ones."""
+    held = {signal.SIGINT, signal.SIGTERM}
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        for tmp, final in pairs:
+            os.replace(tmp, final)
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, old)
 
 
 def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: bool = False,
@@ -243,15 +270,17 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     from .writers.workbook import write_workbook
 
     check_writable(out_dir)
+    clean_stale(out_dir)
     t0 = time.perf_counter()
     final = {"workbook": out_dir / f"{study.name}.xlsx", "page": out_dir / f"{study.name}.html",
              "points": out_dir / "points.parquet", "designs": out_dir / "designs.parquet",
              "record": out_dir / "run.json"}
-    tmp = {k: _tmp(p) for k, p in final.items()}
+    staging = out_dir / f"{STAGING}{os.getpid()}"
+    staging.mkdir(exist_ok=True)
+    tmp = {k: staging / p.name for k, p in final.items()}
     try:
         limit = study.n_points if all_points else parquet_points
-        an = analyse(study, Options(ideal=ideal), out_dir, chunk, tmp["points"], limit, progress, mapper)
-        tmp["pass1"] = an.table
+        an = analyse(study, Options(ideal=ideal), staging, chunk, tmp["points"], limit, progress, mapper)
         t_an = time.perf_counter() - t0
         ranked = ranked_designs(study, an)
         order = ranked["design"].to_numpy()
@@ -288,12 +317,9 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         info["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
         info["sha256"] = {k: _sha256(tmp[k]) for k in ("points", "designs")}
         tmp["record"].write_text(json.dumps(info, indent=2) + "\n", encoding="utf-8")
-        for k in ("points", "designs", "workbook", "page", "record"):
-            os.replace(tmp[k], final[k])
+        commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "record")])
     finally:
-        for p in tmp.values():
-            if p.exists():
-                p.unlink()
+        shutil.rmtree(staging, ignore_errors=True)
     return RunResult(study, ranked, out_dir, final, info)
 
 

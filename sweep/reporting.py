@@ -239,7 +239,6 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
     lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
-    main = main_outputs(study.circuit)
     run_info = dict(run_info, meets_spec=meets)
     return Report(
         name=study.name, title=study.title, circuit=study.circuit, timer_name=study.timer.name,

@@ -164,6 +164,18 @@ def _bomb(path: Path):
         z.writestr("xl/worksheets/sheet1.xml", b"0" * (300 * 2**20))
 
 
+def _sparse(path: Path, size: int):
+    with open(path, "wb") as f:
+        f.truncate(size)
+
+
+def _plain_workbook(path: Path):
+    from openpyxl import Workbook
+    wb = Workbook()
+    wb.active.title = "Sheet of someone else"
+    wb.save(path)
+
+
 FILE_CASES = [
     ("folder", lambda p: p.mkdir(), ["is a folder"]),
     ("empty", lambda p: p.write_bytes(b""), ["empty"]),
@@ -173,6 +185,8 @@ FILE_CASES = [
     ("xlsx-not-zip", lambda p: p.with_suffix(".xlsx").write_text("hello"), ["not a workbook"]),
     ("xlsx-corrupt", lambda p: p.with_suffix(".xlsx").write_bytes(b"PK\x03\x04" + b"\x00" * 100), ["workbook"]),
     ("xlsx-bomb", lambda p: _bomb(p.with_suffix(".xlsx")), ["decompression bomb"]),
+    ("xlsx-oversized", lambda p: _sparse(p.with_suffix(".xlsx"), 60 * 2**20), ["60 MiB", "limit"]),
+    ("xlsx-no-study-sheet", lambda p: _plain_workbook(p.with_suffix(".xlsx")), ["Study", "no Study sheet"]),
 ]
 
 

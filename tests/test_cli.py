@@ -48,7 +48,7 @@ def test_every_example_runs_end_to_end(study, tmp_path, capsys):
     assert "rank" in out and "wrote" in out                    # the terminal table
     page = (tmp_path / f"{name}.html").read_text(encoding="utf-8")
     assert "Plotly.newPlot" in page and '<script src="http' not in page
-    assert not list(tmp_path.glob(".*part*"))                   # no temporary left behind
+    assert not list(tmp_path.glob(".*"))                        # no temporary left behind
 
 
 def test_points_rows_agree_with_the_flags_and_ok_columns(tmp_path, capsys):
@@ -135,3 +135,28 @@ def test_version_and_help(capsys):
     for cmd in (["--help"], ["run", "--help"], ["point", "--help"], ["check", "--help"], ["new", "--help"]):
         code, out, _ = cli(cmd, capsys)
         assert code == 0 and "Usage" in out
+
+
+def test_a_spec_no_design_can_meet_is_said_plainly_everywhere(tmp_path, capsys):
+    study = tmp_path / "impossible.toml"
+    study.write_text(Path("studies/buzzer.toml").read_text(encoding="utf-8")
+                     .replace('frequency = { target = "2.7kHz", tolerance = "8%" }',
+                              'frequency = { target = "2.7MHz", tolerance = "1%" }'), encoding="utf-8")
+    code, out, err = cli(["run", str(study), "--out", str(tmp_path / "o")], capsys)
+    assert code == 0, err
+    assert "No design meets the spec" in out                                   # terminal
+    wb = load_workbook(tmp_path / "o" / "impossible.xlsx", read_only=True)
+    summary = " ".join(str(c) for row in wb["Summary"].iter_rows(values_only=True) for c in row if c)
+    assert "NO DESIGN MEETS THE SPEC" in summary                               # Summary sheet
+    page = (tmp_path / "o" / "impossible.html").read_text(encoding="utf-8")
+    assert "NO DESIGN MEETS THE SPEC" in page                                  # chart page
+    assert json.loads((tmp_path / "o" / "run.json").read_text())["meets_spec"] is False
+
+
+def test_examples_show_a_pick_with_its_yield(tmp_path, capsys):
+    for study in EXAMPLES:
+        out = tmp_path / study.stem
+        assert cli(["run", str(study), "--out", str(out), "-q"], capsys)[0] == 0
+        best = pd.read_parquet(out / "designs.parquet").set_index("rank").loc[1]
+        assert 0.0 <= best["yield"] <= 1.0                                     # a sampled yield
+        assert "spec" in Path(study).read_text(encoding="utf-8")

@@ -90,7 +90,8 @@ def test_failed_write_keeps_the_old_file_and_leaves_no_temporary(tmp_path, monke
     def broken_replace(src, dst):
         raise OSError("disk full")
 
-    monkeypatch.setattr(page.os, "replace", broken_replace)
+    import sweep.writers.atomic as atomic
+    monkeypatch.setattr(atomic.os, "replace", broken_replace)
     with pytest.raises(OSError):
         write_page(out, make_report())
     assert out.read_text(encoding="utf-8") == "old page"

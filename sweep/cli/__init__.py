@@ -35,23 +35,30 @@ def _root(version: bool = typer.Option(False, "--version", callback=_version, is
 from . import commands  # noqa: E402,F401  (registers the commands on `app`)
 
 
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Console entry point: bad input exits 2 with one line, internal errors exit 1."""
+    """Console entry point: bad input exits 2 with one line, internal errors exit 1. SIGTERM is
+    handled like Ctrl-C: temporary files are removed and earlier outputs stay as they were."""
+    import signal
+    if argv is None:
+        signal.signal(signal.SIGTERM, _terminate)
     try:
         app(args=argv, standalone_mode=False)
     except InputError as e:
         print(f"timer-sweep: error: {e.message}", file=sys.stderr)
         sys.exit(2)
-    except SystemExit as e:
+    except SystemExit:
         raise
     except KeyboardInterrupt:
         print("timer-sweep: interrupted; previous outputs left as they were", file=sys.stderr)
         sys.exit(130)
     except Exception as e:  # noqa: BLE001
-        import click
-        if isinstance(e, click.exceptions.Abort):
+        if type(e).__name__ == "Abort":
             sys.exit(130)
-        if isinstance(e, click.ClickException):
+        if hasattr(e, "show") and hasattr(e, "exit_code"):   # a usage error of the CLI framework
             e.show()
             sys.exit(2)
         if os.environ.get("TIMER_SWEEP_DEBUG"):

@@ -20,10 +20,16 @@ def progress_bar(total: int, quiet: bool, est=None):
     if quiet:
         yield None
         return
-    from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
-                               TimeRemainingColumn, TransferSpeedColumn)
-    with Progress(TextColumn("sweeping"), BarColumn(), MofNCompleteColumn(),
-                  TextColumn("points"), TimeRemainingColumn(), console=err, transient=True) as p:
+    from rich.progress import (BarColumn, MofNCompleteColumn, Progress, ProgressColumn, TextColumn,
+                               TimeRemainingColumn)
+
+    class Rate(ProgressColumn):
+        def render(self, task):
+            return f"{task.speed / 1e6:.2f} M points/s" if task.speed else ""
+
+    with Progress(TextColumn("sweeping"), BarColumn(), MofNCompleteColumn(), TextColumn("points"),
+                  Rate(), TextColumn("left"), TimeRemainingColumn(), console=err,
+                  transient=True) as p:
         task = p.add_task("sweep", total=total)
         yield lambda n: p.advance(task, n)
 

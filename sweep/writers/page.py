@@ -11,9 +11,7 @@ from __future__ import annotations
 
 import html
 import math
-import os
 import pathlib
-import tempfile
 from dataclasses import dataclass
 
 import numpy as np
@@ -23,6 +21,7 @@ import plotly.io as pio
 from plotly.subplots import make_subplots
 
 from sweep.report import Report
+from sweep.writers.atomic import atomic_path
 from sweep.values import format_eng
 from sweep.variables import VARIABLES, Variable
 
@@ -915,15 +914,5 @@ def write_page(path: pathlib.Path, report: Report) -> None:
     path = pathlib.Path(path)
     text = render_page(report)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.chmod(tmp, 0o644)   # a page to share: readable like any other written file
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+    with atomic_path(path) as tmp:
+        tmp.write_text(text, encoding="utf-8", newline="\n")

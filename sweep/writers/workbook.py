@@ -41,8 +41,6 @@ from __future__ import annotations
 
 import json
 import math
-import os
-import tempfile
 import textwrap
 from dataclasses import dataclass
 from pathlib import Path
@@ -53,6 +51,7 @@ import xlsxwriter
 from xlsxwriter.utility import xl_rowcol_to_cell
 
 from sweep.report import Report
+from sweep.writers.atomic import atomic_path
 from sweep.values import format_eng
 from sweep.variables import AXES, VARIABLES
 
@@ -684,12 +683,6 @@ def _notes(ws, st: _Styles, report: Report) -> None:
     _page_setup(ws, 0)
 
 
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
-
-
 # --- the workbook --------------------------------------------------------------------------
 def write_workbook(path: Path, report: Report, *, cached_results: bool = True) -> None:
     """Write ``report`` as an XLSX workbook at ``path``, atomically.
@@ -699,12 +692,10 @@ def write_workbook(path: Path, report: Report, *, cached_results: bool = True) -
     ``cached_results=False`` stores 0 as the cached result of every Check formula (for tests that
     prove a spreadsheet program really recalculated)."""
     path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".xlsx.tmp", dir=path.parent)
-    os.close(fd)
-    try:
-        wb = xlsxwriter.Workbook(tmp, {"constant_memory": True, "strings_to_formulas": False,
-                                       "strings_to_numbers": False, "strings_to_urls": False,
-                                       "nan_inf_to_errors": False})
+    with atomic_path(path) as tmp:
+        wb = xlsxwriter.Workbook(str(tmp), {"constant_memory": True, "strings_to_formulas": False,
+                                            "strings_to_numbers": False, "strings_to_urls": False,
+                                            "nan_inf_to_errors": False})
         st = _Styles(wb)
         sheets = {name: wb.add_worksheet(name) for name in SHEETS}
         _summary(sheets["Summary"], st, report)
@@ -716,11 +707,3 @@ def write_workbook(path: Path, report: Report, *, cached_results: bool = True) -
         _notes(sheets["Notes"], st, report)
         sheets["Summary"].activate()
         wb.close()
-        os.chmod(tmp, 0o666 & ~_umask())   # mkstemp makes it private; give it a normal mode
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise

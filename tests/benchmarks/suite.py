@@ -25,7 +25,7 @@ sys.path.insert(0, str(HERE.parents[1]))
 
 import engine as engine_bench          # noqa: E402
 import workbook_rows                   # noqa: E402
-from sweep.analysis import Options, monte_carlo_block  # noqa: E402
+from sweep.analysis import monte_carlo_block  # noqa: E402
 from sweep.study import parse_study    # noqa: E402
 
 BIG = """# benchmark study: {points} points

@@ -1,0 +1,140 @@
+"""Interrupted runs, the sweep-size guard, determinism and injection through the whole CLI."""
+from __future__ import annotations
+
+import hashlib
+import json
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+from openpyxl import load_workbook
+
+from sweep.cli import main
+
+OUTPUTS = {"buzzer.xlsx", "buzzer.html", "points.parquet", "designs.parquet", "run.json"}
+
+
+def cli(args, capsys):
+    try:
+        code = main(args)
+    except SystemExit as e:
+        code = e.code
+    cap = capsys.readouterr()
+    return code, cap.out, cap.err
+
+
+def sha(p: Path) -> str:
+    return hashlib.sha256(p.read_bytes()).hexdigest()
+
+
+def consistent(out: Path) -> dict:
+    """The output set is whole: every file there and the record's hashes match the tables."""
+    assert {p.name for p in out.iterdir() if not p.name.startswith(".")} == OUTPUTS
+    rec = json.loads((out / "run.json").read_text())
+    for k in ("points", "designs"):
+        assert rec["sha256"][k] == sha(out / f"{k}.parquet")
+    return rec
+
+
+def run_cmd(study, out):
+    return [sys.executable, "-m", "sweep", "run", str(study), "--out", str(out), "--quiet"]
+
+
+@pytest.mark.parametrize("sig,delay", [(signal.SIGTERM, 0.8), (signal.SIGTERM, 2.0),
+                                       (signal.SIGINT, 3.0), (signal.SIGKILL, 1.5)])
+def test_a_killed_run_leaves_the_previous_outputs_whole(sig, delay, tmp_path):
+    study = tmp_path / "buzzer.toml"
+    study.write_text(Path("studies/buzzer.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    out = tmp_path / "out"
+    subprocess.run(run_cmd(study, out), check=True, timeout=300)
+    before = consistent(out)
+    before_hash = {p.name: sha(p) for p in out.iterdir()}
+    proc = subprocess.Popen(run_cmd(study, out), stderr=subprocess.PIPE, text=True)
+    time.sleep(delay)
+    proc.send_signal(sig)
+    _, err = proc.communicate(timeout=120)
+    after = consistent(out)
+    assert "Traceback" not in err
+    if proc.returncode != 0:          # stopped before the end: the old files, untouched
+        assert {p.name: sha(p) for p in out.iterdir() if not p.name.startswith(".")} == before_hash
+        assert after == before
+    if sig != signal.SIGKILL:
+        assert not [p for p in out.iterdir() if p.name.startswith(".")]   # nothing partial
+    else:                              # SIGKILL cannot be caught: the next run sweeps up
+        subprocess.run(run_cmd(study, out), check=True, timeout=300)
+        assert not [p for p in out.iterdir() if p.name.startswith(".")]
+        consistent(out)
+
+
+def test_size_guard_refuses_a_huge_sweep_and_says_how_to_narrow_it(tmp_path, capsys):
+    study = tmp_path / "huge.toml"
+    study.write_text("""[study]
+circuit = "astable"
+[design]
+ra = { series = "E192", min = "1", max = "10M" }
+rb = { series = "E192", min = "1", max = "10M" }
+c = { series = "E24", min = "1p", max = "1m" }
+[conditions]
+vcc = { min = 5, max = 15, steps = 11 }
+""", encoding="utf-8")
+    out = tmp_path / "out"
+    code, _, err = cli(["run", str(study), "--out", str(out), "--quiet"], capsys)
+    assert code == 2 and "Traceback" not in err
+    assert "sweep too large" in err and "--yes" in err and "points" in err
+    assert "'ra'" in err or "'rb'" in err                       # names the axis to narrow
+    assert not out.exists() or not any(out.iterdir())
+    code, outp, _ = cli(["check", str(study)], capsys)
+    assert code == 0 and "points" in outp
+
+
+def test_same_study_and_seed_give_identical_tables_and_hashes(tmp_path, capsys):
+    a, b = tmp_path / "a", tmp_path / "b"
+    for d in (a, b):
+        assert cli(["run", "studies/buzzer.toml", "--out", str(d), "-q"], capsys)[0] == 0
+    ra, rb = (json.loads((d / "run.json").read_text()) for d in (a, b))
+    for k in ("created", "seconds_analysis", "seconds_total"):
+        ra.pop(k), rb.pop(k)
+    assert ra == rb
+    assert sha(a / "points.parquet") == sha(b / "points.parquet")
+    assert sha(a / "designs.parquet") == sha(b / "designs.parquet")
+
+
+HOSTILE = '=HYPERLINK("http://example.invalid","x")<script>alert(1)</script>'
+
+
+def test_hostile_title_notes_and_file_name(tmp_path, capsys):
+    name = tmp_path / "=cmd@+x <b>.toml"
+    name.write_text(Path("studies/dosing-pump.toml").read_text(encoding="utf-8")
+                    .replace('title = "Dosing pump one-shot (invented example)"',
+                             f"title = '{HOSTILE}'\nnotes = '+SUM(1,2) @A1 -3'"), encoding="utf-8")
+    out = tmp_path / "out"
+    code, _, err = cli(["run", str(name), "--out", str(out), "-q"], capsys)
+    assert code == 0, err
+    files = sorted(p.name for p in out.iterdir())
+    assert all("<" not in f and "@" not in f and " " not in f for f in files)   # a safe file name
+    xlsx = next(out.glob("*.xlsx"))
+    wb = load_workbook(xlsx)
+    formulas = [(ws.title, c.coordinate) for ws in wb for row in ws.iter_rows() for c in row
+                if c.data_type == "f" and ws.title != "Check"]
+    assert formulas == []                                         # user text never a formula
+    texts = [c.value for ws in wb for row in ws.iter_rows() for c in row if isinstance(c.value, str)]
+    assert any(HOSTILE in t for t in texts) and any("+SUM(1,2)" in t for t in texts)
+    html = next(out.glob("*.html")).read_text(encoding="utf-8")
+    assert "<script>alert(1)" not in html and "&lt;script&gt;alert(1)" in html
+
+
+@pytest.mark.parametrize("args,words", [
+    (["--workers", "0"], ["--workers"]),
+    (["--workers", "many"], ["--workers"]),
+    (["--scheduler", "tcp://127.0.0.1:9"], ["--scheduler"]),
+    (["--out", "/proc/forbidden"], ["--out"]),
+    (["--bogus"], ["--bogus"]),
+])
+def test_bad_run_options(args, words, capsys):
+    code, _, err = cli(["run", "studies/jig-latch.toml", "-q"] + args, capsys)
+    assert code == 2 and "Traceback" not in err, err
+    for w in words:
+        assert w in err
