@@ -16,7 +16,6 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from . import values as qv
 from .engine import (TIMING, Variation, axis_values, evaluate_block, nominal_conditions,
                      spec_fail)
 from .physics import ASTABLES, CIRCUIT_PARTS, FLAG_BITS
@@ -27,7 +26,6 @@ from .variables import AXES
 SPEC_BIT = np.uint32(FLAG_BITS["spec-miss"])
 LIMIT_BITS = np.uint32(sum(b for k, b in FLAG_BITS.items() if k != "spec-miss"))
 SENS_STEP = 1e-4          # relative step of the central difference for elasticities [derived]
-SERIES_ORDER = ["E3", "E6", "E12", "E24", "E48", "E96", "E192"]
 
 
 def main_outputs(circuit: str) -> list[str]:
@@ -291,11 +289,10 @@ def plainness(study: Study, designs: pd.DataFrame) -> tuple[np.ndarray, np.ndarr
     for a in study.design:
         if a.key not in ("ra", "rb", "r", "c"):
             continue
-        idx = np.array([SERIES_ORDER.index(s) if (s := qv.series_of(v)) else len(SERIES_ORDER)
-                        for v in a.values])
-        pos = np.searchsorted(a.values, designs[a.column].to_numpy()) if np.all(np.diff(a.values) > 0) \
-            else np.array([int(np.flatnonzero(a.values == v)[0]) for v in designs[a.column]])
-        worst = np.maximum(worst, idx[np.clip(pos, 0, len(a.values) - 1)])
+        order = np.argsort(a.values, kind="stable")
+        pos = order[np.clip(np.searchsorted(a.values[order], designs[a.column].to_numpy()),
+                            0, len(a.values) - 1)]
+        worst = np.maximum(worst, a.series_rank[pos])
     if len(r_cols) > 1:
         vals = designs[r_cols].to_numpy()
         distinct = 1 + (np.diff(np.sort(vals, axis=1), axis=1) != 0).sum(axis=1)

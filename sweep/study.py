@@ -68,6 +68,9 @@ MAX_STEPS = 100_000
 MAX_POINTS_PER_AXIS = 100_000
 
 
+SERIES_ORDER = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
+
+
 @dataclass(frozen=True)
 class Axis:
     key: str                 # study key, e.g. "ra"
@@ -76,6 +79,15 @@ class Axis:
     role: str                # "design" | "condition"
     series: str | None = None
     nominal: float | None = None
+
+    series_rank: np.ndarray = field(init=False, repr=False, compare=False)
+
+    def __post_init__(self):
+        # for each value, the coarsest IEC 60063 series holding it: 0 = E3 ... 6 = E192, 7 = none
+        rank = np.array([SERIES_ORDER.index(s) if (s := qv.series_of(v)) else len(SERIES_ORDER)
+                         for v in self.values]) if self.key in ("ra", "rb", "r", "c") else \
+            np.full(len(self.values), len(SERIES_ORDER))
+        object.__setattr__(self, "series_rank", rank)
 
 
 @dataclass(frozen=True)
