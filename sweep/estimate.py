@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .analysis import summary_outputs, varied_parts
+from .analysis import Options, analyse_block, summary_outputs, varied_parts
 from .engine import DEFAULT_CHUNK, axis_values, evaluate_block
 from .errors import InputError
 from .study import Study
@@ -32,18 +32,26 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     from .pipeline import MC_DESIGNS
     evals = (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
              + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
-    # measure this machine on a slice of the study itself
+    # measure this machine on a slice of the study itself: one block of the first pass (sweep,
+    # corners, elasticities) and one Monte Carlo evaluation of the same size
     k = max(1, min(nd, sample // max(nc, 1)))
+    analyse_block(study, 0, 1, Options(monte_carlo=0))         # warm up
+    t0 = time.perf_counter()
+    analyse_block(study, 0, k, Options(monte_carlo=0))
+    per_point = max(time.perf_counter() - t0, 1e-6) / (k * nc)
     cond = axis_values(study.conditions, np.arange(min(nc, sample)))
     design = axis_values(study.design, np.arange(k))
-    evaluate_block(study, design, cond)                      # warm up
     t0 = time.perf_counter()
     evaluate_block(study, design, cond)
-    dt = max(time.perf_counter() - t0, 1e-6)
-    rate = k * len(next(iter(cond.values()))) / dt
-    ncol = 4 * len(summary_outputs(study)) + 20
-    mem = 200 * 2**20 + DEFAULT_CHUNK * 60 * 8 + nd * ncol * 8 * 3
-    return Estimate(nd * nc, evals, int(mem), evals / rate, rate)
+    rate = k * len(next(iter(cond.values()))) / max(time.perf_counter() - t0, 1e-6)
+    seconds = nd * nc * per_point + min(nd, MC_DESIGNS) * nc * study.monte_carlo / rate
+    # memory: the libraries, a few blocks of arrays, the ranking keys of every design, and the
+    # best designs' full rows kept for the workbook [measured: 685 MiB at 1e8 points]
+    from .pipeline import WORKBOOK_DESIGNS
+    ncol = 7 * len(summary_outputs(study)) + 20
+    mem = (250 * 2**20 + DEFAULT_CHUNK * 16 * 80 * 8 + nd * 10 * 8 * 3
+           + min(nd, WORKBOOK_DESIGNS) * ncol * 8 * 4)
+    return Estimate(nd * nc, evals, int(mem), seconds, rate)
 
 
 def human_time(s: float) -> str:
@@ -58,6 +66,17 @@ def human_time(s: float) -> str:
 
 def guard(study: Study, est: Estimate) -> None:
     """Refuse a run whose estimate exceeds a limit, saying why and how to narrow it."""
+    reasons = over_limits(est)
+    if reasons:
+        biggest = max(study.axes, key=lambda a: len(a.values))
+        raise InputError(study.path, "", "sweep too large: " + "; ".join(reasons) +
+                         f". Narrow it (the largest axis is '{biggest.key}' with {len(biggest.values):,} "
+                         "values: use a coarser series or fewer steps, or lower [analysis] monte_carlo), "
+                         "spread it with --workers or --scheduler, or pass --yes to run it anyway.")
+
+
+def over_limits(est: Estimate) -> list[str]:
+    """The limits of the size guard that this estimate exceeds, in words."""
     reasons = []
     if est.points > LIMIT_POINTS:
         reasons.append(f"{est.points:,} points (limit {LIMIT_POINTS:,})")
@@ -67,9 +86,4 @@ def guard(study: Study, est: Estimate) -> None:
         reasons.append(f"about {est.bytes / 2**30:.1f} GiB of memory (limit {LIMIT_BYTES / 2**30:.0f} GiB)")
     if est.seconds > LIMIT_SECONDS:
         reasons.append(f"{human_time(est.seconds)} on this machine (limit {LIMIT_SECONDS / 60:.0f} min)")
-    if reasons:
-        biggest = max(study.axes, key=lambda a: len(a.values))
-        raise InputError(study.path, "", "sweep too large: " + "; ".join(reasons) +
-                         f". Narrow it (the largest axis is '{biggest.key}' with {len(biggest.values):,} "
-                         "values: use a coarser series or fewer steps, or lower [analysis] monte_carlo), "
-                         "spread it with --workers or --scheduler, or pass --yes to run it anyway.")
+    return reasons

@@ -269,6 +269,10 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     from .writers.page import write_page
     from .writers.workbook import write_workbook
 
+    workbook = out_dir / f"{study.name}.xlsx"
+    if workbook.exists() and Path(study.path).resolve() == workbook.resolve():
+        raise InputError(study.path, "--out", "this run would overwrite the workbook it reads its "
+                         "study from; choose another --out folder")
     check_writable(out_dir)
     clean_stale(out_dir)
     t0 = time.perf_counter()
@@ -313,9 +317,10 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         write_workbook(tmp["workbook"], report)
         write_page(tmp["page"], report)
         info["meets_spec"] = report.run_info["meets_spec"]
+        info["worst_case_in_spec"] = report.run_info["worst_case_in_spec"]
         info["seconds_total"] = round(time.perf_counter() - t0, 3)
         info["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
-        info["sha256"] = {k: _sha256(tmp[k]) for k in ("points", "designs")}
+        info["sha256"] = {final[k].name: _sha256(tmp[k]) for k in ("points", "designs", "workbook", "page")}
         tmp["record"].write_text(json.dumps(info, indent=2) + "\n", encoding="utf-8")
         commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "record")])
     finally:

@@ -43,7 +43,15 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
         lines.append(("Verdict", f"NO DESIGN MEETS THE SPEC: {why}. The best candidate is shown; "
                                "widen the ranges or relax the spec."))
     else:
-        lines.append(("Verdict", "Design 1 in the ranking is the pick."))
+        misses = worst_case_misses(study, best)
+        if misses:
+            y_text = f" Its Monte Carlo yield ({y * 100:.1f} %) says how often a build meets it." \
+                if np.isfinite(y) else ""
+            lines.append(("Verdict", "Design 1 in the ranking is the pick, but its worst case misses "
+                                     "the spec: " + "; ".join(misses) + "." + y_text))
+        else:
+            lines.append(("Verdict", "Design 1 in the ranking is the pick: it meets every spec limit "
+                                     "even in the worst case."))
     lines.append(("Pick", f"design {int(best['design'])}: {design_text(study, best) or 'no timing parts'}"))
     for m in main:
         lines.append((f"{VARIABLES[m].label} nominal", eng(best[f"{m}_nom"], m)))
@@ -56,6 +64,16 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
                       "not sampled ([analysis] monte_carlo = 0)"))
         lines.append(("Worst-case margin", f"{best['wc_margin'] * 100:+.1f} % to the nearest spec limit"
                       if np.isfinite(best["wc_margin"]) else "-"))
+    p = study.parts
+    tol = [f"resistors ±{p.resistor_tolerance * 100:g} %"] if any(
+        a.key in ("ra", "rb", "r") for a in study.design) else []
+    if any(a.key == "c" for a in study.design):
+        tol.append(f"capacitor ±{p.capacitor_tolerance * 100:g} % ({p.technology.label})")
+    if tol:
+        implied = [a.series for a in study.design if a.series]
+        lines.append(("Tolerances assumed", ", ".join(tol) + (
+            f" (unless given in [parts], implied by the series: {', '.join(sorted(set(implied)))})"
+            if implied else "")))
     lines.append(("Supply current", f"{eng(best['supply_current_a_nom'], 'supply_current_a')} nominal, "
                                     f"{eng(best['supply_current_a_max'], 'supply_current_a')} at most"))
     if "idle_current_a_nom" in best:
@@ -66,15 +84,30 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
     return lines, meets
 
 
+def worst_case_misses(study: Study, best) -> list[str]:
+    """Plain words for every spec limit the pick's worst case crosses."""
+    out = []
+    for s in study.spec:
+        label = VARIABLES[s.column].label.lower()
+        lo, hi = best[f"{s.column}_wc_min"], best[f"{s.column}_wc_max"]
+        if np.isfinite(s.lo) and not lo >= s.lo:
+            out.append(f"{label} down to {eng(lo, s.column)} against a minimum of {eng(s.lo, s.column)}"
+                       + (f" ({(lo - s.lo) / abs(s.lo) * 100:+.1f} %)" if s.lo else ""))
+        if np.isfinite(s.hi) and not hi <= s.hi:
+            out.append(f"{label} up to {eng(hi, s.column)} against a maximum of {eng(s.hi, s.column)}"
+                       + (f" ({(hi - s.hi) / abs(s.hi) * 100:+.1f} %)" if s.hi else ""))
+    return out
+
+
 def cautions(study: Study, designs: pd.DataFrame) -> list[str]:
     out = ["Figures come from a model built on typical datasheet values and common practice; "
            "build and measure the chosen design before it goes into a product."]
     kind = study.load.kind
-    if kind in ("relay", "inductive"):
-        out.append("Relay or inductive load: fit a flyback diode across the coil; the switch-off "
+    if kind in ("relay", "inductive", "mains-switching"):
+        out.append("Relay coil or inductive load: fit a flyback diode across the coil; the switch-off "
                    "spike can destroy the timer's output stage.")
     if kind == "mains-switching":
-        out.append("The load switches mains: mains wiring can kill. Keep creepage and clearance, "
+        out.append("The load switches mains (through a relay or similar): mains wiring can kill. Keep creepage and clearance, "
                    "isolate the low-voltage side, and follow local electrical codes and licensed "
                    "practice; have the installation done or checked by a qualified person.")
     if study.supply == "battery":
@@ -169,8 +202,8 @@ def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
 
 
 def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int = 20000) -> pd.DataFrame | None:
-    main = main_outputs(study.circuit)
-    if not main or study.monte_carlo == 0:
+    main = [chart_output(study)]
+    if study.monte_carlo == 0:
         return None
     best = designs.iloc[0]
     design = {a.key: np.array([best[a.column]]) for a in study.design}
@@ -185,7 +218,8 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     nc = study.n_conditions
     if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
         cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
-    v = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]].ravel()
+    v = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]]
+    v = np.broadcast_to(v, (1, n, len(next(iter(cond.values()))))).ravel()
     if len(v) > cap:
         v = v[np.linspace(0, len(v) - 1, cap).astype(int)]
     return pd.DataFrame({"value": v})
@@ -239,7 +273,8 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
     lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
-    run_info = dict(run_info, meets_spec=meets)
+    run_info = dict(run_info, meets_spec=meets,
+                    worst_case_in_spec=meets and not worst_case_misses(study, designs.iloc[0]))
     return Report(
         name=study.name, title=study.title, circuit=study.circuit, timer_name=study.timer.name,
         ideal=ideal, main_output=chart_output(study),

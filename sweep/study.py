@@ -156,7 +156,15 @@ def load_study(path: str | Path) -> Study:
         raise InputError(fname, "", "file not found")
     if p.suffix.lower() in (".xlsx", ".xlsm"):
         from .workbook_input import read_study_sheet
-        text = read_study_sheet(p)
+        text, sheet_rows = read_study_sheet(p)
+        try:
+            return parse_study(text, fname, base_dir=p.parent)
+        except InputError as e:
+            if e.file != fname:
+                raise
+            row = sheet_rows.get(e.line) if e.line else None
+            where = f"{fname}, sheet Study" + (f", row {row}" if row else "")
+            raise InputError(where, e.key, e.problem) from None
     else:
         raw_bytes = p.read_bytes()
         if not raw_bytes.strip():
@@ -492,6 +500,10 @@ class _Parser:
                     lo, hi = target - a, target + a
                 if target <= 0:
                     self.fail("spec", f"{key}.target", "must be greater than zero")
+                if lo <= 0:
+                    self.fail("spec", f"{key}.tolerance", f"{tol!r} is as large as the target, so the "
+                              "lower limit is not positive; for a relative tolerance write it with % "
+                              "(e.g. \"15%\")")
             else:
                 if "min" not in value and "max" not in value:
                     self.fail("spec", key, "give min, max or both")
@@ -539,9 +551,19 @@ def study_rows(study: Study) -> list[tuple[str, str, str, str]]:
     return rows
 
 
-def rows_to_toml(rows: list[tuple[str, str, str]]) -> str:
-    """Study-sheet rows (section, key, value as TOML) back to study text."""
-    by_section: dict[str, list[str]] = {}
-    for section, key, value in rows:
-        by_section.setdefault(section, []).append(f"{key} = {value}")
-    return "\n".join(f"[{s}]\n" + "\n".join(lines) for s, lines in by_section.items()) + "\n"
+def rows_to_toml(rows: list[tuple[str, str, str]], row_numbers: list[int] | None = None
+                 ) -> tuple[str, dict[int, int]]:
+    """Study-sheet rows (section, key, value as TOML) back to study text, and a map from each
+    line of that text to the sheet row it came from (so errors can name the row)."""
+    by_section: dict[str, list[tuple[str, int]]] = {}
+    numbers = row_numbers or list(range(1, len(rows) + 1))
+    for (section, key, value), n in zip(rows, numbers):
+        by_section.setdefault(section, []).append((f"{key} = {value}", n))
+    lines, where = [], {}
+    for section, items in by_section.items():
+        lines.append(f"[{section}]")
+        where[len(lines)] = items[0][1]
+        for text, n in items:
+            lines.append(text)
+            where[len(lines)] = n
+    return "\n".join(lines) + "\n", where

@@ -46,8 +46,9 @@ def _guard(path: Path) -> None:
         raise InputError(fname, "", f"corrupt workbook: {e}") from None
 
 
-def read_study_sheet(path: Path) -> str:
-    """The Study sheet (row 1 a note, row 2 the header, rows from 3: section, key, value) as TOML."""
+def read_study_sheet(path: Path) -> tuple[str, dict[int, int]]:
+    """The Study sheet (row 1 a note, row 2 the header, rows from 3: section, key, value) as TOML,
+    with a map from each TOML line to its sheet row."""
     from openpyxl import load_workbook
     from openpyxl.xml import DEFUSEDXML
     if not DEFUSEDXML:      # openpyxl parses through defusedxml whenever it is installed
@@ -67,7 +68,7 @@ def read_study_sheet(path: Path) -> str:
             raise InputError(fname, "Study", "no Study sheet: only workbooks written by timer-sweep "
                              "can be run again")
         ws = wb["Study"]
-        rows = []
+        rows, numbers = [], []
         for i, row in enumerate(ws.iter_rows(min_row=3, max_col=3, values_only=True), start=3):
             if i > MAX_ROWS:
                 raise InputError(fname, "Study", f"more than {MAX_ROWS} rows")
@@ -77,8 +78,9 @@ def read_study_sheet(path: Path) -> str:
             if not section or not key or not value:
                 raise InputError(fname, f"Study!A{i}", "each row needs a section, a key and a value")
             rows.append((section, key, value))
+            numbers.append(i)
     finally:
         wb.close()
     if not rows:
         raise InputError(fname, "Study", "the Study sheet holds no rows")
-    return rows_to_toml(rows)
+    return rows_to_toml(rows, numbers)

@@ -234,3 +234,17 @@ def test_taguchi_signal_to_noise_is_mean_square_over_variance():
     ok = m.notna()
     # nominal-the-best S/N = 10 log10(mean^2 / s^2) [book: Taguchi methods]
     assert np.allclose(df.loc[ok, "sn_db"], 10 * np.log10(m[ok] ** 2 / sd[ok] ** 2))
+
+
+def test_latch_monte_carlo_covers_every_condition():
+    # a latch has no toleranced part: every build is the same, so the yield is 0 or 1 and the
+    # mean over builds x conditions is the plain mean over the conditions [derived]
+    s = study_of(open("studies/jig-latch.toml", encoding="utf-8").read())
+    df = analyse_designs(s, 0, 1)
+    assert df["yield"].iloc[0] == 1.0          # every figure sits inside the spec
+    from sweep.engine import axis_values, evaluate_block
+    cond = axis_values(s.conditions, np.arange(s.n_conditions))
+    i = evaluate_block(s, {}, cond, with_spec=False)["supply_current_a"].ravel()
+    assert df["supply_current_a_mc_mean"].iloc[0] == pytest.approx(i.mean(), rel=1e-12)
+    n = s.monte_carlo * s.n_conditions        # the sample: every build at every condition
+    assert df["supply_current_a_mc_std"].iloc[0] == pytest.approx(i.std() * math.sqrt(n / (n - 1)), rel=1e-9)

@@ -89,6 +89,7 @@ STUDY_CASES = [
     ("spec-mixed", GOOD + "[spec]\nfrequency = { target = \"2Hz\", tolerance = \"5%\", max = \"3Hz\" }\n", ["spec.frequency", "not both"]),
     ("spec-min-gt-max", GOOD + "[spec]\nduty = { min = 0.8, max = 0.6 }\n", ["spec.duty"]),
     ("spec-unknown-key", GOOD + "[spec]\nfrequency = { tgt = \"2Hz\" }\n", ["spec.frequency.tgt"]),
+    ("spec-tolerance-not-percent", GOOD + "[spec]\nfrequency = { target = \"2Hz\", tolerance = 15 }\n", ["spec.frequency.tolerance", "%"]),
     ("spec-unit", GOOD + "[spec]\nfrequency = { max = \"2s\" }\n", ["spec.frequency.max"]),
     ("mc-negative", GOOD + "[analysis]\nmonte_carlo = -1\n", ["analysis.monte_carlo"]),
     ("mc-float", GOOD + "[analysis]\nmonte_carlo = 10.5\n", ["analysis.monte_carlo"]),

@@ -71,7 +71,9 @@ def test_workbook_study_sheet_round_trip(tmp_path, capsys):
     da, db = pd.read_parquet(a / "designs.parquet"), pd.read_parquet(b / "designs.parquet")
     pd.testing.assert_frame_equal(da, db)
     ra, rb = json.loads((a / "run.json").read_text()), json.loads((b / "run.json").read_text())
-    assert ra["study_sha256"] == rb["study_sha256"] and ra["sha256"] == rb["sha256"]
+    assert ra["study_sha256"] == rb["study_sha256"]
+    for name in ("points.parquet", "designs.parquet", "dosing-pump.html"):
+        assert ra["sha256"][name] == rb["sha256"][name]
 
 
 def test_edited_workbook_changes_the_run(tmp_path, capsys):
@@ -160,3 +162,37 @@ def test_examples_show_a_pick_with_its_yield(tmp_path, capsys):
         best = pd.read_parquet(out / "designs.parquet").set_index("rank").loc[1]
         assert 0.0 <= best["yield"] <= 1.0                                     # a sampled yield
         assert "spec" in Path(study).read_text(encoding="utf-8")
+
+
+def test_a_mistake_in_an_edited_workbook_names_its_sheet_row(tmp_path, capsys):
+    a = tmp_path / "a"
+    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+    wb = load_workbook(a / "dosing-pump.xlsx")
+    ws = wb["Study"]
+    row = next(r[0].row for r in ws.iter_rows(min_row=3) if r[1].value == "capacitor")
+    ws.cell(row=row, column=3).value = '"tantalium"'
+    wb.save(tmp_path / "edited.xlsx")
+    code, _, err = cli(["run", str(tmp_path / "edited.xlsx"), "--out", str(tmp_path / "b"), "-q"], capsys)
+    assert code == 2 and f"sheet Study, row {row}" in err and "parts.capacitor" in err, err
+    assert "tantalum" in err                                   # the suggestion
+
+
+def test_a_workbook_run_never_overwrites_its_own_input(tmp_path, capsys):
+    a = tmp_path / "a"
+    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+    before = (a / "dosing-pump.xlsx").read_bytes()
+    code, _, err = cli(["run", str(a / "dosing-pump.xlsx"), "--out", str(a), "-q"], capsys)
+    assert code == 2 and "--out" in err and "overwrite" in err
+    assert (a / "dosing-pump.xlsx").read_bytes() == before
+
+
+def test_summary_says_when_the_picks_worst_case_misses_the_spec(tmp_path, capsys):
+    assert cli(["run", "studies/bike-light.toml", "--out", str(tmp_path), "-q"], capsys)[0] == 0
+    rec = json.loads((tmp_path / "run.json").read_text())
+    best = pd.read_parquet(tmp_path / "designs.parquet").set_index("rank").loc[1]
+    wb = load_workbook(tmp_path / "bike-light.xlsx", read_only=True)
+    text = " ".join(str(c) for row in wb["Summary"].iter_rows(values_only=True) for c in row if c)
+    inside = best["frequency_hz_wc_min"] >= 1.7 and best["frequency_hz_wc_max"] <= 2.3
+    assert rec["worst_case_in_spec"] == inside
+    assert ("worst case misses the spec" in text) == (not inside)
+    assert "Tolerances assumed" in text and "E12" in text

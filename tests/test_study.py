@@ -79,7 +79,7 @@ duty = { max = "60%" }
 
 def test_study_sheet_rows_round_trip():
     s = load_study("studies/bike-light.toml")
-    text = rows_to_toml([(a, b, c) for a, b, c, _ in study_rows(s)])
+    text, _ = rows_to_toml([(a, b, c) for a, b, c, _ in study_rows(s)])
     s2 = parse_study(text, "bike-light.xlsx")
     assert s2.digest == s.digest
 

@@ -59,8 +59,7 @@ def run(study: StudyArg,
         mapper = process_mapper(workers)
     with progress_bar(st.n_points, quiet or not sys.stderr.isatty(), est) as advance:
         res = run_study(st, out, ideal=ideal, all_points=all_points, progress=advance, mapper=mapper)
-    if not quiet:
-        top_table(res)
+    top_table(res, table=not quiet)
 
 
 @app.command()

@@ -34,7 +34,7 @@ def progress_bar(total: int, quiet: bool, est=None):
         yield lambda n: p.advance(task, n)
 
 
-def top_table(res, n: int = 5) -> None:
+def top_table(res, n: int = 5, table: bool = True) -> None:
     st, d = res.study, res.designs
     from ..analysis import main_outputs
     main = main_outputs(st.circuit)
@@ -48,14 +48,15 @@ def top_table(res, n: int = 5) -> None:
     t.add_column("yield", justify="right")
     t.add_column("I supply max", justify="right")
     t.add_column("flags")
-    for _, r in d.head(n).iterrows():
+    for _, r in d.head(n if table else 0).iterrows():
         cells = [str(r["rank"])] + [eng(r[a.column], a.column) for a in st.design]
         cells += [eng(r[f"{m}_nom"], m) for m in main]
         cells.append(f"{r['yield'] * 100:.1f} %" if r["yield"] == r["yield"] else "-")
         cells.append(eng(r["supply_current_a_max"], "supply_current_a"))
         cells.append(r["flags"] or "ok")
         t.add_row(*(escape(c) for c in cells))
-    out.print(t)
+    if table:
+        out.print(t)
     if not res.info.get("meets_spec", True):
         out.print("[bold]No design meets the spec.[/bold] The table shows the best candidates; widen "
                   "the ranges or relax the spec.")
@@ -71,7 +72,11 @@ def print_estimate(st, est) -> None:
     out.print(f"  points      {est.points:,}")
     out.print(f"  evaluations {est.evaluations:,} (sweep, worst-case corners, {st.monte_carlo:,} Monte Carlo builds)")
     out.print(f"  memory      about {est.bytes / 2**20:,.0f} MiB")
-    out.print(f"  time        {human_time(est.seconds)} on one process (measured {est.rate / 1e6:.1f} M evaluations/s here)")
+    out.print(f"  time        {human_time(est.seconds)} on one process (measured {est.rate:,.0f} evaluations/s here)")
+    from ..estimate import over_limits
+    reasons = over_limits(est)
+    if reasons:
+        out.print(escape("  run refuses this without --yes: " + "; ".join(reasons)))
 
 
 def print_point(row: dict) -> None:
