@@ -27,14 +27,14 @@ def _err(console_text: str) -> None:
 @app.command()
 def run(study: StudyArg,
         out: Annotated[Optional[Path], typer.Option("--out", "-o", help="Output folder "
-                                                    "[default: outputs/<study name>/]")] = None,
+                                                    "(default: outputs/<study name>/)")] = None,
         ideal: Ideal = False,
         all_points: Annotated[bool, typer.Option("--all-points", help="Stream every point to "
                                                  "points.parquet, however many.")] = False,
         workers: Annotated[int, typer.Option("--workers", "-w", min=1, max=256,
                                              help="Local worker processes.")] = 1,
         scheduler: Annotated[Optional[str], typer.Option("--scheduler", help="Address of a running "
-                                                         "Dask scheduler, e.g. tcp://10.0.0.5:8786.")] = None,
+                                                         "Dask scheduler, e.g. tcp://scheduler-host:8786.")] = None,
         yes: Annotated[bool, typer.Option("--yes", "-y", help="Run even when the estimate exceeds "
                                           "the size guard.")] = False,
         quiet: Quiet = False):
@@ -77,7 +77,7 @@ def check(study: StudyArg):
 def new(circuit: Annotated[str, typer.Argument(help="astable | astable-diode | astable-symmetric | "
                                                     "monostable | bistable")],
         out: Annotated[Optional[Path], typer.Option("--out", "-o", help="File to write "
-                                                    "[default: <circuit>.toml]")] = None,
+                                                    "(default: <circuit>.toml)")] = None,
         force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False):
     """Write a commented starter study for a circuit."""
     from ..starters import starter_text
@@ -99,19 +99,19 @@ def point(
     rb: Annotated[Optional[str], typer.Option(help="RB")] = None,
     r: Annotated[Optional[str], typer.Option(help="R (monostable, symmetric astable)")] = None,
     c: Annotated[Optional[str], typer.Option(help="C, e.g. 100n or 4n7")] = None,
-    vcc: Annotated[Optional[str], typer.Option(help="Supply [default: the timer's typical supply]")] = None,
-    temperature: Annotated[Optional[str], typer.Option(help="Ambient °C [default: 25]")] = None,
-    control_voltage: Annotated[Optional[str], typer.Option(help="Control-pin voltage [default: divider]")] = None,
+    vcc: Annotated[Optional[str], typer.Option(help="Supply (default: the timer's typical supply)")] = None,
+    temperature: Annotated[Optional[str], typer.Option(help="Ambient °C (default: 25)")] = None,
+    control_voltage: Annotated[Optional[str], typer.Option(help="Control-pin voltage (default: divider)")] = None,
     resistor_tolerance: Annotated[Optional[str], typer.Option()] = None,
     resistor_tempco: Annotated[Optional[str], typer.Option(help="e.g. 100ppm")] = None,
     resistor_power: Annotated[Optional[str], typer.Option(help="e.g. 0.25W")] = None,
     capacitor: Annotated[Optional[str], typer.Option(help="C0G | X7R | X5R | Y5V | polypropylene | polyester | electrolytic | tantalum")] = None,
     capacitor_tolerance: Annotated[Optional[str], typer.Option()] = None,
     capacitor_voltage: Annotated[Optional[str], typer.Option(help="Rated voltage, e.g. 16V")] = None,
-    stray_capacitance: Annotated[Optional[str], typer.Option(help="[default: 5p]")] = None,
-    diode_drop: Annotated[Optional[str], typer.Option(help="[default: 0.7V]")] = None,
+    stray_capacitance: Annotated[Optional[str], typer.Option(help="(default: 5p)")] = None,
+    diode_drop: Annotated[Optional[str], typer.Option(help="(default: 0.7V)")] = None,
     dc_bias_loss: Annotated[Optional[str], typer.Option()] = None,
-    load: Annotated[Optional[str], typer.Option(help="Load resistance, e.g. 1k [default: none]")] = None,
+    load: Annotated[Optional[str], typer.Option(help="Load resistance, e.g. 1k (default: none)")] = None,
     load_to: Annotated[Optional[str], typer.Option(help="ground | supply")] = None,
     load_forward_voltage: Annotated[Optional[str], typer.Option(help="LED drop in series with the load")] = None,
     load_kind: Annotated[Optional[str], typer.Option(help="resistive | led | relay | inductive | mains-switching")] = None,
