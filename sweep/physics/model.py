@@ -83,6 +83,20 @@ def output_stage(timer: TimerModel, load: Load, vcc_v):
     return v_oh0, v_ol0 + timer.low_ohm * i_l, zero, i_l
 
 
+def output_resistance(timer: TimerModel, load: Load, i_high_a, i_low_a):
+    """Thevenin resistance of the output seen by a timing resistor, in each state: the stage's
+    own resistance, with a conducting load (resistor, LED as a fixed drop) in parallel
+    [derived: Thevenin]. Returns (r_high, r_low) in ohms."""
+    rl = load.resistance_ohm
+    if not np.isfinite(rl):
+        return timer.high_ohm, timer.low_ohm
+    par_h = timer.high_ohm * rl / (timer.high_ohm + rl)
+    par_l = timer.low_ohm * rl / (timer.low_ohm + rl)
+    r_h = np.where(np.asarray(i_high_a) > 0, par_h, timer.high_ohm)
+    r_l = np.where(np.asarray(i_low_a) > 0, par_l, timer.low_ohm)
+    return r_h, r_l
+
+
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
              ideal: bool = False) -> dict[str, np.ndarray]:
@@ -128,7 +142,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         v_d, r_d = thevenin_with_sat(vcc, ra_t, timer.saturation_v, timer.saturation_ohm)
         vs_d, rs_d = v_d, rb_t + r_d                             # discharge through RB [book]
     elif circuit == "astable-symmetric":
-        vs_d, rs_d = v_ol, r_t + timer.low_ohm                   # output low sinks R [derived]
+        r_out_h, r_out_l = output_resistance(timer, load, i_load_h, i_load_l)
+        vs_d, rs_d = v_ol, r_t + r_out_l                         # output low sinks R [derived]
     # the charge phase runs in up to two segments: segment 1 while the capacitor is below v_sw,
     # then segment 2 [derived]. Only the diode circuit has two: RB sits across the diode, so the
     # diode conducts while (VCC - V) RB / (RA + RB) >= Vd, i.e. below v_sw = VCC - Vd (RA+RB)/RB;
@@ -142,7 +157,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         seg2 = (vcc, ra_t + rb_t)                                # diode off: RA + RB
         v_sw = vcc - vd * (ra_t + rb_t) / rb_t
     elif circuit == "astable-symmetric":
-        seg1 = seg2 = (v_oh, r_t + timer.high_ohm)               # output high drives R [derived]
+        seg1 = seg2 = (v_oh, r_t + r_out_h)                      # output high drives R [derived]
         v_sw = -np.inf
     elif circuit == "monostable":
         vs_c, rs_c = vcc, r_t

@@ -91,20 +91,27 @@ def network(circuit, timer, parts, load, *, vcc, temperature, c, ra=np.nan, rb=n
              + parts.stray_capacitance_f)
     g_leak = float(leakage_conductance_s(cap, c, parts.capacitor_voltage_v, temperature))
     # output stage as a straight line V = V0 -/+ R I against the load line [derived]
+    # seen from the timing resistor the output is a Thevenin source: the loaded output voltage
+    # behind the stage's resistance in parallel with a conducting load [book: Thevenin]
     v_oh, v_ol = vcc - timer.high_drop_v, timer.low_drop_v
-    if math.isfinite(load.resistance_ohm):
+    r_oh, r_ol = timer.high_ohm, timer.low_ohm
+    rl = load.resistance_ohm
+    if math.isfinite(rl):
         if load.to == "ground":     # the load hangs on the output when it is high
-            i = max(0.0, (v_oh - load.forward_voltage_v) / (load.resistance_ohm + timer.high_ohm))
+            i = max(0.0, (v_oh - load.forward_voltage_v) / (rl + timer.high_ohm))
             v_oh -= timer.high_ohm * i
+            if i > 0:
+                r_oh = 1.0 / (1.0 / timer.high_ohm + 1.0 / rl) if timer.high_ohm else 0.0
         else:                       # the load pulls the output up when it is low
-            i = max(0.0, (vcc - load.forward_voltage_v - v_ol)
-                    / (load.resistance_ohm + timer.low_ohm))
+            i = max(0.0, (vcc - load.forward_voltage_v - v_ol) / (rl + timer.low_ohm))
             v_ol += timer.low_ohm * i
+            if i > 0:
+                r_ol = 1.0 / (1.0 / timer.low_ohm + 1.0 / rl) if timer.low_ohm else 0.0
     return Network(circuit=circuit, vcc=vcc, v_up=v_up, v_lo=0.5 * v_up, c=c_eff, g_leak=g_leak,
                    i_b=timer.threshold_current_a, ra=ra * k_r, rb=rb * k_r, r=r * k_r,
                    v_sat0=timer.saturation_v, r_sat=timer.saturation_ohm,
-                   v_diode=parts.diode_drop_v, v_oh=v_oh, r_oh=timer.high_ohm, v_ol=v_ol,
-                   r_ol=timer.low_ohm, t_pd=timer.propagation_delay_s)
+                   v_diode=parts.diode_drop_v, v_oh=v_oh, r_oh=r_oh, v_ol=v_ol,
+                   r_ol=r_ol, t_pd=timer.propagation_delay_s)
 
 
 # --- node equations ------------------------------------------------------------------------
