@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 from openpyxl import load_workbook
 
-from sweep.cli import main
+from tests.cli_helpers import cli
 
 EXAMPLES = sorted(Path("studies").glob("*.toml"))
 MACHINE = ["design", "condition", "vcc_v", "temperature_c", "high_time_s", "low_time_s", "period_s",
@@ -18,13 +18,6 @@ MACHINE = ["design", "condition", "vcc_v", "temperature_c", "high_time_s", "low_
            "output_current_a", "discharge_peak_a", "ra_power_w", "junction_temp_c", "flags", "ok"]
 
 
-def cli(args, capsys):
-    try:
-        code = main(args)
-    except SystemExit as e:
-        code = e.code
-    cap = capsys.readouterr()
-    return code, cap.out, cap.err
 
 
 @pytest.mark.parametrize("study", EXAMPLES, ids=[p.stem for p in EXAMPLES])

@@ -12,18 +12,11 @@ from pathlib import Path
 import pytest
 from openpyxl import load_workbook
 
-from sweep.cli import main
+from tests.cli_helpers import cli
 
 OUTPUTS = {"buzzer.xlsx", "buzzer.html", "points.parquet", "designs.parquet", "run.json"}
 
 
-def cli(args, capsys):
-    try:
-        code = main(args)
-    except SystemExit as e:
-        code = e.code
-    cap = capsys.readouterr()
-    return code, cap.out, cap.err
 
 
 def sha(p: Path) -> str:
