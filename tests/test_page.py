@@ -12,11 +12,13 @@ import pathlib
 import re
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from sweep.report import SpecRow
 from sweep.writers import page
-from sweep.writers.page import HEADINGS, build_sections, pareto_frontier, write_page
+from sweep.writers.page import (HEADINGS, build_sections, map_states, pareto_frontier,
+                                parallel_order, write_page)
 from tests.fake_report import make_report
 
 HOSTILE = "<script>alert(1)</script>&\"'"
@@ -41,6 +43,32 @@ def bistable_report():
     return dataclasses.replace(r, circuit="bistable", main_output=None, part_columns=[],
                                mc_samples=None, temperature_curves=None, spec=[],
                                designs=r.designs.drop(columns=drop))
+
+
+def latch_report():
+    """A bistable study as the pipeline reports it: no parts chosen, one design, the supply
+    current as the output followed, Monte Carlo builds at every condition (100 x 9)."""
+    r = make_report()
+    keep = ["design", "supply_current_a_nom", "supply_current_a_max", "yield", "feasible", "rank",
+            "flags"]
+    designs = r.designs[keep].head(1).assign(rank=1, feasible=True, **{"yield": 1.0})
+    rng = np.random.default_rng(5)
+    vcc = np.repeat([4.75, 5.0, 5.25], 3)
+    mc = pd.DataFrame({"value": np.tile(vcc * 2.6e-3, 100) + rng.normal(0, 1e-5, 900)})
+    tc = pd.DataFrame([{"rank": 1, "vcc_v": v, "temperature_c": t, "value": v * 2.6e-3 + 1e-6 * t}
+                       for v in (4.75, 5.0, 5.25) for t in (15.0, 25.0, 35.0)])
+    return dataclasses.replace(
+        r, circuit="bistable", main_output="supply_current_a", part_columns=[], designs=designs,
+        mc_samples=mc, temperature_curves=tc,
+        spec=[SpecRow("supply_current", "supply_current_a", -np.inf, 0.04)],
+        run_info={"version": "test", "seed": 1, "monte_carlo": 100, "conditions": 9})
+
+
+def luminance(hex_colour: str) -> float:
+    """Relative luminance of an sRGB colour, 0 black to 1 white (WCAG 2.x definition)."""
+    rgb = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
 
 
 def map_points(fig):
@@ -116,17 +144,122 @@ def test_hover_and_ticks_use_engineering_notation():
     assert duty.layout.xaxis.type == "log"
 
 
-def test_map_rings_exactly_the_designs_whose_nominal_is_in_spec():
+def test_map_draws_each_design_in_its_state_and_the_states_apart_without_colour():
     r = make_report(n_designs=60)
     r.spec = [SpecRow("frequency", "frequency_hz", 50.0, 150.0, 100.0)]
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    rings = [t for t in fig.data if t.legendgroup == "spec" and t.x is not None and len(t.x)
-             and t.x[0] is not None]
-    got = sorted(zip(np.concatenate([t.x for t in rings]), np.concatenate([t.y for t in rings])))
     d = r.designs
-    inside = d[(d["frequency_hz_nom"] >= 50.0) & (d["frequency_hz_nom"] <= 150.0)]
-    assert 0 < len(inside) < len(d)
-    assert got == sorted(zip(inside["ra_ohm"], inside["rb_ohm"]))
+    inside = (d["frequency_hz_nom"] >= 50.0) & (d["frequency_hz_nom"] <= 150.0)
+    # the three states, written plainly from their definitions
+    want = {"meets": set(d.loc[d["feasible"], "design"].astype(str)),
+            "near": set(d.loc[inside & ~d["feasible"], "design"].astype(str)),
+            "breaks": set(d.loc[~inside & ~d["feasible"], "design"].astype(str))}
+    assert all(want.values()), "the example must have designs in every state"
+    drawn = [t for t in fig.data if t.customdata is not None and t.legendgroup in want]
+    got = {k: {row[0] for t in drawn if t.legendgroup == k for row in t.customdata}
+           for k in want}
+    assert got == want
+    style = {t.legendgroup: t.marker for t in drawn}
+    # told apart by size, fill and edge, not by colour alone (colour-blind readers)
+    assert style["breaks"].size < style["near"].size <= style["meets"].size
+    assert style["breaks"].opacity < 1 and not style["breaks"].line.width
+    assert style["near"].symbol == "circle-open" and style["meets"].symbol == "circle"
+    assert style["meets"].line.width >= 1 and style["meets"].line.color == "#000000"
+    # in every panel the good designs are drawn after (on top of) the faded ones
+    for panel in {t.xaxis for t in drawn}:
+        order = [t.legendgroup for t in drawn if t.xaxis == panel]
+        later = [k for k in ("near", "meets") if k in order]
+        if "breaks" in order and later:
+            assert order.index("breaks") < min(order.index(k) for k in later)
+    # the text describes what is drawn, and never the rings that used to hide the marks
+    explain = next(s.explain for s in build_sections(r) if s.key == "map")
+    assert "filled" in explain and "ring" in explain and "faded" in explain
+    assert "round marks" not in explain.lower()
+
+
+def test_map_states_at_realistic_density():
+    r = make_report(n_designs=3000)
+    ds = page._designs(r)
+    states = map_states(r, ds)
+    assert set(states) <= {"meets", "near", "breaks", "blank"}
+    assert (states[ds.feasible] == "meets").all()
+    lo, hi = 1.8, 2.2                       # the fake report's frequency spec
+    nominal = ds.table["frequency_hz_nom"].to_numpy()
+    outside = (nominal < lo) | (nominal > hi)
+    assert (states[outside & ~ds.feasible] == "breaks").all()
+    # the marks shrink with the grid but stay visible
+    fig = next(s.figure for s in build_sections(r) if s.key == "map")
+    sizes = [t.marker.size for t in fig.data if t.customdata is not None]
+    assert min(sizes) >= 3
+
+
+def test_map_axis_titles_sit_on_the_axes_held_off_the_ticks():
+    fig = next(s.figure for s in build_sections(make_report(n_designs=60)) if s.key == "map")
+    # titles placed as free annotations at a fixed distance ran into long tick labels
+    assert not any(a.text in ("RA [Ω]", "RB [Ω]") for a in fig.layout.annotations)
+    assert fig.layout.yaxis.title.text == "RB [Ω]" and fig.layout.yaxis.title.standoff >= 8
+    bottom = [fig.layout[k] for k in fig.layout if k.startswith("xaxis")]
+    assert any(ax.title.text == "RA [Ω]" and ax.title.standoff >= 8 for ax in bottom)
+    assert fig.layout.template.layout.yaxis.automargin      # the margin grows to hold them
+
+
+def test_parallel_lines_put_the_good_designs_on_top_in_dark_colours():
+    r = make_report(n_designs=200)
+    pc = next(s.figure for s in build_sections(r) if s.key == "parallel").data[0]
+    colours = np.asarray(pc.line.color, dtype=float)
+    # drawn in rising yield, so the best lines come last and lie on top
+    assert (np.diff(colours) >= 0).all()
+    assert colours[-1] == pytest.approx(r.designs["yield"].max())
+    # no yield is pale, full yield dark: a yield of 0 must not be the loudest colour
+    scale = pc.line.colorscale
+    assert scale[0][0] == 0 and scale[-1][0] == 1
+    assert luminance(scale[0][1]) > 0.7 and luminance(scale[-1][1]) < 0.1
+    lum = [luminance(c) for _, c in scale]
+    assert lum == sorted(lum, reverse=True)
+    # ties: the better rank is drawn later
+    assert parallel_order(np.array([0.0, 0.0, 0.9, np.nan]), np.array([1, 2, 3, 4])).tolist() \
+        == [3, 1, 0, 2]
+
+
+def test_page_counts_use_one_thousands_separator(tmp_path):
+    r = make_report(n_designs=1200)
+    r.summary.append(("Designs evaluated", f"{len(r.designs):,} x 9 conditions"))
+    out = tmp_path / "big.html"
+    write_page(out, r)
+    text = out.read_text(encoding="utf-8")
+    assert "<dd>1,200</dd>" in text and "<dd>10,800</dd>" in text
+    body = re.sub(r"<script.*?</script>", "", text, flags=re.S)
+    assert not re.search(r"\d \d{3}\b", body), "a count written with a space between thousands"
+
+
+def test_latch_charts_follow_the_supply_current_with_units_and_its_builds():
+    r = latch_report()
+    sections = {s.key: s for s in build_sections(r)}
+    mc = sections["mc"]
+    assert mc.figure is not None, mc.note
+    # the section says what it shows for a latch, and that the builds are there
+    assert "supply current" in mc.explain and "latch" in mc.explain
+    assert "no monte carlo" not in (mc.explain + mc.note).lower()
+    assert mc.note.startswith("100 builds × 9 conditions = 900 results")
+    assert "dashed" not in mc.explain, "the latch spec has no target line to describe"
+    # SI quantities carry their unit on every tick (common practice: 40 mA, not 40m)
+    ticks = list(mc.figure.layout.xaxis.ticktext)
+    assert ticks and all(t.endswith(" mA") for t in ticks), ticks
+    temp = sections["temperature"].figure
+    ticks = list(temp.layout.yaxis.ticktext)
+    assert ticks and all(t.endswith(" mA") for t in ticks), ticks
+    assert "five best-ranked" not in sections["temperature"].explain
+    # with Monte Carlo turned off the section says so, and does not blame the circuit
+    off = dataclasses.replace(r, mc_samples=None, run_info={"monte_carlo": 0})
+    note = next(s.note for s in build_sections(off) if s.key == "mc")
+    assert "turned off" in note and "timing" not in note
+
+
+def test_timer_histogram_and_drift_ticks_carry_hertz():
+    sections = {s.key: s for s in build_sections(make_report())}
+    for fig, axis in ((sections["mc"].figure, "xaxis"), (sections["temperature"].figure, "yaxis")):
+        ticks = list(fig.layout[axis].ticktext)
+        assert len(ticks) >= 3 and all(t.endswith("Hz") for t in ticks), ticks
 
 
 def test_many_values_of_the_third_part_give_a_dropdown():
@@ -230,3 +363,62 @@ def test_page_draws_every_chart_in_headless_chromium(tmp_path):
     assert counts["title"] == HOSTILE
     assert all(u.startswith(("file:", "data:", "blob:", "about:")) for u in requests), requests
     assert shot.stat().st_size > 50_000
+
+
+# Measured in the browser: every text of a chart lies inside the chart (nothing cut off at the
+# edge) and no axis title overlaps a tick label or the legend.
+LAYOUT_PROBLEMS = """() => {
+    const hit = (a, b) => a.left < b.right - 1 && b.left < a.right - 1 &&
+                          a.top < b.bottom - 1 && b.top < a.bottom - 1;
+    const shown = e => { const r = e.getBoundingClientRect();
+                         return e.textContent.trim() && r.width > 0 && r.height > 0 ? r : null; };
+    const out = [];
+    for (const plot of document.querySelectorAll('.chart .js-plotly-plot')) {
+        const svg = plot.querySelector('svg.main-svg').getBoundingClientRect();
+        const texts = [...plot.querySelectorAll('svg text')].filter(shown);
+        for (const t of texts) {
+            const r = t.getBoundingClientRect();
+            if (r.left < svg.left - 1 || r.right > svg.right + 1)
+                out.push(`${plot.id}: "${t.textContent}" runs past the chart's edge`);
+        }
+        const titles = [...plot.querySelectorAll(
+            '.g-xtitle text, .g-ytitle text, .annotation-text')].filter(shown);
+        const ticks = [...plot.querySelectorAll('.xtick text, .ytick text')].filter(shown);
+        const legends = [...plot.querySelectorAll('.legend .bg')].filter(
+            e => e.getBoundingClientRect().width > 0);
+        for (const t of titles) {
+            for (const k of ticks.concat(legends))
+                if (hit(t.getBoundingClientRect(), k.getBoundingClientRect()))
+                    out.push(`${plot.id}: title "${t.textContent}" overlaps ` +
+                             `"${k.textContent || 'the legend'}"`);
+        }
+    }
+    return out;
+}"""
+
+
+def test_chart_labels_are_neither_cut_off_nor_overlapping_in_chromium(tmp_path):
+    _require_browser()
+    from playwright.sync_api import sync_playwright
+
+    dense = make_report(n_designs=600)
+    # RB over 17 values from 100 kΩ to 2.2 MΩ: round ticks, one ("500 kΩ") beside the middle of
+    # the axis, where a title set at a fixed distance from the plot used to cover it
+    dense.designs["rb_ohm"] = np.geomspace(100e3, 2.2e6, 17)[np.arange(600) % 17]
+    pages = {"dense": dense, "latch": latch_report()}
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        try:
+            tab = browser.new_page(viewport={"width": 1280, "height": 900})
+            for name, report in pages.items():
+                out = tmp_path / f"{name}.html"
+                write_page(out, report)
+                figures = sum(s.figure is not None for s in build_sections(report))
+                tab.goto(out.resolve().as_uri())
+                tab.wait_for_function(
+                    """n => [...document.querySelectorAll('.chart .js-plotly-plot')].filter(
+                           p => p.querySelector('svg.main-svg') && p._fullData).length === n""",
+                    arg=figures, timeout=120_000)
+                assert tab.evaluate(LAYOUT_PROBLEMS) == [], name
+        finally:
+            browser.close()

@@ -2,7 +2,8 @@
 
 The page lays out what the :class:`~sweep.report.Report` holds; it computes nothing about the
 circuit. The only arithmetic here is presentation: log scales, tick positions, which designs
-sit inside the spec at their nominal point, and the yield/current trade-off frontier.
+sit inside the spec at their nominal point (and so how each is drawn), the order lines are drawn
+in, and the yield/current trade-off frontier.
 
 Every piece of user text (title, summary, cautions, flags, part values) is HTML-escaped, both in
 the page and inside the charts, whose labels plotly reads as a small subset of HTML.
@@ -54,7 +55,7 @@ HEADINGS = {
 
 CIRCUIT_TEXT = {
     "astable": "astable (free-running)",
-    "astable-diode": "astable with a diode across RB (duty below 50 %)",
+    "astable-diode": "astable with a diode across RB (duty can go below 50 %)",
     "astable-symmetric": "symmetric astable (one resistor from the output)",
     "monostable": "monostable (one pulse per trigger)",
     "bistable": "bistable (set/reset latch)",
@@ -127,6 +128,11 @@ def _header(name: str, extra: str = "") -> str:
     return f"{label} [{unit}]" if unit else label
 
 
+def _count(n: int) -> str:
+    """A count as the summary table writes it: comma between thousands (1,071)."""
+    return f"{int(n):,}"
+
+
 def _is_log(name: str) -> bool:
     return _var(_base(name)).log
 
@@ -170,26 +176,29 @@ def nice_ticks(lo: float, hi: float, log: bool, count: int = 6,
 
 
 def _axis(name: str, title: str | None = None, values: np.ndarray | None = None,
-          span: tuple[float, float] | None = None, discrete: bool = False) -> dict:
-    """Axis settings for a machine column: log where the registry says so, and ticks written
-    in engineering notation (4.7 kΩ, 100 nF): at the actual values when a part (``discrete``)
-    takes only a few, else at round values across ``values`` or ``span`` (data units)."""
+          span: tuple[float, float] | None = None, discrete: bool = False,
+          log: bool | None = None, count: int = 6) -> dict:
+    """Axis settings for a machine column: log where the registry says so (or as ``log``
+    says), and ticks written in engineering notation with the unit (4.7 kΩ, 100 nF, 40 mA):
+    at the actual values when a part (``discrete``) takes only a few, else at round values
+    across ``values`` or ``span`` (data units)."""
     v = _var(_base(name))
+    log = v.log if log is None else log
     ax: dict = {"title": {"text": title or _header(name)}}
-    if v.log:
+    if log:
         ax["type"] = "log"
     if v.fmt == "pct":
         ax["tickformat"] = ".0%"
     elif v.fmt == "eng":
         ax["tickformat"] = "~s"
         fin = _finite(values) if values is not None else np.zeros(0)
-        fin = fin[fin > 0] if v.log else fin
+        fin = fin[fin > 0] if log else fin
         uniq = np.unique(fin)
         if discrete and 1 <= len(uniq) <= 12:
             ticks = uniq.tolist()
         elif span is not None or fin.size:
             lo, hi = span if span is not None else (float(fin.min()), float(fin.max()))
-            ticks = nice_ticks(lo, hi, v.log)
+            ticks = nice_ticks(lo, hi, log, count=count)
         else:
             ticks = []
         if ticks:
@@ -313,14 +322,14 @@ def _current_column(d: pd.DataFrame) -> str | None:
 def _cap_note(ds: _Designs) -> str:
     if not ds.capped:
         return ""
-    return (f"This study has {ds.total:,} designs; this chart shows the {len(ds.table):,} "
-            "best-ranked.").replace(",", " ")
+    return (f"This study has {_count(ds.total)} designs; this chart shows the "
+            f"{_count(len(ds.table))} best-ranked.")
 
 
-def _pick_trace(x, y, hover: dict, **kw) -> go.Scatter:
+def _pick_trace(x, y, hover: dict, size: float = 19, **kw) -> go.Scatter:
     return go.Scatter(x=x, y=y, mode="markers", name="The pick (rank 1)", legendgroup="pick",
                       **hover,
-                      marker=dict(symbol="star", size=19, color=YELLOW,
+                      marker=dict(symbol="star", size=size, color=YELLOW,
                                   line=dict(color=BLACK, width=1.5)), **kw)
 
 
@@ -350,6 +359,52 @@ def _spec_lines(fig: go.Figure, report: Report, axis: str) -> None:
 
 
 # --- 1. design map -----------------------------------------------------------------------------
+#: the map's marks, drawn in this order so the designs that matter sit on top. Each state differs
+#: in size, fill and edge, not in colour alone (colour is the nominal value of the main output).
+MAP_BREAKS, MAP_NEAR, MAP_MEETS, MAP_BLANK = "breaks", "near", "meets", "blank"
+
+
+def map_states(report: Report, ds: _Designs) -> np.ndarray:
+    """The state each design of ``ds.table`` is drawn in on the design map: "meets" (every limit
+    met), "near" (its nominal main output is inside the spec, but it breaks another limit),
+    "breaks" (breaks a limit, nominal main output outside the spec or no spec on it) or "blank"
+    (no nominal value to place on the colour scale)."""
+    d = ds.table
+    main = report.main_output
+    nomcol = f"{main}_nom" if main and f"{main}_nom" in d.columns else None
+    nominal = d[nomcol].to_numpy(float) if nomcol else np.full(len(d), np.nan)
+    ccol = nomcol or ("yield" if "yield" in d.columns else None)
+    has_c = np.isfinite(d[ccol].to_numpy(float)) if ccol else np.zeros(len(d), dtype=bool)
+    lo, hi, _ = _main_limits(report)
+    has_spec = nomcol is not None and (np.isfinite(lo) or np.isfinite(hi))
+    with np.errstate(invalid="ignore"):
+        in_spec = (nominal >= lo) & (nominal <= hi) if has_spec else np.zeros(len(d), dtype=bool)
+    state = np.full(len(d), MAP_BREAKS, dtype=object)
+    state[in_spec] = MAP_NEAR
+    state[ds.feasible] = MAP_MEETS
+    state[~has_c] = MAP_BLANK
+    return state
+
+
+def _map_marks(size: float, main_label: str) -> dict:
+    """Legend name and marker style of each map state; None as colour means the colour scale."""
+    faded = max(3.0, round(size * 0.55, 1))
+    return {
+        MAP_BREAKS: (f"Breaks a limit, {main_label} outside the spec (small, faded)" if main_label
+                     else "Breaks a limit (small, faded)",
+                     dict(symbol="circle", size=faded, opacity=0.55, line=dict(width=0)), None),
+        MAP_BLANK: ("No nominal value (timing stalls)",
+                    dict(symbol="diamond-open", size=max(4.0, size * 0.7),
+                         line=dict(width=1, color=GREY)), GREY),
+        MAP_NEAR: (f"Nominal {main_label} in spec, another limit broken (ring)",
+                   dict(symbol="circle-open", size=size, line=dict(width=1.6, color="#1a1a1a")),
+                   "#1a1a1a"),
+        MAP_MEETS: ("Meets every limit (filled, dark edge)",
+                    dict(symbol="circle", size=size * 1.15, line=dict(width=1.6, color=BLACK)),
+                    None),
+    }
+
+
 def _map_section(report: Report, ds: _Designs) -> Section:
     sec = Section("map", HEADINGS["map"], "")
     d = ds.table
@@ -368,77 +423,77 @@ def _map_section(report: Report, ds: _Designs) -> Section:
     if clog:
         with np.errstate(divide="ignore", invalid="ignore"):
             cval = np.where(craw > 0, np.log10(np.where(craw > 0, craw, 1.0)), np.nan)
-    has_c = np.isfinite(cval)
     lo, hi, _ = _main_limits(report)
     has_spec = nomcol is not None and (np.isfinite(lo) or np.isfinite(hi))
-    nominal = d[nomcol].to_numpy(float) if nomcol else np.full(len(d), np.nan)
-    in_spec = (nominal >= lo) & (nominal <= hi) if has_spec else np.zeros(len(d), dtype=bool)
+    state = map_states(report, ds)
+    main_label = _var(main).label.lower() if main else ""
 
     x_all, y_all = d[xcol].to_numpy(float), d[ycol].to_numpy(float)
-    side = max(len(np.unique(x_all)), len(np.unique(y_all)))
-    size = float(np.clip(280 / max(side, 1), 5, 13))
-
     fvals = np.unique(d[fcol].to_numpy(float)) if fcol else np.array([np.nan])
     groups = [(v, d[fcol].to_numpy(float) == v) if fcol else (v, np.ones(len(d), dtype=bool))
               for v in fvals]
     flabel = _var(fcol).label if fcol else ""
     names = [f"{flabel} = {_fmt(v, fcol)}" if fcol else "" for v, _ in groups]
     facets = len(groups) <= MAX_PANELS
-    ncols = min(len(groups), 3) if facets else 1
+    ncols = (2 if len(groups) == 4 else min(len(groups), 3)) if facets else 1
     nrows = math.ceil(len(groups) / ncols) if facets else 1
+    # mark size from the spacing of the grid in a panel (the panels share about 810 x 330 px)
+    nx, ny = len(np.unique(x_all)), len(np.unique(y_all))
+    size = float(np.clip(0.8 * min(810 / ncols / max(nx, 1), 330 / max(ny, 1)), 5, 11))
+    marks = _map_marks(size, main_label if has_spec else "")
+
     xax, yax = _axis(xcol, values=x_all, discrete=True), _axis(ycol, values=y_all, discrete=True)
+    xtitle, ytitle = xax.pop("title")["text"], yax.pop("title")["text"]
     fig = make_subplots(rows=nrows, cols=ncols, shared_xaxes="all", shared_yaxes="all",
                         subplot_titles=[html.escape(n) for n in names] if facets and fcol else None,
-                        horizontal_spacing=0.05, vertical_spacing=0.14 if nrows > 1 else 0.1,
-                        x_title=xax.pop("title")["text"], y_title=yax.pop("title")["text"])
-    kinds = [("Meets every limit", ds.feasible & has_c, "circle", None),
-             ("Breaks a limit", ~ds.feasible & has_c, "x", None),
-             ("No nominal value", ~has_c, "diamond-open", GREY)]
+                        horizontal_spacing=0.06, vertical_spacing=0.16 if nrows > 1 else 0.1)
     spans = []
     for i, (value, m) in enumerate(groups):
         row, col = (i // ncols + 1, i % ncols + 1) if facets else (1, 1)
         show = facets or i == 0
         start = len(fig.data)
-        for name, which, symbol, colour in kinds:
-            sel = m & which
+        for key in (MAP_BREAKS, MAP_BLANK, MAP_NEAR, MAP_MEETS):   # faded first, best on top
+            sel = m & (state == key)
             if not sel.any():
                 continue
-            marker = dict(symbol=symbol, size=size, line=dict(width=0.5, color="#333333"))
-            if colour:
-                marker.update(color=colour, line=dict(width=1.2, color=colour))
-            else:
-                marker.update(color=cval[sel], coloraxis="coloraxis")
+            name, style, colour = marks[key]
+            marker = dict(style, color=colour) if colour else dict(
+                style, color=cval[sel], coloraxis="coloraxis")
             fig.add_trace(go.Scatter(
-                x=x_all[sel], y=y_all[sel], mode="markers", name=name, legendgroup=name,
+                x=x_all[sel], y=y_all[sel], mode="markers", name=name, legendgroup=key,
                 showlegend=False, marker=marker, **ds.hover(sel), visible=show), row=row, col=col)
-        sel = m & in_spec
-        if sel.any():
-            fig.add_trace(go.Scatter(
-                x=x_all[sel], y=y_all[sel], mode="markers", legendgroup="spec", showlegend=False,
-                hoverinfo="skip", visible=show,
-                marker=dict(symbol="circle-open", size=size + 9, color=BLACK,
-                            line=dict(width=1.6, color=BLACK))), row=row, col=col)
         sel = m & ds.pick
         if sel.any():
             fig.add_trace(_pick_trace(x_all[sel], y_all[sel], ds.hover(sel), visible=show,
-                                      showlegend=False), row=row, col=col)
+                                      showlegend=False, size=size + 9), row=row, col=col)
         spans.append((start, len(fig.data)))
-    # the legend: entries with fixed colours (the colour bar explains the fill)
+    # the legend: one entry per state present, in the order a reader looks for them
     keys = len(fig.data)
-    for name, which, symbol, colour in kinds:
-        if which.any():
-            fig.add_trace(_legend_only(name, name, mode="markers", marker=dict(
-                symbol=symbol, size=11, color=colour or "#5a5a5a",
-                line=dict(width=1.2 if colour else 0.5, color=colour or "#333333"))))
-    if in_spec.any():
-        fig.add_trace(_legend_only("Nominal inside the spec", "spec", mode="markers", marker=dict(
-            symbol="circle-open", size=15, color=BLACK, line=dict(width=1.6, color=BLACK))))
+    for key in (MAP_MEETS, MAP_NEAR, MAP_BREAKS, MAP_BLANK):
+        if (state == key).any():
+            name, style, colour = marks[key]
+            legend = dict(style, size=max(style["size"], 7) if key == MAP_BREAKS else 12,
+                          color=colour or "#6b6b6b")
+            fig.add_trace(_legend_only(name, key, mode="markers", marker=legend))
     if ds.pick.any():
         fig.add_trace(_legend_only("The pick (rank 1)", "pick", mode="markers", marker=dict(
             symbol="star", size=17, color=YELLOW, line=dict(color=BLACK, width=1.5))))
 
     fig.update_xaxes(**xax)
     fig.update_yaxes(**yax)
+    # axis titles on the axes themselves, held off the tick labels, so long ticks never cover them
+    used = len(groups) if facets else 1
+    for i in range(nrows * ncols):
+        row, col = i // ncols + 1, i % ncols + 1
+        if i >= used:
+            fig.update_xaxes(visible=False, row=row, col=col)
+            fig.update_yaxes(visible=False, row=row, col=col)
+            continue
+        if i + ncols >= used:          # nothing below it: this panel carries the x ticks
+            fig.update_xaxes(showticklabels=True, title=dict(text=html.escape(xtitle), standoff=12),
+                             row=row, col=col)
+        if col == 1:
+            fig.update_yaxes(title=dict(text=html.escape(ytitle), standoff=12), row=row, col=col)
     cax = dict(colorscale=SEQUENTIAL, colorbar=dict(
         title=dict(text=html.escape(_header(ccol, "(nominal)") if nomcol else "Yield")
                    if ccol else "", side="right"), thickness=14, len=0.9))
@@ -449,10 +504,12 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         cax["colorbar"]["ticktext"] = [_fmt(t, ccol) for t in ticks]
         c0, c1 = (math.log10(fin.min()), math.log10(fin.max())) if clog else (fin.min(), fin.max())
         cax.update(cmin=c0 - 0.5, cmax=c1 + 0.5) if c0 == c1 else cax.update(cmin=c0, cmax=c1)
-    legend_y = -80 / (340 * nrows - 40)   # about 80 px under the plots
-    fig.update_layout(template=_TEMPLATE, coloraxis=cax, height=340 * nrows + 130,
-                      legend=dict(orientation="h", x=0, y=legend_y, yanchor="top"),
-                      margin=dict(l=90, r=30, t=50, b=120))
+    top = 80 if not facets else 50
+    plot_h = 360 * nrows
+    height = plot_h + top + 150
+    fig.update_layout(template=_TEMPLATE, coloraxis=cax, height=height,
+                      legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
+                      margin=dict(l=90, r=30, t=top, b=150))
     if not facets:
         n = len(fig.data)
         buttons = [dict(label=html.escape(name), method="update",
@@ -461,38 +518,47 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         fig.update_layout(
             updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
                               yanchor="bottom", showactive=True, bgcolor="white",
-                              bordercolor="#9a9a9a")],
-            margin=dict(t=80))
+                              bordercolor="#9a9a9a")])
         fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
                            xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
                            showarrow=False)
     sec.figure = fig
 
-    main_label = _var(main).label.lower() if main else ""
     panels = ""
     if fcol and facets and len(groups) > 1:
-        panels = f" There is one panel per {html.escape(flabel)} value."
+        panels = f"; one panel per {html.escape(flabel)} value."
     elif fcol and not facets:
-        panels = (f" {html.escape(flabel)} takes {len(groups)} values: choose one in the list "
+        panels = (f". {html.escape(flabel)} takes {len(groups)} values: choose one in the list "
                   "at the top left of the chart.")
+    else:
+        panels = "."
     colour = ""
     if nomcol:
-        colour = f"Colour is the nominal {html.escape(main_label)} (scale on the right). "
+        colour = f" Colour is the nominal {html.escape(main_label)} (scale on the right)."
     elif ccol:
-        colour = "Colour is the yield (scale on the right). "
-    sec.explain = (
-        f"Each mark is one design, placed by its {html.escape(_var(xcol).label)} and "
-        f"{html.escape(_var(ycol).label)} values on log scales.{panels} {colour}"
-        "Round marks meet every limit in every condition; crosses break at least one. "
-        + ("A black ring marks a design whose nominal value sits inside the spec. "
-           if has_spec else "")
-        + "The star is the pick."
-        + (" Look for round marks with a ring and ringed neighbours: there the next standard "
-           "value up or down still lands in spec, so tolerances and drift have room."
-           if has_spec else ""))
+        colour = " Colour is the yield (scale on the right)."
+    main_text = html.escape(main_label)
+    text = [f"Each mark is one design, placed by its {html.escape(_var(xcol).label)} and "
+            f"{html.escape(_var(ycol).label)} values (log scales){panels}{colour}",
+            "Filled marks with a dark edge meet every limit (the spec at the nominal point, "
+            "every operating limit of the timer and parts in every condition)."]
+    if has_spec:
+        text.append(f"Open rings have the nominal {main_text} in spec but break another limit.")
+        text.append(f"Small faded dots have the {main_text} outside the spec; their colour "
+                    "shows which way it runs.")
+    else:
+        text.append("Small faded dots break at least one limit.")
+    if (state == MAP_BLANK).any():
+        text.append("Grey open diamonds have no nominal value (the timing stalls).")
+    text.append("The star is the pick; hover over any mark for its values.")
+    if has_spec:
+        text.append("Look for filled marks whose neighbours are filled or ringed too: there the "
+                    "next standard value up or down still lands in spec, so tolerances and drift "
+                    "have room.")
+    sec.explain = " ".join(text)
     notes = [_cap_note(ds)]
-    if has_spec and not in_spec.any():
-        notes.append("No design shown has its nominal value inside the spec.")
+    if has_spec and not np.isin(state, [MAP_NEAR, MAP_MEETS]).any():
+        notes.append(f"No design shown has its nominal {html.escape(main_label)} inside the spec.")
     sec.note = " ".join(n for n in notes if n)
     return sec
 
@@ -517,21 +583,28 @@ def _padded(values: np.ndarray, limits: tuple[float, float], log: bool,
     return (lo - pad, hi + pad)
 
 
+#: how the scatter charts draw a design that breaks a limit and one that meets every limit: the
+#: first small, grey and faded, the second larger, blue and dark-edged and drawn on top, so
+#: the few good designs stand out of thousands by size and edge, not by colour alone
+MARKS_BREAK = dict(symbol="circle", size=5, color="#9a9a9a", opacity=0.55, line=dict(width=0))
+MARKS_MEET = dict(symbol="circle", size=9, color=BLUE, line=dict(width=1.2, color=BLACK))
+
+
 def _design_marks(fig: go.Figure, x: np.ndarray, y: np.ndarray, ds: _Designs) -> None:
-    for name, sel, symbol, colour in (("Meets every limit", ds.feasible, "circle", BLUE),
-                                      ("Breaks a limit", ~ds.feasible, "x", VERMILLION)):
+    for name, sel, marker in (("Breaks a limit (small, grey)", ~ds.feasible, MARKS_BREAK),
+                              ("Meets every limit (blue, dark edge)", ds.feasible, MARKS_MEET)):
         if sel.any():
             fig.add_trace(go.Scatter(x=x[sel], y=y[sel], mode="markers", name=name,
-                                     marker=dict(symbol=symbol, size=8, color=colour, opacity=0.8,
-                                                 line=dict(width=0.5, color="#333333")),
-                                     **ds.hover(sel)))
+                                     marker=marker, **ds.hover(sel)))
 
 
 def _duty_section(report: Report, ds: _Designs) -> Section:
     sec = Section("duty", HEADINGS["duty"], (
         "Each mark is one design at its nominal point: frequency across (log scale), duty cycle "
         "(the share of each period the output is high) up. The shaded box is what the spec "
-        "allows for the two together. Prefer marks well inside the box to marks near its edge: "
+        "allows for the two together. Blue marks with a dark edge meet every limit (the spec "
+        "at the nominal point, and every operating limit in every condition); small grey dots "
+        "break at least one. Prefer marks well inside the box to marks near its edge: "
         "tolerances, supply and temperature move every design around its mark."))
     d = ds.table
     if not report.circuit.startswith("astable"):
@@ -569,8 +642,8 @@ def _duty_section(report: Report, ds: _Designs) -> Section:
     fig.update_layout(template=_TEMPLATE, height=480,
                       xaxis=dict(**xax, range=list(xr)),
                       yaxis=dict(**_axis("duty", "Duty cycle (nominal)"), range=list(yr)),
-                      legend=dict(orientation="h", x=0, y=-0.18, yanchor="top"),
-                      margin=dict(b=100))
+                      legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
+                      margin=dict(b=110))
     sec.figure = fig
     sec.note = " ".join(n for n in notes + [_cap_note(ds)] if n)
     return sec
@@ -585,7 +658,9 @@ def _yield_section(report: Report, ds: _Designs) -> Section:
         "Yield is the share of simulated builds, with every part drawn within its tolerance, "
         "that meet the spec at every supply and temperature. Supply current is the average "
         + ("draw in the condition that draws most. " if worst else "draw at the nominal point. ")
-        + "The stepped black line joins the designs that no other design beats on both counts: "
+        + "Blue marks with a dark edge meet every limit (the spec at the nominal point, and "
+          "every operating limit in every condition); small grey dots break at least one. The "
+          "stepped black line joins the designs that no other design beats on both counts: "
           "for a given current budget, the best yield on offer sits on the line. Walk along it "
           "from the left until the yield is high enough; further right only costs battery."))
     if cur is None or "yield" not in d.columns or not np.isfinite(d["yield"].to_numpy(float)).any():
@@ -611,27 +686,68 @@ def _yield_section(report: Report, ds: _Designs) -> Section:
     fig.update_layout(template=_TEMPLATE, height=480,
                       xaxis=dict(**xax, range=list(xr)),
                       yaxis=dict(title=dict(text="Yield"), tickformat=".0%", range=[-0.04, 1.06]),
-                      legend=dict(orientation="h", x=0, y=-0.18, yanchor="top"),
-                      margin=dict(b=100))
+                      legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
+                      margin=dict(b=110))
     sec.figure = fig
     sec.note = _cap_note(ds)
     return sec
 
 
 # --- 4. Monte Carlo histogram ------------------------------------------------------------------
+def _mc_counts(report: Report, values: int) -> str:
+    """How many builds and conditions the ``values`` drawn stand for, from the run record."""
+    info = report.run_info or {}
+    builds, conds = info.get("monte_carlo"), info.get("conditions")
+    if isinstance(builds, int) and builds > 0 and isinstance(conds, int) and conds > 0:
+        if builds * conds == values:
+            return (f"{_count(builds)} builds × {_count(conds)} conditions = "
+                    f"{_count(values)} results.")
+        return (f"{_count(values)} results, spread evenly over {_count(builds)} builds at "
+                f"{_count(conds)} conditions.")
+    return f"{_count(values)} results."
+
+
+def _mc_explain(report: Report) -> str:
+    """What the histogram shows, in words true to this report (latch or timer, limits drawn)."""
+    main = report.main_output
+    label = html.escape(_var(main).label.lower())
+    if report.circuit == "bistable":
+        what = (f"A latch has no timing, so the output followed is the {label} it draws (in "
+                "whichever state, set or reset, draws more). ")
+    else:
+        what = ""
+    lo, hi, target = _main_limits(report)
+    limits = sum(np.isfinite(v) for v in (lo, hi))
+    lines = []
+    if limits:
+        lines.append("the solid vertical line" + (" is the spec limit" if limits == 1
+                                                  else "s are the spec limits"))
+    if target is not None and np.isfinite(target):
+        lines.append("the dashed one the target")
+    marks = (" " + ", ".join(lines).capitalize() + ".") if lines else (
+        f" The spec sets no limit on the {label}, so no limit line is drawn.")
+    verdict = (" A narrow hump well inside the limits means the design is robust; results "
+               "beyond a line are the yield lost." if limits else "")
+    return (f"{what}Each build is the pick made again in simulation, with every part and the "
+            f"timer's own spread drawn at random within tolerance. The {label} of each build is "
+            "taken at every supply and temperature condition, and each bar counts those results "
+            f"(a build counts once per condition).{marks}{verdict} Separate humps mean the "
+            "conditions move the value more than the tolerances do.")
+
+
 def _mc_section(report: Report) -> Section:
     main = report.main_output
-    label = _var(main).label.lower() if main else "main output"
-    sec = Section("mc", HEADINGS["mc"], (
-        f"Each bar counts simulated builds of the pick, every part drawn at random within its "
-        f"tolerance, with the {html.escape(label)} taken at every supply and temperature condition "
-        "(each build counts once per condition). The "
-        "solid vertical lines are the spec limits, the dashed one the target. A narrow hump well "
-        "inside the limits means the design is robust; builds beyond a line are the yield lost."))
     mc = report.mc_samples
-    if main is None or mc is None or "value" not in mc.columns or mc.empty:
-        sec.note = ("this run has no Monte Carlo builds (the circuit has no timing output, or "
-                    "Monte Carlo was turned off).")
+    has_mc = mc is not None and "value" in mc.columns and not mc.empty
+    sec = Section("mc", HEADINGS["mc"], _mc_explain(report) if main else "")
+    if main is None:
+        sec.note = ("the Monte Carlo builds were made, but the report names no output to count "
+                    "them by." if has_mc else "this run has no output to follow across builds.")
+        return sec
+    if not has_mc:
+        mc_count = (report.run_info or {}).get("monte_carlo")
+        sec.note = ("Monte Carlo was turned off for this run (monte_carlo = 0 in the study)."
+                    if mc_count == 0 else "this run holds no Monte Carlo builds of the pick.")
         return sec
     raw = mc["value"].to_numpy(float)
     vals = _finite(raw)
@@ -641,21 +757,23 @@ def _mc_section(report: Report) -> Section:
     unit = _fmt_unit(main)
     fig = go.Figure(go.Histogram(x=vals, nbinsx=min(60, max(10, int(np.sqrt(vals.size)))),
                                  marker=dict(color=BLUE, line=dict(color="white", width=0.5)),
-                                 name="Builds", showlegend=False,
-                                 hovertemplate=f"%{{x}} {html.escape(unit)}: %{{y}} builds"
+                                 name="Results", showlegend=False,
+                                 hovertemplate=f"%{{x}} {html.escape(unit)}: %{{y}} results"
                                                "<extra></extra>"))
     _spec_lines(fig, report, "x")
     xr = _padded(vals, _main_limits(report)[:2], log=False)
+    xax = _axis(main, values=vals, span=xr, log=False, count=10)
     fig.update_layout(template=_TEMPLATE, height=440, bargap=0.02,
-                      xaxis=dict(title=dict(text=_header(main)), tickformat="~s", range=list(xr)),
-                      yaxis=dict(title=dict(text="Builds")),
-                      legend=dict(orientation="h", x=0, y=-0.2, yanchor="top"),
-                      margin=dict(t=20, b=100))
+                      xaxis=dict(**xax, range=list(xr)),
+                      yaxis=dict(title=dict(text="Results (build × condition)")),
+                      legend=dict(orientation="h", x=0, y=-0.24, yanchor="top"),
+                      margin=dict(t=20, b=110))
     sec.figure = fig
+    notes = [_mc_counts(report, raw.size)]
     dropped = raw.size - vals.size
-    notes = [f"{vals.size:,} builds.".replace(",", " ")]
     if dropped:
-        notes.append(f"{dropped} builds gave no value (the timing stalls) and are not drawn.")
+        notes.append(f"{_count(dropped)} results gave no value (the timing stalls) and are not "
+                     "drawn.")
     sec.note = " ".join(notes)
     return sec
 
@@ -664,19 +782,25 @@ def _mc_section(report: Report) -> Section:
 def _temperature_section(report: Report, ds: _Designs) -> Section:
     main = report.main_output
     label = _var(main).label.lower() if main else "main output"
-    sec = Section("temperature", HEADINGS["temperature"], (
-        f"How the {html.escape(label)} of the five best-ranked designs moves with the ambient "
-        "temperature, one line per supply voltage. Colour and marker shape tell the designs "
-        "apart, the dash pattern tells the supply. Flat lines that stay close together mean the "
-        "design shrugs off heat and supply changes; a steep or fanning line shows where its "
-        "margin goes. Click a legend entry to hide a line."))
+    sec = Section("temperature", HEADINGS["temperature"], "")
     tc = report.temperature_curves
     need = {"rank", "vcc_v", "temperature_c", "value"}
     if main is None or tc is None or tc.empty or not need <= set(tc.columns):
-        sec.note = "this run has no temperature curves (the circuit has no timing output)."
+        sec.note = ("this run has no temperature curves" + (
+            " (the report names no output to follow)." if main is None else "."))
         return sec
     tc = tc.sort_values(["rank", "vcc_v", "temperature_c"])
     ranks = sorted(pd.unique(tc["rank"]))[:5]
+    who = ("the best-ranked design" if len(ranks) == 1 else
+           f"the {len(ranks)} best-ranked designs")
+    sec.explain = (
+        f"How the {html.escape(label)} of {who} moves with the ambient temperature, one line "
+        "per supply voltage. "
+        + ("Colour and marker shape tell the designs apart, the dash pattern tells the supply. "
+           if len(ranks) > 1 else "The dash pattern tells the supply. ")
+        + "Flat lines that stay close together mean the design shrugs off heat and supply "
+          "changes; a steep or fanning line shows where its margin goes. Click a legend entry "
+          "to hide a line.")
     vccs = sorted(pd.unique(tc["vcc_v"]))
     design_of = {}
     if "rank" in ds.table.columns and "design" in ds.table.columns:
@@ -706,8 +830,9 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
                  log=False)
     rows = len(ranks) * (len(vccs) + 1) + 2          # legend lines: group titles, supplies, spec
     fig.update_layout(template=_TEMPLATE, height=max(460, 190 + 21 * rows + 8 * len(ranks)),
-                      xaxis=dict(title=dict(text=_header("temperature_c"))),
-                      yaxis=dict(title=dict(text=_header(main)), tickformat="~s", range=list(yr)),
+                      xaxis=dict(title=dict(text=_header("temperature_c")), ticksuffix=" °C"),
+                      yaxis=dict(**_axis(main, values=tc["value"].to_numpy(float), span=yr,
+                                         log=False, count=8), range=list(yr)),
                       legend=dict(groupclick="toggleitem", tracegroupgap=8),
                       margin=dict(r=20, t=20))
     sec.figure = fig
@@ -738,13 +863,20 @@ def _pc_dimension(name: str, label: str, values: np.ndarray, parts: list[str]) -
     return dict(label=html.escape(label), values=vals, tickvals=tv, ticktext=text, range=rng)
 
 
+def parallel_order(yld: np.ndarray, rank: np.ndarray) -> np.ndarray:
+    """Row order in which the parallel-coordinates lines are drawn, last on top: lowest yield
+    first (no yield counts lowest), best yield last; among equal yields the better rank later."""
+    y = np.where(np.isfinite(yld), yld, -1.0)
+    return np.lexsort((-np.asarray(rank, dtype=float), y))
+
+
+#: yield colours for the lines: pale grey for none, through mid blue, to a dark saturated blue
+#: for all. Lightness rises steadily, so the scale reads the same with any colour vision.
+YIELD_LINES = [[0.0, "#e2e2e2"], [0.25, "#c3d3e4"], [0.6, "#4f86bd"], [1.0, "#08306b"]]
+
+
 def _parallel_section(report: Report, ds: _Designs) -> Section:
-    sec = Section("parallel", HEADINGS["parallel"], (
-        "Every design is one line crossing the axes from left to right: its parts (log scales), "
-        "then what they give. Colour is the yield, darkest for the best. Drag along an axis to "
-        "keep only the lines that pass through that stretch; click the axis outside it to clear. "
-        "For example, drag over the top of the yield axis to see which part values the good "
-        "designs share. Drag an axis title sideways to reorder the axes."))
+    sec = Section("parallel", HEADINGS["parallel"], "")
     d = ds.table
     if d.empty:
         sec.note = "there are no designs to show."
@@ -763,7 +895,10 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
     if len(cols) < 2:
         sec.note = "there are too few columns to compare."
         return sec
-    data = d[cols].to_numpy(float)
+    rank = d["rank"].to_numpy(float) if "rank" in d.columns else np.arange(1, len(d) + 1.0)
+    yld = d["yield"].to_numpy(float) if "yield" in cols else np.full(len(d), np.nan)
+    order = parallel_order(yld, rank)
+    data = d[cols].to_numpy(float)[order]
     logs = np.array([_is_log(c) for c in cols])
     with np.errstate(invalid="ignore"):
         usable = np.isfinite(data).all(axis=1) & ((data > 0) | ~logs).all(axis=1)
@@ -774,20 +909,48 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
     dims = [_pc_dimension(c, lab, data[:, k], report.part_columns)
             for k, (c, lab) in enumerate(zip(cols, labels))]
     if "yield" in cols:
-        line = dict(color=d["yield"].to_numpy(float)[usable], colorscale=SEQUENTIAL,
-                    reversescale=True, cmin=0, cmax=1, showscale=True,
-                    colorbar=dict(title=dict(text="Yield"), tickformat=".0%", thickness=14,
-                                  x=1.02, xanchor="left"))
+        line = dict(color=yld[order][usable], colorscale=YIELD_LINES, cmin=0, cmax=1,
+                    showscale=True,
+                    colorbar=dict(title=dict(text="Yield", side="top"), tickformat=".0%",
+                                  thickness=14, len=0.8, x=1.0, xanchor="left", xpad=30,
+                                  y=0.45, yanchor="middle"))
     else:
         line = dict(color=BLUE)
+    # the axis labels sit centred over the first and last axes, above the plot: the margins
+    # must hold half of each (about 7.5 px a character at 13 px); the colour bar sits in the
+    # right margin below the labels
+    half = [4.0 * len(labels[0]) + 16, 4.0 * len(labels[-1]) + 16]
+    right = max(half[1], 110 if "yield" in cols else 30)
     fig = go.Figure(go.Parcoords(dimensions=dims, line=line,
                                  labelfont=dict(size=13), tickfont=dict(size=11),
                                  rangefont=dict(size=1, color="rgba(0,0,0,0)")))
-    fig.update_layout(template=_TEMPLATE, height=520, margin=dict(l=80, r=110, t=80, b=40))
+    fig.update_layout(template=_TEMPLATE, height=540,
+                      margin=dict(l=max(80, int(half[0])), r=int(right), t=80, b=40))
     sec.figure = fig
+    good = ("Colour is the yield: pale grey lines are designs with little or none, and the "
+            "darker and bluer a line the higher its yield; the best are drawn last, on top. "
+            if "yield" in cols else "")
+    what = ("its parts (log scales), then what they give" if any(c in report.part_columns
+                                                                 for c in cols)
+            else "the figures it gives")
+    sec.explain = (
+        f"Every design is one line crossing the axes from left to right: {what}. "
+        f"{good}Drag along an axis to keep only the lines that pass "
+        "through that stretch; click the axis outside it to clear."
+        + (" For example, drag over the top of the yield axis to see which part values the "
+           "good designs share." if "yield" in cols else "")
+        + " Drag an axis title sideways to reorder the axes.")
     notes = [_cap_note(ds)]
+    if len(data) == 1:
+        notes.append("This study has a single design, so there is one line.")
     if (~usable).sum():
-        notes.append(f"{int((~usable).sum())} designs without a value in some column are left out.")
+        notes.append(f"{_count((~usable).sum())} designs without a value in some column are "
+                     "left out.")
+    if "yield" in cols:
+        none = int((yld[order][usable] <= 0).sum())
+        if none:
+            notes.append(f"{_count(none)} of the {_count(usable.sum())} lines have no yield at "
+                         "all (pale grey).")
     sec.note = " ".join(n for n in notes if n)
     return sec
 
@@ -850,8 +1013,8 @@ def _header_html(report: Report, ds: _Designs) -> str:
                   if report.ideal else "realistic (bias currents, output stage, drift, parts)"))
     if report.main_output:
         facts.append(("Main output", esc(_var(report.main_output).label)))
-    facts.append(("Designs", f"{ds.total:,}".replace(",", " ")))
-    facts.append(("Points evaluated", f"{report.points_total:,}".replace(",", " ")))
+    facts.append(("Designs", _count(ds.total)))
+    facts.append(("Points evaluated", _count(report.points_total)))
     out = ['<header class="top">', '<p class="kicker">timer-sweep chart page</p>',
            f"<h1>{esc(report.title)}</h1>", '<dl class="facts">']
     out += [f"<dt>{k}</dt><dd>{v}</dd>" for k, v in facts]
