@@ -1,7 +1,9 @@
-"""The XLSX workbook: layout, units, safety of text, empty cells for NaN, and live Check formulas
-recalculated by an independent spreadsheet program (LibreOffice, headless)."""
+"""The XLSX workbook: layout, units, safety of text, empty cells for NaN, live Check formulas
+recalculated by an independent spreadsheet program (LibreOffice, headless), the numbers as that
+program shows them, the Result words, and what a printout holds."""
 from __future__ import annotations
 
+import csv
 import dataclasses
 import math
 import os
@@ -15,10 +17,12 @@ import numpy as np
 import openpyxl
 import pandas as pd
 import pytest
+from scipy.integrate import solve_ivp
 
 from sweep.models import load_timer
 from sweep.physics import Load, Parts, evaluate
-from sweep.writers.workbook import ENG_FORMAT, KM_FORMAT, SHEETS, write_workbook
+from sweep.writers.workbook import (ENG_FORMAT, KM3_FORMAT, KM_FORMAT, PRINT_ROWS, SHEETS,
+                                    write_workbook)
 from tests.fake_report import make_report
 
 HOSTILE_TITLE = '=HYPERLINK("http://x","y")'
@@ -98,19 +102,53 @@ def test_rows_follow_the_report(book):
     np.testing.assert_allclose(got, rep.points["frequency_hz"].to_numpy(), rtol=1e-15)
 
 
-def test_pass_fail_reads_without_colour(book):
-    rep, _, wb = book
+def _with_every_result(rep):
+    """The demo report with designs of all four Result kinds: feasible and clean, feasible with
+    a spec miss at some condition, infeasible with only the spec missed, and a broken limit."""
+    d = rep.designs.copy()
+    feas = d.index[d["feasible"]]
+    d.loc[feas[1::2], "flags"] = "spec-miss"                 # feasible, misses at some condition
+    bad = d.index[~d["feasible"]]
+    d.loc[bad[::2], "flags"] = "junction-too-hot spec-miss"  # a limit broken
+    rep.designs = d
+    return rep
+
+
+def test_result_words_agree_with_feasible_and_read_without_colour(tmp_path):
+    rep = _with_every_result(make_report())
+    path = tmp_path / "result.xlsx"
+    write_workbook(path, rep)
+    wb = openpyxl.load_workbook(path)
     ws = wb["Designs"]
-    d = rep.designs
-    bad = (~d["feasible"]) | (d["flags"] != "")
-    assert bad.any() and (~bad).any()
-    for i, is_bad in enumerate(bad, start=2):
-        result, yield_cell = ws.cell(i, 6), ws.cell(i, 17)
-        assert result.value == ("fail" if is_bad else "pass")
-        # grey-scale print: failing rows differ in type style, not only in hue
-        assert bool(yield_cell.font.italic) == bool(is_bad)
-        assert bool(result.font.bold) == bool(is_bad)
-        assert result.fill.fgColor.rgb != "00000000"
+    head = _headers(ws, 1)
+    rc, fc, yc = (head.index(h) + 1 for h in ("Result", "Feasible", "Yield"))
+    seen = set()
+    for i, (_, row) in enumerate(rep.designs.iterrows(), start=2):
+        result, feasible = ws.cell(i, rc).value, ws.cell(i, fc).value
+        codes = row["flags"].split()
+        # the review's contradiction: a feasible design must never read as a failure
+        if feasible:
+            assert result in ("pass", "spec miss"), (i, result, codes)
+        else:
+            assert result in ("off spec", "limit"), (i, result, codes)
+        assert (result == "pass") == (feasible and not codes)
+        assert (result == "limit") == any(c != "spec-miss" for c in codes)
+        seen.add(result)
+        # grey-scale print: the kinds differ in type style, not only in hue
+        cell, yield_cell = ws.cell(i, rc), ws.cell(i, yc)
+        infeasible = result in ("off spec", "limit")
+        assert bool(yield_cell.font.italic) == infeasible
+        assert bool(cell.font.bold) == infeasible
+        assert bool(cell.font.italic) == (result != "pass")
+        assert cell.fill.fgColor.rgb != "00000000"
+    assert seen == {"pass", "spec miss", "off spec", "limit"}
+    # every word is defined where a reader looks: the header's note and the Notes sheet
+    comment = ws.cell(1, rc).comment
+    notes = {r[0]: r[1] for r in wb["Notes"].iter_rows(min_row=2, max_col=2, values_only=True)}
+    for word in seen:
+        assert f"{word} = " in comment.text
+        assert f"{word} = " in notes["Result column"]
+    assert "spec miss = feasible" in notes["Result column"]
 
 
 def test_number_formats_keep_true_numbers(book):
@@ -128,6 +166,126 @@ def test_number_formats_keep_true_numbers(book):
     assert freq.number_format == KM_FORMAT       # every frequency here is above 1 Hz
     tol = wb["Parts"].cell(2, 7)
     assert tol.value in (0.05, 0.1) and tol.number_format.endswith("%")
+
+
+def _slow_report():
+    """The demo report with every frequency divided by 100 (about 0.3 Hz to 7 Hz): nominal values
+    below 1 Hz, while the Monte Carlo mean exists only for the top designs, all above 1 Hz."""
+    rep = make_report()
+    d = rep.designs.copy()
+    for c in [c for c in d.columns if c.startswith("frequency_hz")]:
+        d[c] = d[c] / 100
+    d.loc[3:, "frequency_hz_mc_mean"] = np.nan
+    d.loc[:2, "frequency_hz_mc_mean"] = np.maximum(d.loc[:2, "frequency_hz_mc_mean"], 1.5)
+    rep.designs = d
+    pts = rep.points.copy()
+    pts["frequency_hz"] = pts["frequency_hz"] / 100
+    rep.points = pts
+    ck = rep.check.copy()
+    for c in ("ideal_frequency_hz", "real_frequency_hz"):
+        ck[c] = ck[c] / 100
+    rep.check = ck
+    rep.spec = [dataclasses.replace(rep.spec[0], lo=0.18, hi=0.22, target=0.2), rep.spec[1]]
+    return rep
+
+
+def test_same_quantity_reads_the_same_way_on_every_sheet(tmp_path):
+    rep = _slow_report()
+    path = tmp_path / "slow.xlsx"
+    write_workbook(path, rep)
+    wb = openpyxl.load_workbook(path)
+    d, pts, chk = wb["Designs"], wb["Points"], wb["Check"]
+    dh, ph, ch = _headers(d, 1), _headers(pts, 2), _headers(chk, 5)
+    formats = {}
+    for h in dh:
+        if h.startswith("Frequency [Hz]") and "std. dev." not in h:
+            formats[f"Designs {h}"] = d.cell(2, dh.index(h) + 1).number_format
+    formats["Points"] = pts.cell(3, ph.index("Frequency [Hz]") + 1).number_format
+    for h in ("Frequency [Hz] formula", "Frequency [Hz] engine ideal",
+              "Frequency [Hz] engine realistic"):
+        formats[f"Check {h}"] = chk.cell(6, ch.index(h) + 1).number_format
+    spec = [r for r in wb["Summary"].iter_rows() if r[0].value == "frequency"][0]
+    formats["Summary spec"] = spec[2].number_format
+    assert "Designs Frequency [Hz] Monte Carlo mean" in formats
+    # one format for the quantity, and a plain three-decimal one, as every value is >= 0.1
+    # [cp: plain numbers read best where they fit; engineering notation only where they do not]
+    assert set(formats.values()) == {KM3_FORMAT}, formats
+    # a quantity with values below 0.01 keeps engineering notation in every column
+    sc = {d.cell(2, dh.index(h) + 1).number_format for h in dh if h.startswith("Supply current")
+          and "std. dev." not in h}
+    assert sc == {ENG_FORMAT}
+    assert pts.cell(3, ph.index("Supply current [A]") + 1).number_format == ENG_FORMAT
+
+
+def _as_shown(files: list[Path], tmp_path: Path) -> dict[str, list[list[str]]]:
+    """Every sheet of every workbook as LibreOffice shows it (CSV, 'save cell contents as
+    shown'), keyed '<file stem>-<sheet>'."""
+    exe = _soffice()
+    if exe is None:
+        if os.environ.get("CI"):
+            pytest.fail("LibreOffice (soffice) is not on PATH, and CI must run the rendering test")
+        pytest.skip("LibreOffice (soffice) is not on PATH: number formats not rendered")
+    out = tmp_path / "shown"
+    out.mkdir()
+    # CSV filter options: comma, double quote, UTF-8, ..., 9th token "as shown" = true,
+    # 12th token -1 = every sheet to its own file [LibreOffice's documented CSV filter options]
+    target = "csv:Text - txt - csv (StarCalc):44,34,76,1,,0,false,true,true,false,false,-1"
+    cmd = [exe, f"-env:UserInstallation={(tmp_path / 'lo-csv').as_uri()}", "--headless",
+           "--norestore", "--convert-to", target, "--outdir", str(out), *map(str, files)]
+    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=300, stdin=subprocess.DEVNULL)
+    got = {p.stem: list(csv.reader(p.open(encoding="utf-8"))) for p in out.glob("*.csv")}
+    assert got, f"LibreOffice failed: {proc.returncode} {proc.stdout} {proc.stderr}"
+    return got
+
+
+def _read_shown(text: str) -> tuple[float, float]:
+    """(value, half of the last shown digit) of a number as displayed: '4.70 k', '1.2 M',
+    '100.00E-9', '0.350'."""
+    t = text.strip()
+    scale = {"k": 1e3, "M": 1e6}.get(t[-1:], 1.0)
+    if scale != 1.0:
+        t = t[:-1].strip()
+    mant, _, exp = t.partition("E")
+    decimals = len(mant.partition(".")[2])
+    step = 0.5 * 10.0 ** -decimals * scale * (10.0 ** int(exp) if exp else 1.0)
+    return float(t) * scale, step
+
+
+def test_numbers_render_as_plain_or_engineering_text(tmp_path):
+    rep = _slow_report()
+    pts = rep.points.copy()
+    # tens of milliamperes (plain numbers) and one negative value: a conditional format's last
+    # branch would drop its minus sign [LibreOffice and other spreadsheet programs alike]
+    pts["output_current_a"] = 10 * pts["output_current_a"]
+    pts.loc[0, "output_current_a"] = -pts.loc[0, "output_current_a"]
+    rep.points = pts
+    path = tmp_path / "shown.xlsx"
+    write_workbook(path, rep)
+    sheets = _as_shown([path], tmp_path)
+    rows = sheets["shown-Points"]
+    head = rows[1]
+    col = {h: head.index(h) for h in head}
+    freq = [r[col["Frequency [Hz]"]] for r in rows[2:]]
+    # the review's complaint: 1.91 Hz must not read "1.91E+0"
+    assert all(re.fullmatch(r"\d+\.\d{3}", t) for t in freq), freq[:5]
+    assert all(re.fullmatch(r"\d+\.\d+ k|\d+\.\d+( M)?", r[col["RA [Ω]"]]) for r in rows[2:])
+    assert all(re.fullmatch(r"\d+\.\d+E-\d+", r[col["C [F]"]]) for r in rows[2:])
+    # every shown number reads back as the true value, sign included, to its last digit
+    names = {"Frequency [Hz]": "frequency_hz", "RA [Ω]": "ra_ohm", "RB [Ω]": "rb_ohm",
+             "C [F]": "c_f", "Supply current [A]": "supply_current_a",
+             "Output current [A]": "output_current_a", "Period [s]": "period_s"}
+    for h, name in names.items():
+        for k, r in enumerate(rows[2:]):
+            want = float(rep.points[name].iloc[k])
+            got, step = _read_shown(r[col[h]])
+            assert abs(got - want) <= step * 1.0001 + 1e-300, (h, k, r[col[h]], want)
+    assert rows[2][col["Output current [A]"]].startswith("-")
+    # the Designs sheet: the nominal and Monte Carlo mean columns read alike
+    d = sheets["shown-Designs"]
+    dh = d[0]
+    nom, mean = dh.index("Frequency [Hz] nominal"), dh.index("Frequency [Hz] Monte Carlo mean")
+    shown = [r[nom] for r in d[1:]] + [r[mean] for r in d[1:4]]
+    assert all(re.fullmatch(r"\d+\.\d{3}", t) for t in shown), shown
 
 
 def test_study_sheet_round_trips(book):
@@ -302,6 +460,11 @@ def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
         # cached results deliberately 0: only a real recalculation gives the right figures
         write_workbook(path, reports[name], cached_results=False)
         files.append(path)
+    # the diode circuit with the drop a reader types into the blue Vd cell
+    diode = _check_report("astable-diode", CASES["astable-diode"])
+    diode.check["diode_drop_v"] = VD
+    write_workbook(src / "diode-vd.xlsx", diode, cached_results=False)
+    files.append(src / "diode-vd.xlsx")
     done = _recalculate(files, tmp_path)
 
     for name, rep in reports.items():
@@ -334,6 +497,7 @@ def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
                 # [book: textbook formulas, DOMAIN.md section 2] evaluated by LibreOffice
                 assert got == pytest.approx(want, rel=1e-9), (name, k, o, got, want)
                 assert abs(ws.cell(r, dcol).value) < 1e-9
+    _check_diode_drop_cell(diode, openpyxl.load_workbook(done["diode-vd.xlsx"], data_only=True))
     # outside facts beside the engine: the rules of thumb printed in every 555 text [book]
     ws = openpyxl.load_workbook(done["astable.xlsx"], data_only=True)["Check"]
     head = _headers(ws, 5)
@@ -348,6 +512,47 @@ def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
     assert t == pytest.approx(math.log(3) * 100e3 * 10e-6, rel=1e-12)
 
 
+VD = 0.7     # a silicon diode's forward drop [cp: the figure every electronics text uses]
+
+
+def _ode_period(ra, rb, c, vcc, vd, vc) -> tuple[float, float]:
+    """(high time, low time) of the diode astable's RC network, simulated by scipy's ODE solver
+    between the thresholds Vc/2 and Vc: C charges through RA and the diode towards VCC - Vd,
+    and discharges through RB towards 0 V (the discharge pin) [book: the textbook network]."""
+    def run(rhs, v0, target, direction, tau):
+        def hit(t, y):
+            return y[0] - target
+        hit.terminal, hit.direction = True, direction
+        sol = solve_ivp(rhs, (0.0, 20 * tau), [v0], events=hit, method="DOP853",
+                        rtol=1e-12, atol=1e-14 * vcc)
+        return float(sol.t_events[0][0])
+    t_high = run(lambda t, y: [(vcc - vd - y[0]) / (ra * c)], vc / 2, vc, 1.0, ra * c)
+    t_low = run(lambda t, y: [-y[0] / (rb * c)], vc, vc / 2, -1.0, rb * c)
+    return t_high, t_low
+
+
+def _check_diode_drop_cell(rep, wb) -> None:
+    """With Vd = 0.7 V typed in, the live formulas follow the RC network with the drop, and the
+    drop explains most of the gap between the engine's ideal and realistic duty."""
+    ws = wb["Check"]
+    head = _headers(ws, 5)
+    for k in range(len(rep.check)):
+        row = rep.check.iloc[k]
+        vcc = row["vcc_v"]
+        vc = row["control_voltage_v"] if np.isfinite(row["control_voltage_v"]) else 2 / 3 * vcc
+        th, tl = _ode_period(row["ra_ohm"], row["rb_ohm"], row["c_f"], vcc, VD, vc)
+        got = {h: ws.cell(6 + k, head.index(h) + 1).value
+               for h in ("High time [s] formula", "Frequency [Hz] formula", "Duty formula")}
+        assert got["High time [s] formula"] == pytest.approx(th, rel=1e-8)
+        assert got["Frequency [Hz] formula"] == pytest.approx(1 / (th + tl), rel=1e-8)
+        assert got["Duty formula"] == pytest.approx(th / (th + tl), rel=1e-8)
+        if not np.isfinite(row["control_voltage_v"]):
+            # [derived: DOMAIN.md section 2] the diode drop is most of the duty shift at 9 V
+            gap = abs(row["real_duty"] - row["ideal_duty"])
+            assert gap > 0.01
+            assert abs(got["Duty formula"] - row["real_duty"]) < 0.25 * gap
+
+
 def test_check_cached_results_are_the_engine_figures(tmp_path):
     rep = _check_report("astable-diode", CASES["astable-diode"])
     path = tmp_path / "cached.xlsx"
@@ -359,5 +564,88 @@ def test_check_cached_results_are_the_engine_figures(tmp_path):
         got = ws.cell(6 + k, head.index("Frequency [Hz] formula") + 1).value
         assert got == pytest.approx(rep.check["ideal_frequency_hz"].iloc[k], rel=1e-15)
     # the blue input cells are the part values, as plain numbers
-    ra = openpyxl.load_workbook(path)["Check"].cell(6, head.index("RA [Ω]") + 1)
+    wf = openpyxl.load_workbook(path)["Check"]
+    ra = wf.cell(6, head.index("RA [Ω]") + 1)
     assert ra.value == 10e3 and ra.font.color.rgb.endswith("0000FF")
+    # the diode drop is an input like the parts: 0 (the ideal case), blue, and the high-time
+    # formula of its row really reads it
+    for k in range(len(rep.check)):
+        vd = wf.cell(6 + k, head.index("Diode drop [V]") + 1)
+        assert vd.value == 0 and vd.font.color.rgb.endswith("0000FF")
+        assert vd.fill.fgColor.rgb == ra.fill.fgColor.rgb
+        high = wf.cell(6 + k, head.index("High time [s] formula") + 1).value
+        assert re.search(rf"\b{vd.coordinate}\b", high), high
+    # one line tells the reader what to type there
+    hint = " ".join(str(wf.cell(r, 1).value or "") for r in range(1, 5))
+    assert "0.7 V" in hint and "Vd" in hint
+
+
+# --- printing -------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def big_book(tmp_path_factory):
+    """A workbook of 600 designs and 5,400 points: far more than anyone prints."""
+    rep = make_report(n_designs=600)
+    path = tmp_path_factory.mktemp("print") / "big.xlsx"
+    write_workbook(path, rep)
+    return rep, path, openpyxl.load_workbook(path)
+
+
+def _area(ws) -> tuple[int, int]:
+    """(last row, last column), 1-based, of a sheet's single print area."""
+    ref = ws.print_area
+    assert ref is not None, ws.title
+    ref = ref[0] if isinstance(ref, (list, tuple)) else ref
+    ref = str(ref).split("!")[-1].replace("$", "")
+    _, last = ref.split(":")
+    col, row = openpyxl.utils.cell.coordinate_from_string(last)
+    return row, openpyxl.utils.column_index_from_string(col)
+
+
+def test_print_setup_keeps_the_big_tables_short(big_book):
+    rep, _, wb = big_book
+    for name in ("Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes"):
+        ws = wb[name]
+        assert ws.page_setup.orientation == "landscape", name
+        assert ws.sheet_properties.pageSetUpPr.fitToPage, name
+        assert ws.page_setup.fitToHeight == 0, name        # as many pages down as it takes
+        wide = 2 if name == "Points" else 1
+        assert (ws.page_setup.fitToWidth or 1) == wide, name
+    for name in ("Summary", "Parts", "Check", "Study", "Notes"):
+        assert not wb[name].print_area, name               # the whole sheet, one page wide
+    # Designs: the key columns (not all of them) and the first PRINT_ROWS rows
+    d = wb["Designs"]
+    rows, cols = _area(d)
+    assert rows == 1 + PRINT_ROWS and len(rep.designs) > PRINT_ROWS
+    head = _headers(d, 1)
+    assert 10 <= cols <= 16 < len(head)
+    for h in ("Rank", "RA [Ω]", "C [F]", "Result", "Yield", "Frequency [Hz] nominal"):
+        assert head.index(h) < cols, h
+    assert d.print_title_rows.replace("$", "") == "1:1"
+    assert "designs.parquet" in d.oddHeader.left.text and f"{PRINT_ROWS} rows" in d.oddHeader.left.text
+    assert "spec miss" in d.oddFooter.left.text
+    # Points: every column, the first PRINT_ROWS rows, the key columns on every page
+    p = wb["Points"]
+    rows, cols = _area(p)
+    assert rows == 2 + PRINT_ROWS and len(rep.points) > PRINT_ROWS
+    assert cols == rep.points.shape[1]
+    assert p.print_title_rows.replace("$", "") == "2:2"
+    assert p.print_title_cols.replace("$", "") == "A:B"
+
+
+def test_big_workbook_prints_on_few_pages(big_book, tmp_path):
+    # printed by an independent program: LibreOffice's PDF export honours the print setup
+    _, path, _ = big_book
+    exe = _soffice()
+    if exe is None:
+        if os.environ.get("CI"):
+            pytest.fail("LibreOffice (soffice) is not on PATH, and CI must run the printing test")
+        pytest.skip("LibreOffice (soffice) is not on PATH: printing not checked")
+    cmd = [exe, f"-env:UserInstallation={(tmp_path / 'lo-pdf').as_uri()}", "--headless",
+           "--norestore", "--convert-to", "pdf", "--outdir", str(tmp_path), str(path)]
+    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=300, stdin=subprocess.DEVNULL)
+    pdf = tmp_path / "big.pdf"
+    assert pdf.exists(), f"LibreOffice failed: {proc.returncode} {proc.stdout} {proc.stderr}"
+    pages = len(re.findall(rb"/Type\s*/Page(?![s\w])", pdf.read_bytes()))
+    # 200 designs at ~45 rows a page, 200 points rows twice (two pages wide) and a page or two
+    # for each small sheet: about 25; the whole tables would take well over a hundred
+    assert 8 <= pages <= 35, pages

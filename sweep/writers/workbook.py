@@ -9,25 +9,40 @@ Number formats (the choice)
 Every numeric cell holds a true number in base SI units (ohm, farad, second, hertz, ampere...),
 so sorting, filtering, the Check formulas and any formula a reader adds work on plain values.
 A spreadsheet number format can divide by thousands (the ``,`` scaling) but cannot multiply,
-so SI prefixes are possible above one and impossible below it. A column of the registry format
-"eng" therefore takes one of two formats, chosen from the column's own finite values so that a
-column always reads one way:
+so SI prefixes are possible above one and impossible below it. A quantity of the registry format
+"eng" therefore takes one of four formats, chosen from the finite non-zero values the workbook
+holds of that quantity (nominal, min, max, worst case, Monte Carlo mean, Points, Check, spec) so
+the same quantity reads the same way on every sheet and in every column:
 
-* every value >= 1 (resistances, most frequencies): the conditional format
+* every value >= 1 (resistances, most frequencies): ``KM_FORMAT``,
   ``[>=1000000]0.00,," M";[>=1000]0.00," k";0.00``, shown as ``4.70 k``, ``1.20 M``, ``2.05``;
-* any value below 1 or below zero (capacitances, times, currents, powers): engineering notation
-  ``##0.00E+0``, whose exponent is always a multiple of three, so it maps one-to-one on the SI
-  prefix: ``100.00E-9`` = 100 n, ``2.20E-6`` = 2.2 µ, ``347.25E-3`` = 347.25 m.
+* every value >= 0.1 (slow frequencies, times of a second or so): ``KM3_FORMAT``, the same
+  with a plain three-decimal branch below 1000: ``1.911``, ``0.350``, ``4.70 k``;
+* every value >= 0.01 (tens of milliamperes): ``KM4_FORMAT``, four decimals, so the smallest
+  value still shows three figures: ``0.0134``;
+* any value below 0.01, or below zero (capacitances, µA currents, milliseconds): engineering
+  notation ``ENG_FORMAT`` = ``##0.00E+0``, whose exponent is always a multiple of three, so it
+  maps one-to-one on the SI prefix: ``100.00E-9`` = 100 n, ``2.20E-6`` = 2.2 µ. (Negative values
+  cannot use the conditional formats: their last branch drops the minus sign.)
 
-Part values (RA, RB, R, C: standard values of two or three figures) use ``0.0#`` in place of
-``0.00`` (``4.7 k``, ``100.0E-9``), so a part reads as it is marked; computed figures keep two
-decimals so a column lines up.
+A Monte Carlo standard deviation is a spread, often far smaller than its quantity, so its column
+takes the same rule from its own values. Part values (RA, RB, R, C: standard values of two or
+three figures) use ``0.0#`` in place of ``0.00`` (``4.7 k``, ``100.0E-9``), so a part reads as it
+is marked; computed figures keep a fixed number of decimals so a column lines up.
 
 Scaled helper columns (``C [nF]``) were rejected: they double the tables, need a per-column
 prefix that fits no sweep spanning several decades, and would break the Check formulas, which
 reference SI cells. Ratios (duty, yield, tolerance) use ``0.0%``; the registry's "fixed1",
 "fixed2" and "int" formats map to ``0.0``, ``0.00`` and ``0``. The Summary and Notes sheets
 explain the exponent-to-prefix reading.
+
+Printing
+--------
+Every sheet prints landscape, one page wide, its header row repeated. Designs prints its key
+columns (rank, parts, result, yield, margins, the main output's nominal, min and max) and its
+first ``PRINT_ROWS`` rows; Points prints its first ``PRINT_ROWS`` rows two pages wide with its
+key columns repeated (one page would shrink ~25 columns to unreadable type). A page header says
+so and where the full table is (on screen, and in the Parquet files beside the workbook).
 
 Safety of text
 --------------
@@ -56,15 +71,29 @@ from sweep.values import format_eng
 from sweep.variables import AXES, VARIABLES
 
 __all__ = ["write_workbook", "column_header", "column_format", "eng_number_format",
-           "SHEETS", "KM_FORMAT", "ENG_FORMAT"]
+           "result_labels", "SHEETS", "KM_FORMAT", "KM3_FORMAT", "KM4_FORMAT", "ENG_FORMAT",
+           "PRINT_ROWS", "RESULT_LABELS"]
 
 SHEETS = ("Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes")
 
-KM_FORMAT = '[>=1000000]0.00,," M";[>=1000]0.00," k";0.00'
-ENG_FORMAT = "##0.00E+0"
+
+def _km(plain: str, scaled: str = "0.00") -> str:
+    """M above a million, k above a thousand, ``plain`` below (a conditional number format)."""
+    return f'[>=1000000]{scaled},," M";[>=1000]{scaled}," k";{plain}'
+
+
+KM_FORMAT = _km("0.00")        # every value >= 1:    2.05, 4.70 k, 1.20 M
+KM3_FORMAT = _km("0.000")      # every value >= 0.1:  0.350, 1.911
+KM4_FORMAT = _km("0.0000")     # every value >= 0.01: 0.0134 (three figures at the bottom)
+ENG_FORMAT = "##0.00E+0"       # anything smaller, or negative: 100.00E-9
+_PART_FORMAT = {KM_FORMAT: _km("0.0#", "0.0#"), KM3_FORMAT: _km("0.0##", "0.0#"),
+                KM4_FORMAT: _km("0.0###", "0.0#"), ENG_FORMAT: "##0.0#E+0"}
+_PLAIN_STEPS = ((1.0, KM_FORMAT), (0.1, KM3_FORMAT), (0.01, KM4_FORMAT))
+PRINT_ROWS = 200            # data rows of Designs and Points in the default print area
 _PART_COLUMNS = ("ra_ohm", "rb_ohm", "r_ohm", "c_f")
 _FIXED = {"pct": "0.0%", "fixed1": "0.0", "fixed2": "0.00", "fixed3": "0.000", "int": "0"}
 
+_BOOL_FORMAT = '"TRUE";"TRUE";"FALSE"'   # shows a boolean cell as a word in every program
 _DANGER = ("=", "+", "-", "@", "\t", "\r")   # text a spreadsheet could read as a formula
 _MAX_ROWS = 1_048_576                        # rows in one sheet [cp: the spreadsheet programs' limit]
 _CHUNK = 20_000                              # rows converted to Python objects at a time
@@ -83,9 +112,15 @@ _SAFETY_LINE = ("Mains-powered loads, relays and other inductive loads (fit a fl
                 "timing and electrical limits only: follow local codes and licensed practice, "
                 "and have such designs reviewed by a qualified person.")
 _FORMAT_LINE = ("Cells hold plain SI values (ohm, farad, second, hertz, ampere, watt). Large values "
-                "show as 4.7 k or 1.2 M; small ones in engineering notation whose exponent names "
-                "the prefix: E-3 = m (milli), E-6 = µ (micro), E-9 = n (nano), E-12 = p (pico); "
-                "e.g. 100.0E-9 F = 100 nF.")
+                "show as 4.7 k or 1.2 M, others as plain numbers (1.911) when every value of that "
+                "quantity is 0.01 or more; smaller ones in engineering notation whose exponent "
+                "names the prefix: E-3 = m (milli), E-6 = µ (micro), E-9 = n (nano), E-12 = p "
+                "(pico); e.g. 100.0E-9 F = 100 nF. A quantity reads the same way on every sheet.")
+_PRINT_LINE = (f"Every sheet prints one page wide but Points (two, its key columns repeated). "
+               f"Designs prints its key columns and first {PRINT_ROWS} rows, Points its first "
+               f"{PRINT_ROWS} rows; the full tables are "
+               "on screen and in designs.parquet and points.parquet beside the workbook. To print "
+               "more, change or clear the sheet's print area.")
 _CHECK_NOTE = ("Change a part value (blue cells) to see the formula move; the engine's figures "
                "stay as computed")
 
@@ -140,16 +175,65 @@ def column_format(name: str) -> str:
 
 
 def eng_number_format(values, part: bool = False) -> str:
-    """The display format of an "eng" column (see the module docstring): KM_FORMAT when every
-    finite non-zero value is >= 1, else ENG_FORMAT; ``part=True`` for part values (0.0#)."""
+    """The display format of an "eng" quantity (see the module docstring), from the smallest
+    finite non-zero value: KM_FORMAT from 1, KM3_FORMAT from 0.1, KM4_FORMAT from 0.01, else
+    (or with any negative value) ENG_FORMAT; ``part=True`` for part values (0.0# for 0.00)."""
     v = np.asarray(values, dtype=float).ravel()
     v = v[np.isfinite(v) & (v != 0)]
-    fmt = KM_FORMAT if v.size == 0 or v.min() >= 1.0 else ENG_FORMAT
-    return fmt.replace("0.00", "0.0#") if part else fmt
+    lo = float(v.min()) if v.size else 1.0
+    fmt = next((f for bound, f in _PLAIN_STEPS if lo >= bound), ENG_FORMAT)
+    return _PART_FORMAT[fmt] if part else fmt
 
 
-def _number_format(kind: str, values, name: str = "") -> str | None:
+def _quantity(name: str) -> str | None:
+    """The "eng" quantity a column shows ('frequency_hz_wc_min' -> 'frequency_hz'), or None for
+    a column that takes its own format (a Monte Carlo spread, a non-eng column)."""
+    for prefix in ("ideal_", "real_", "f:"):     # the Check sheet's engine and formula columns
+        if name.startswith(prefix):
+            name = name[len(prefix):]
+    if name in VARIABLES:
+        base = name
+    elif name.endswith("_mc_std"):
+        return None
+    else:
+        var, _ = _split(name)
+        base = var.name if var is not None else None
+    return base if base is not None and VARIABLES[base].fmt == "eng" else None
+
+
+def _quantity_formats(report: Report) -> dict[str, str]:
+    """One display format per "eng" quantity, from every value of it the workbook shows."""
+    values: dict[str, list[np.ndarray]] = {}
+    for frame in (report.designs, report.points, report.check):
+        if frame is None:
+            continue
+        for name in frame.columns:
+            q = _quantity(str(name))
+            if q is not None and pd.api.types.is_numeric_dtype(frame[name]):
+                values.setdefault(q, []).append(
+                    pd.to_numeric(frame[name], errors="coerce").to_numpy(float, na_value=np.nan))
+    for s in report.spec:
+        q = _quantity(s.column)
+        if q is not None:
+            values.setdefault(q, []).append(np.array([x for x in (s.lo, s.hi, s.target)
+                                                      if x is not None], dtype=float))
+    if report.check is not None and {"ideal_frequency_hz", "ideal_duty"} <= set(report.check):
+        # the Check sheet's high/low-time helper columns show the engine's ideal times
+        f = pd.to_numeric(report.check["ideal_frequency_hz"], errors="coerce").to_numpy(float)
+        d = pd.to_numeric(report.check["ideal_duty"], errors="coerce").to_numpy(float)
+        with np.errstate(all="ignore"):
+            values.setdefault("high_time_s", []).append(d / f)
+            values.setdefault("low_time_s", []).append((1 - d) / f)
+    return {q: eng_number_format(np.concatenate(v)) for q, v in values.items()}
+
+
+def _number_format(kind: str, values, name: str = "", plan: dict | None = None) -> str | None:
+    """Format of a column of registry format ``kind``; ``plan`` maps quantities to formats."""
     if kind == "eng":
+        q = _quantity(name)
+        if plan and q in plan:
+            fmt = plan[q]
+            return _PART_FORMAT[fmt] if name in _PART_COLUMNS else fmt
         return eng_number_format(values, part=name in _PART_COLUMNS)
     return _FIXED.get(kind)
 
@@ -158,8 +242,9 @@ def _number_format(kind: str, values, name: str = "") -> str | None:
 class _Styles:
     """Formats made once per distinct property set (a workbook has a limited number)."""
 
-    def __init__(self, wb: xlsxwriter.Workbook):
+    def __init__(self, wb: xlsxwriter.Workbook, plan: dict[str, str] | None = None):
         self.wb = wb
+        self.plan = plan or {}          # display format of each "eng" quantity
         self._cache: dict[tuple, object] = {}
 
     def get(self, **props):
@@ -246,14 +331,18 @@ class _Col:
     num_format: str | None
     width: float
     text_props: dict | None = None   # style of a non-empty text cell
+    value_props: dict | None = None  # style of a text cell by its text, in place of text_props
     fail_extra: dict | None = None   # added to the row's fail style in this column
 
     def cell_props(self) -> dict:
         """Format of a number or boolean cell of this column."""
-        return {"num_format": self.num_format, "align": "center" if self.kind == "bool" else None}
+        if self.kind == "bool":
+            return {"num_format": _BOOL_FORMAT, "align": "center"}
+        return {"num_format": self.num_format}
 
 
-def _columns(frame: pd.DataFrame, names: list[str], header=column_header) -> list[_Col]:
+def _columns(frame: pd.DataFrame, names: list[str], header=column_header,
+             plan: dict | None = None) -> list[_Col]:
     cols = []
     for name in names:
         s = frame[name]
@@ -266,7 +355,7 @@ def _columns(frame: pd.DataFrame, names: list[str], header=column_header) -> lis
                 v = s.to_numpy(np.int64)
             else:
                 v = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
-            cols.append(_Col(name, header(name), "num", v, _number_format(kind_fmt, v, name),
+            cols.append(_Col(name, header(name), "num", v, _number_format(kind_fmt, v, name, plan),
                              _width(header(name), "num")))
         else:
             v = s.astype(object).where(s.notna(), "").astype(str).to_numpy(dtype=object)
@@ -327,7 +416,8 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
                 for i in text_idx:
                     s = row[i]
                     if s:
-                        _text(ws, st, r, i, s, **(cols[i].text_props or {}))
+                        props = (cols[i].value_props or {}).get(s, cols[i].text_props)
+                        _text(ws, st, r, i, s, **(props or {}))
             r += 1
     return first_row + n
 
@@ -344,12 +434,27 @@ def _wide_text(ws, st: _Styles, row: int, c0: int, c1: int, text, chars: float, 
     _text(ws, st, row, c0, text, **props)
 
 
-def _page_setup(ws, header_row: int | None) -> None:
-    """Print landscape, one page wide, the header row repeated on every page."""
+def _page_setup(ws, header_row: int | None, last_col: int | None = None,
+                last_row: int | None = None, header: str | None = None,
+                footer: str | None = None, pages_wide: int = 1, repeat_cols: int = 0) -> None:
+    """Print landscape, ``pages_wide`` pages wide, the header row (and the first ``repeat_cols``
+    columns) repeated on every page; ``last_col`` and ``last_row`` (0-based) bound the default
+    print area; ``header``/``footer`` print on every page (plain text, shortened to fit the
+    spreadsheet's 255-character limit)."""
     ws.set_landscape()
-    ws.fit_to_pages(1, 0)
+    ws.set_margins(left=0.4, right=0.4, top=0.6, bottom=0.6)
+    ws.fit_to_pages(pages_wide, 0)
     if header_row is not None:
         ws.repeat_rows(header_row)
+    if repeat_cols:
+        ws.repeat_columns(0, repeat_cols - 1)
+    if last_col is not None or last_row is not None:
+        ws.print_area(0, 0, last_row if last_row is not None else _MAX_ROWS - 1,
+                      last_col if last_col is not None else 16_383)
+    for text, setter in ((header, ws.set_header), (footer, ws.set_footer)):
+        if text:
+            body = text.replace("&", "&&")
+            setter("&L&8" + (body if len(body) <= 245 else body[:242] + "..."))
 
 
 def _summary(ws, st: _Styles, report: Report) -> None:
@@ -387,18 +492,19 @@ def _summary(ws, st: _Styles, report: Report) -> None:
     if report.spec:
         heads = ["Key", "Quantity", "Min", "Max", "Target", "As text (blank: open)"]
         for c, h in enumerate(heads):
-            _text(ws, st, r, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1)
+            _text(ws, st, r, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1,
+                  align="right" if 2 <= c <= 4 else None, indent=1 if c == 5 else None)
         r += 1
         for s in report.spec:
             var = VARIABLES.get(s.column)
             kind = var.fmt if var else "general"
             nums = [x for x in (s.lo, s.hi, s.target) if _finite(x) is not None]
-            nf = _number_format(kind, nums)
+            nf = _number_format(kind, nums, s.column, st.plan)
             _text(ws, st, r, 0, s.key)
             _text(ws, st, r, 1, column_header(s.column))
             for c, x in ((2, s.lo), (3, s.hi), (4, s.target)):
                 _value(ws, st, r, c, None if x is None else float(x), num_format=nf)
-            _text(ws, st, r, 5, _spec_text(s, var))
+            _text(ws, st, r, 5, _spec_text(s, var), indent=1)
             r += 1
     else:
         _text(ws, st, r, 1, "No [spec] limits in this study.")
@@ -439,33 +545,80 @@ def _spec_text(s, var) -> str:
     return ", ".join(parts)
 
 
+RESULT_LABELS = {
+    "pass": "the nominal parts keep every limit and meet the spec at every condition point "
+            "(for tolerance builds see Yield)",
+    "spec miss": "feasible (no limit broken, in spec at the nominal condition), but the spec is "
+                 "missed at some other condition point: see Flags and Yield",
+    "off spec": "not feasible: no limit broken, but the design misses the spec at the nominal "
+                "condition",
+    "limit": "not feasible: a part or timer limit is broken at some condition point (see Flags)",
+}
+_RESULT_NOTE = "Result: " + "; ".join(f"{k} = {v}" for k, v in RESULT_LABELS.items()) + "."
+_RESULT_SHORT = ("Result: pass = in spec and within limits at every condition (builds: see Yield); "
+                 "spec miss = feasible, but some condition misses the spec; off spec = misses the "
+                 "spec at the nominal condition; limit = a limit is broken (see Flags).")
+
+
+def result_labels(designs: pd.DataFrame) -> np.ndarray:
+    """The Designs sheet's Result word of each design (keys of RESULT_LABELS), from its
+    ``feasible`` and ``flags`` columns: a limit flag wins, then infeasible, then spec-miss."""
+    n = len(designs)
+    flags = (designs["flags"].fillna("").astype(str) if "flags" in designs.columns
+             else pd.Series("", index=designs.index))
+    feasible = (designs["feasible"].fillna(False).astype(bool).to_numpy()
+                if "feasible" in designs.columns else np.ones(n, dtype=bool))
+    codes = flags.str.split()
+    limit = codes.map(lambda c: any(x != "spec-miss" for x in c)).to_numpy(dtype=bool)
+    miss = codes.map(lambda c: "spec-miss" in c).to_numpy(dtype=bool)
+    out = np.full(n, "pass", dtype=object)
+    out[miss] = "spec miss"
+    out[~feasible] = "off spec"
+    out[limit] = "limit"
+    return out
+
+
 def _designs(ws, st: _Styles, report: Report) -> None:
     df = report.designs.copy()
     keys = [c for c in ["rank", "design", *report.part_columns] if c in df.columns]
-    flags = (df["flags"].fillna("").astype(str) if "flags" in df.columns
-             else pd.Series("", index=df.index))
-    feasible = (df["feasible"].fillna(False).astype(bool) if "feasible" in df.columns
-                else pd.Series(True, index=df.index))
-    fail = (~feasible.to_numpy()) | (flags.str.strip().to_numpy() != "")
-    df["verdict"] = np.where(fail, "fail", "pass")
-    rest = [c for c in df.columns if c not in keys and c not in ("verdict", "flags")]
-    names = keys + ["verdict"] + rest + (["flags"] if "flags" in df.columns else [])
-    cols = _columns(df, names)
+    df["verdict"] = result_labels(df)
+    fail = np.isin(df["verdict"].to_numpy(), ["off spec", "limit"])
+    # the columns a reviewer reads first (and the printed ones): keys, result, the verdict
+    # figures and the main output's nominal, min and max; then the rest as the report orders it
+    main = report.main_output
+    lead = [c for c in ("feasible", "yield", "wc_margin", "sn_db",
+                        *((f"{main}_nom", f"{main}_min", f"{main}_max") if main else ()))
+            if c in df.columns]
+    rest = [c for c in df.columns if c not in keys + lead and c not in ("verdict", "flags")]
+    names = keys + ["verdict"] + lead + rest + (["flags"] if "flags" in df.columns else [])
+    cols = _columns(df, names, plan=st.plan)
     for c in cols:
-        if c.name == "verdict":   # "pass" on light green; "fail" bold on the fail fill
-            c.width, c.fail_extra = 8.0, {"bold": True}
+        if c.name == "verdict":
+            # words first (they read in grey-scale print); then type style: "pass" plain,
+            # "spec miss" italic, the infeasible ones bold on the fail fill in an italic row
+            c.width, c.fail_extra = 10.0, {"bold": True, "align": "center"}
             c.text_props = {"bg_color": _PASS_FILL, "align": "center"}
+            c.value_props = {"spec miss": {"bg_color": _FLAG_FILL, "italic": True,
+                                           "align": "center"}}
+    # the Result header's note (before row 0 is written: constant_memory keeps no past rows)
+    ws.write_comment(0, len(keys), _RESULT_NOTE, {"x_scale": 3, "y_scale": 3})
     last = _write_table(ws, st, cols, 0, fail=fail,
                         fail_props={"italic": True, "bg_color": _FAIL_FILL})
     ws.freeze_panes(1, len(keys) + 1)
     ws.autofilter(0, 0, max(last, 0), len(cols) - 1)
-    _page_setup(ws, 0)
+    n_print = len(keys) + 1 + len(lead) if len(lead) >= 3 else min(12, len(names))
+    _page_setup(ws, 0, last_col=n_print - 1, last_row=min(last, PRINT_ROWS),
+                header=(f"Designs, printed: the first {n_print} columns"
+                        + (f" and {PRINT_ROWS} rows" if len(df) > PRINT_ROWS else "")
+                        + f". The full table ({len(df):,} design{'' if len(df) == 1 else 's'}, "
+                        f"{len(cols)} columns) is on screen and in designs.parquet."),
+                footer=_RESULT_SHORT)
 
 
 def _points(ws, st: _Styles, report: Report) -> None:
     df = report.points
     names = list(df.columns)
-    cols = _columns(df, names)
+    cols = _columns(df, names, plan=st.plan)
     for c in cols:
         if c.name == "flags":
             c.text_props = {"bg_color": _FLAG_FILL, "italic": True}
@@ -475,11 +628,19 @@ def _points(ws, st: _Styles, report: Report) -> None:
         note += f" (this sheet holds the first {_MAX_ROWS - 2} rows, its limit)"
     _note_row(ws, st, 0, note)
     last = _write_table(ws, st, cols, 1)
-    keys = sum(1 for n in names[:2] if n in ("design", "condition"))
+    keys = 0                       # the leading key columns stay in view when scrolling right
+    while keys < min(3, len(names)) and names[keys] in ("rank", "design", "condition"):
+        keys += 1
     ws.freeze_panes(2, keys)
     if cols:
         ws.autofilter(1, 0, max(last, 1), len(cols) - 1)
-    _page_setup(ws, 1)
+    rows = max(last - 1, 0)
+    # two pages wide, the key columns repeated: one page would shrink ~25 columns to ~5 pt type
+    _page_setup(ws, 1, last_row=min(last, 1 + PRINT_ROWS), last_col=max(len(cols) - 1, 0),
+                pages_wide=2, repeat_cols=keys,
+                header=(f"Points, printed: the first {min(rows, PRINT_ROWS):,} of {rows:,} rows. "
+                        "Every row is on screen; the note in cell A1 says where the full sweep "
+                        "is.") if rows > PRINT_ROWS else None)
 
 
 def _parts(ws, st: _Styles, report: Report) -> None:
@@ -545,6 +706,16 @@ _FORMULA_TEXT = {
 }
 
 
+def _diode_line(report: Report) -> str:
+    """The Check sheet's hint for the diode drop cell: the study's value, or the default."""
+    given = [v for sec, key, v, _m in report.study_rows if key == "diode_drop"]
+    drop = given[0].strip().strip('"') if given else "0.7 V, the default"
+    return ("Diode drop Vd (blue) is 0, the ideal case the engine's ideal figure uses, so "
+            f"'formula vs ideal' stays exact. Type the study's diode drop ({drop}) into Vd to "
+            "see how much of the gap to the realistic figures the diode explains (for the duty, "
+            "most of it); the rest comes from the other non-idealities (see Notes).")
+
+
 def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
     circuit, chk = report.circuit, report.check
     outputs = {"monostable": ["pulse_width_s"]}.get(circuit, ["frequency_hz", "duty"])
@@ -553,13 +724,15 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
                              "formula to check.")
         ws.set_column(0, 0, 90)
         return
-    _note_row(ws, st, 0, _CHECK_NOTE)
-    _text(ws, st, 1, 0, f"Textbook formulas, {circuit} [book]: {_FORMULA_TEXT.get(circuit, '')}",
-          italic=True)
-    _text(ws, st, 2, 0, "Engine ideal: every non-ideality off (the textbook case); engine "
-          "realistic: the full model at this supply; formula vs ideal = formula / ideal - 1.",
-          italic=True)
+    notes = [(_CHECK_NOTE, {}),
+             (f"Textbook formulas, {circuit} [book]: {_FORMULA_TEXT.get(circuit, '')}", {}),
+             ("Engine ideal: every non-ideality off (the textbook case); engine realistic: the "
+              "full model at this supply; formula vs ideal = formula / ideal - 1.", {})]
+    if circuit == "astable-diode":
+        notes.append((_diode_line(report), {"bold": True}))
     if chk is None or len(chk) == 0:
+        for r, (text, props) in enumerate(notes):
+            _text(ws, st, r, 0, text, italic=True, **props)
         _text(ws, st, 4, 0, "No design to check.")
         return
     n = len(chk)
@@ -602,7 +775,7 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
     fmts = {}
     for name, head, kind, role in layout:
         data = values.get(name, ideal.get(name[2:], np.array([])))
-        nf = "0.000%" if kind == "diff" else _number_format(kind, data, name)
+        nf = "0.000%" if kind == "diff" else _number_format(kind, data, name, st.plan)
         props = {"num_format": nf, "border": 1, "border_color": "#BFBFBF"}
         if role == "input":
             props.update(font_color=_INPUT_FONT, bg_color=_INPUT_FILL)
@@ -611,9 +784,14 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
         elif role == "formula":
             props.update(bold=True)
         fmts[name] = props
-    widths = [max(12.0, min(18.0, max(len(w) for w in h.split()) + 2)) for _, h, *_ in layout]
+    # narrow key columns and headers wrapped by word keep the sheet readable printed one page wide
+    widths = [8.0 if role == "key" else max(11.0, min(15.0, max(len(w) for w in h.split()) + 2))
+              for _, h, _k, role in layout]
     for i, w in enumerate(widths):
         ws.set_column(i, i, w)
+    # the notes wrap within the table's width, so they do not widen the printed page
+    for r, (text, props) in enumerate(notes):
+        _wide_text(ws, st, r, 0, len(layout) - 1, text, sum(widths), italic=True, **props)
     hr = 4
     _header_row(ws, st, hr, [h for _, h, *_ in layout], widths)
     for k in range(n):
@@ -667,17 +845,19 @@ def _study(ws, st: _Styles, report: Report, file_name: str) -> None:
 
 
 def _notes(ws, st: _Styles, report: Report) -> None:
-    ws.set_column(0, 0, 18)
+    ws.set_column(0, 0, 20)
     ws.set_column(1, 1, 110)
     for c, h in enumerate(("Topic", "Text")):
         _text(ws, st, 0, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1)
     rows = [(t, x, {}) for t, x in report.notes]
     rows += [("Caution", x, {"bold": True}) for x in report.cautions]
-    rows += [("Number formats", _FORMAT_LINE, {}), ("Safety", _SAFETY_LINE, {"bold": True})]
+    rows += [("Number formats", _FORMAT_LINE, {}),
+             ("Result column", _RESULT_NOTE[len("Result: "):], {}),
+             ("Printing", _PRINT_LINE, {}), ("Safety", _SAFETY_LINE, {"bold": True})]
     for i, (topic, text, props) in enumerate(rows):
         r = 1 + i
-        ws.set_row(r, 15 * _lines(text, 110))
-        _text(ws, st, r, 0, topic, bold=True, valign="top")
+        ws.set_row(r, 15 * max(_lines(text, 110), _lines(topic, 20)))
+        _text(ws, st, r, 0, topic, bold=True, valign="top", text_wrap=True)
         _text(ws, st, r, 1, text, text_wrap=True, valign="top", **props)
     ws.freeze_panes(1, 0)
     _page_setup(ws, 0)
@@ -696,7 +876,7 @@ def write_workbook(path: Path, report: Report, *, cached_results: bool = True) -
         wb = xlsxwriter.Workbook(str(tmp), {"constant_memory": True, "strings_to_formulas": False,
                                             "strings_to_numbers": False, "strings_to_urls": False,
                                             "nan_inf_to_errors": False})
-        st = _Styles(wb)
+        st = _Styles(wb, _quantity_formats(report))
         sheets = {name: wb.add_worksheet(name) for name in SHEETS}
         _summary(sheets["Summary"], st, report)
         _designs(sheets["Designs"], st, report)
