@@ -68,7 +68,7 @@ class Analysis:
 
 def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUNK,
             points_path: Path | None = None, points_limit: int = PARQUET_POINTS,
-            progress: Callable[[int], None] | None = None, mapper=None,
+            progress: Callable[..., None] | None = None, mapper=None,
             mc_designs: int = MC_DESIGNS) -> Analysis:
     """Two passes in bounded memory. Pass 1 streams every design's figures (and points, while
     they fit under points_limit) to parquet and keeps only the ranking keys; pass 2 runs the
@@ -132,7 +132,11 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
         jobs = [numbers[i:i + per] for i in range(0, len(numbers), per)]
         parts = (mapper(monte_carlo_block, study, opt, jobs) if mapper and jobs else
                  (monte_carlo_block(study, j, opt) for j in jobs))
-        frames = list(parts)
+        frames = []
+        for job, part in zip(jobs, parts):
+            frames.append(part)
+            if progress:
+                progress(len(job), "Monte Carlo", len(numbers))
         if frames:
             mc = pd.concat(frames, ignore_index=True)
         y = pd.Series(mc["yield"].to_numpy(), index=mc["design"].to_numpy())
@@ -261,7 +265,7 @@ def commit(pairs: list[tuple[Path, Path]]) -> None:
 
 
 def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: bool = False,
-              chunk: int = DEFAULT_CHUNK, progress: Callable[[int], None] | None = None,
+              chunk: int = DEFAULT_CHUNK, progress: Callable[..., None] | None = None,
               mapper=None, workbook_points: int = WORKBOOK_POINTS,
               parquet_points: int = PARQUET_POINTS) -> RunResult:
     """The main job. Every output is written under a temporary name first and renamed at the end,

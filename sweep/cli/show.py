@@ -25,13 +25,18 @@ def progress_bar(total: int, quiet: bool, est=None):
 
     class Rate(ProgressColumn):
         def render(self, task):
-            return f"{task.speed / 1e6:.2f} M points/s" if task.speed else ""
+            return f"{task.speed:,.0f} {task.fields['unit']}/s" if task.speed else ""
 
-    with Progress(TextColumn("sweeping"), BarColumn(), MofNCompleteColumn(), TextColumn("points"),
-                  Rate(), TextColumn("left"), TimeRemainingColumn(), console=err,
-                  transient=True) as p:
-        task = p.add_task("sweep", total=total)
-        yield lambda n: p.advance(task, n)
+    with Progress(TextColumn("{task.description:<11}"), BarColumn(), MofNCompleteColumn(),
+                  TextColumn("{task.fields[unit]}"), Rate(), TextColumn("left"),
+                  TimeRemainingColumn(), console=err, transient=True) as p:
+        tasks = {"sweep": p.add_task("sweep", total=total, unit="points")}
+
+        def advance(n: int, stage: str = "sweep", total: int | None = None):
+            if stage not in tasks:
+                tasks[stage] = p.add_task(stage, total=total, unit="designs")
+            p.advance(tasks[stage], n)
+        yield advance
 
 
 def top_table(res, n: int = 5, table: bool = True) -> None:
