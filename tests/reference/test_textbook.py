@@ -49,7 +49,7 @@ def ideal(circuit, name, d, *, parts=None, load=Load(), control_voltage=np.nan):
                     control_voltage=control_voltage, ideal=True, **{k: d[k] for k in keys})
 
 
-def close(got, want):
+def assert_close(got, want):
     np.testing.assert_allclose(got, want, rtol=RTOL, atol=0.0)
 
 
@@ -62,11 +62,11 @@ def test_astable(name):
     d = designs(name, 1)
     o = ideal("astable", name, d)
     ra, rb, c = d["ra"], d["rb"], d["c"]
-    close(o["high_time_s"], LN2 * (ra + rb) * c)
-    close(o["low_time_s"], LN2 * rb * c)
-    close(o["period_s"], LN2 * (ra + 2 * rb) * c)
-    close(o["frequency_hz"], 1.0 / (LN2 * (ra + 2 * rb) * c))
-    close(o["duty"], (ra + rb) / (ra + 2 * rb))
+    assert_close(o["high_time_s"], LN2 * (ra + rb) * c)
+    assert_close(o["low_time_s"], LN2 * rb * c)
+    assert_close(o["period_s"], LN2 * (ra + 2 * rb) * c)
+    assert_close(o["frequency_hz"], 1.0 / (LN2 * (ra + 2 * rb) * c))
+    assert_close(o["duty"], (ra + rb) / (ra + 2 * rb))
     # [book] 1/ln2 = 1.443: the "1.44/((RA+2RB) C)" rule of thumb
     assert round(1.0 / LN2, 3) == 1.443
     assert np.all(o["duty"] > 0.5)
@@ -80,9 +80,9 @@ def test_astable_with_control_voltage(name):
     o = ideal("astable", name, d, control_voltage=vc)
     ra, rb, c, vcc = d["ra"], d["rb"], d["c"], d["vcc"]
     t_h = (ra + rb) * c * np.log((vcc - vc / 2) / (vcc - vc))
-    close(o["high_time_s"], t_h)
-    close(o["low_time_s"], LN2 * rb * c)
-    close(o["frequency_hz"], 1.0 / (t_h + LN2 * rb * c))
+    assert_close(o["high_time_s"], t_h)
+    assert_close(o["low_time_s"], LN2 * rb * c)
+    assert_close(o["frequency_hz"], 1.0 / (t_h + LN2 * rb * c))
 
 
 @TIMER_NAMES
@@ -90,9 +90,9 @@ def test_astable_diode_ideal(name):
     # [derived] diode across RB with zero drop: charge through RA, discharge through RB
     d = designs(name, 3)
     o = ideal("astable-diode", name, d)
-    close(o["high_time_s"], LN2 * d["ra"] * d["c"])
-    close(o["low_time_s"], LN2 * d["rb"] * d["c"])
-    close(o["duty"], d["ra"] / (d["ra"] + d["rb"]))
+    assert_close(o["high_time_s"], LN2 * d["ra"] * d["c"])
+    assert_close(o["low_time_s"], LN2 * d["rb"] * d["c"])
+    assert_close(o["duty"], d["ra"] / (d["ra"] + d["rb"]))
 
 
 @TIMER_NAMES
@@ -102,9 +102,9 @@ def test_astable_symmetric_ideal(name, load):
     # [derived] one resistor from a rail-to-rail output: tH = tL = ln2 R C, duty 0.5
     d = designs(name, 4)
     o = ideal("astable-symmetric", name, d, load=load)
-    close(o["high_time_s"], LN2 * d["r"] * d["c"])
-    close(o["low_time_s"], LN2 * d["r"] * d["c"])
-    close(o["duty"], np.full(N, 0.5))
+    assert_close(o["high_time_s"], LN2 * d["r"] * d["c"])
+    assert_close(o["low_time_s"], LN2 * d["r"] * d["c"])
+    assert_close(o["duty"], np.full(N, 0.5))
 
 
 @TIMER_NAMES
@@ -112,11 +112,11 @@ def test_monostable(name):
     # [book] t = ln3 R C; with a control voltage t = R C ln(VCC/(VCC - Vc))
     d = designs(name, 5)
     o = ideal("monostable", name, d)
-    close(o["pulse_width_s"], LN3 * d["r"] * d["c"])
-    close(o["high_time_s"], LN3 * d["r"] * d["c"])
+    assert_close(o["pulse_width_s"], LN3 * d["r"] * d["c"])
+    assert_close(o["high_time_s"], LN3 * d["r"] * d["c"])
     vc = d["cv_frac"] * d["vcc"]
     o = ideal("monostable", name, d, control_voltage=vc)
-    close(o["pulse_width_s"], d["r"] * d["c"] * np.log(d["vcc"] / (d["vcc"] - vc)))
+    assert_close(o["pulse_width_s"], d["r"] * d["c"] * np.log(d["vcc"] / (d["vcc"] - vc)))
 
 
 def test_one_point_one_rc_is_0_13_percent_high():
