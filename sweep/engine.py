@@ -89,10 +89,3 @@ def design_blocks(study: Study, chunk_points: int = DEFAULT_CHUNK, per_design: i
     step = max(1, chunk_points // max(per, 1))
     for start in range(0, study.n_designs, step):
         yield start, min(start + step, study.n_designs)
-
-
-def condition_blocks(study: Study, chunk_points: int = DEFAULT_CHUNK) -> Iterator[tuple[int, int]]:
-    n = study.n_conditions
-    step = max(1, min(n, chunk_points))
-    for start in range(0, n, step):
-        yield start, min(start + step, n)
