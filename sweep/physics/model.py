@@ -130,6 +130,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     timed = circuit != "bistable"
     if timed:
         c_nom = np.asarray(c, dtype=float)
+        # DC bias taken at the mean node voltage: 3/4 Vc between Vc/2 and Vc in an astable,
+        # Vc/2 on the monostable's ramp from 0 [derived; DOMAIN.md section 3]
         v_mean_cap = (0.5 if circuit == "monostable" else 0.75) * v_up
         k_bias = 0.0 if ideal else parts.dc_bias_loss
         c_eff = (c_nom * (1.0 if ideal else capacitance_temperature_factor(cap, t_amb))

@@ -34,6 +34,9 @@ class Capacitor:
 # The typical curves inside each band (peak near room temperature) are [mem].
 # Film: polypropylene about -200 ppm/K, polyester +200..+600 ppm/K [cp].
 # Aluminium electrolytic: 10-25 % lower at -40 C, a few % higher when hot [mem].
+# DC-bias loss at rated voltage: X7R/X5R 0.5 (30-80 % quoted), Y5V 0.8 (70-90 %) [cp, wide
+# spread]; C0G, films and electrolytics none [cp]. The 5 % floor of dc_bias_factor only keeps C
+# positive for absurd inputs [derived].
 CAPACITORS: dict[str, Capacitor] = {c.name: c for c in [
     Capacitor("C0G", "C0G ceramic (class I)", ((25.0, 0.0),), (-30e-6 * 100, 30e-6 * 100), 0.0,
               "insulation"),
