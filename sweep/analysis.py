@@ -202,10 +202,19 @@ def _band(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> np.ndarray 
     return (acc + drift * np.abs(t - 25.0) + sens * np.abs(v - vnom))[None, None, :]
 
 
+def mc_variation(study: Study, z: dict[str, np.ndarray], builds: slice) -> Variation:
+    """The part multipliers and timer error terms of a slice of Monte Carlo builds, shaped to
+    broadcast against (designs, builds, conditions)."""
+    acc, drift, sens = timer_bands(study)
+    b = {k: v[builds][None, :, None] for k, v in z.items()}
+    return Variation({p: 1.0 + tolerance_of(study, p) * b[p] for p in varied_parts(study)},
+                     accuracy=acc * b["accuracy"], drift_per_k=drift * b["drift"],
+                     supply_per_v=sens * b["supply"])
+
+
 def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
     """Yield, mean and standard deviation over builds x conditions for each design."""
     z = mc_draws(study, n_mc)
-    acc, drift, sens = timer_bands(study)
     nd = len(next(iter(design.values()))) if design else 1   # no timing parts: one design
     nc = len(next(iter(cond.values())))
     b_step = max(1, chunk // max(1, nd * nc))
@@ -215,12 +224,8 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
     shift = {o: None for o in outs}
     for b0 in range(0, n_mc, b_step):
         sl = slice(b0, min(n_mc, b0 + b_step))
-        var = Variation({p: (1.0 + tolerance_of(study, p) * z[p][sl])[None, :, None]
-                         for p in varied_parts(study)},
-                        accuracy=(acc * z["accuracy"][sl])[None, :, None],
-                        drift_per_k=(drift * z["drift"][sl])[None, :, None],
-                        supply_per_v=(sens * z["supply"][sl])[None, :, None])
-        out = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)
+        out = evaluate_block(study, design, cond, ideal=ideal, variation=mc_variation(study, z, sl),
+                             with_spec=False)
         full = (nd, sl.stop - sl.start, nc)       # an output may not vary along every axis
         out = {k: np.broadcast_to(v, full) for k, v in out.items()}
         if study.spec:

@@ -57,6 +57,41 @@ MC_DESIGNS = 2000             # designs that get a Monte Carlo, best worst-case 
 WORKBOOK_DESIGNS = 100_000    # rows of the Designs sheet and of the ranked table kept in memory
 
 
+class TableWriter:
+    """Append DataFrames to one parquet file in row groups of about `group` rows (few, big
+    groups read fast); every batch is cast to the first batch's schema."""
+
+    def __init__(self, path: Path, group: int = 1):
+        self.path, self.group = path, group
+        self.pending: list[pd.DataFrame] = []
+        self.writer: pq.ParquetWriter | None = None
+        self.rows = 0
+
+    def add(self, df: pd.DataFrame) -> None:
+        self.pending.append(df)
+        self.rows += len(df)
+        if sum(map(len, self.pending)) >= self.group:
+            self.flush()
+
+    def flush(self) -> None:
+        if not self.pending:
+            return
+        t = pa.Table.from_pandas(pd.concat(self.pending, ignore_index=True), preserve_index=False)
+        self.pending.clear()
+        if self.writer is None:
+            self.writer = pq.ParquetWriter(self.path, t.schema, compression="zstd")
+        self.writer.write_table(t.cast(self.writer.schema))
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        if exc[0] is None:
+            self.flush()
+        if self.writer is not None:
+            self.writer.close()
+
+
 @dataclass
 class Analysis:
     keys: pd.DataFrame        # every design: the columns ranking and screening need, and rank
@@ -81,40 +116,18 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
     stream = points_path is not None and study.n_points <= points_limit
     o = Options(**{**opt.__dict__, "keep_points": stream})
     table = tmp_dir / f".designs-pass1-{os.getpid()}.parquet"
-    keys, streamed = [], 0
-    writers: dict[str, pq.ParquetWriter] = {}
-
-    pending: dict[str, list[pd.DataFrame]] = {"designs": [], "points": []}
-    paths = {"designs": table, "points": points_path}
-    group = {"designs": 1 << 16, "points": 1 << 18}      # rows per parquet row group
-
-    def write(name, df, flush=False):
-        """Buffer rows and write them in large row groups (few, big groups read fast)."""
-        if df is not None:
-            pending[name].append(df)
-        if pending[name] and (flush or sum(map(len, pending[name])) >= group[name]):
-            t = pa.Table.from_pandas(pd.concat(pending[name], ignore_index=True), preserve_index=False)
-            pending[name].clear()
-            if name not in writers:
-                writers[name] = pq.ParquetWriter(paths[name], t.schema, compression="zstd")
-            writers[name].write_table(t.cast(writers[name].schema))
-
-    try:
-        results = (mapper(analyse_block, study, o, blocks) if mapper else
-                   (analyse_block(study, a, b, o) for a, b in blocks))
+    keys = []
+    results = (mapper(analyse_block, study, o, blocks) if mapper else
+               (analyse_block(study, a, b, o) for a, b in blocks))
+    with TableWriter(table, 1 << 16) as designs, TableWriter(points_path, 1 << 18) as points:
         for (a, b), (df, pts) in zip(blocks, results):
             keys.append(df[RANK_KEYS + ["reach"]])
-            write("designs", df.drop(columns=["reach"]))
+            designs.add(df.drop(columns=["reach"]))
             if pts is not None:
-                write("points", pts)
-                streamed += len(pts)
+                points.add(pts)
             if progress:
                 progress((b - a) * study.n_conditions)
-        write("designs", None, flush=True)
-        write("points", None, flush=True)
-    finally:
-        for w in writers.values():
-            w.close()
+    streamed = points.rows
     keys = pd.concat(keys, ignore_index=True)
     # pass 2: Monte Carlo where the spec can still be met, best worst-case margins first
     screened = {"worst case entirely outside the spec (yield 0)": int((~keys["reach"]).sum())}
@@ -171,8 +184,7 @@ def write_designs_table(study: Study, an: Analysis, path: Path) -> None:
     yld = pd.Series(an.keys["yield"].to_numpy(), index=an.keys["design"].to_numpy())
     mc = an.mc.drop(columns=["yield"]).set_index("design") if len(an.mc) else None
     pf = pq.ParquetFile(an.table)
-    writer = None
-    try:
+    with TableWriter(path) as out:
         for i in range(pf.num_row_groups):
             df = pf.read_row_group(i).to_pandas()
             df.insert(0, "rank", df["design"].map(rank).to_numpy())
@@ -182,15 +194,7 @@ def write_designs_table(study: Study, an: Analysis, path: Path) -> None:
             else:
                 for c in mc_columns(study)[2:]:
                     df[c] = np.nan
-            df = df.drop(columns=["flag_mask"])
-            t = pa.Table.from_pandas(df, preserve_index=False)
-            if writer is None:
-                schema = t.schema
-                writer = pq.ParquetWriter(path, schema, compression="zstd")
-            writer.write_table(t.cast(schema))
-    finally:
-        if writer is not None:
-            writer.close()
+            out.add(df.drop(columns=["flag_mask"]))
 
 
 def iter_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool):
@@ -221,18 +225,10 @@ def points_of(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool)
 
 def write_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool, path: Path) -> int:
     """Stream the points of the given designs to parquet in row groups; returns the row count."""
-    writer, n = None, 0
-    try:
+    with TableWriter(path) as out:
         for df in iter_points(study, design_numbers, limit, ideal):
-            t = pa.Table.from_pandas(df, preserve_index=False)
-            if writer is None:
-                writer = pq.ParquetWriter(path, t.schema, compression="zstd")
-            writer.write_table(t.cast(writer.schema))
-            n += len(df)
-    finally:
-        if writer is not None:
-            writer.close()
-    return n
+            out.add(df)
+    return out.rows
 
 
 STAGING = ".timer-sweep-run-"

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .analysis import (Variation, main_outputs, mc_draws, timer_bands, tolerance_of, varied_parts)
+from .analysis import main_outputs, mc_draws, mc_variation, tolerance_of
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
@@ -209,12 +209,7 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     design = {a.key: np.array([best[a.column]]) for a in study.design}
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     n = study.monte_carlo
-    z = mc_draws(study, n)
-    acc, drift, sens = timer_bands(study)
-    var = Variation({p: (1.0 + tolerance_of(study, p) * z[p])[None, :, None] for p in varied_parts(study)},
-                    accuracy=(acc * z["accuracy"])[None, :, None],
-                    drift_per_k=(drift * z["drift"])[None, :, None],
-                    supply_per_v=(sens * z["supply"])[None, :, None])
+    var = mc_variation(study, mc_draws(study, n), slice(None))
     nc = study.n_conditions
     if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
         cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
