@@ -64,16 +64,22 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
                       "not sampled ([analysis] monte_carlo = 0)"))
         lines.append(("Worst-case margin", f"{best['wc_margin'] * 100:+.1f} % to the nearest spec limit"
                       if np.isfinite(best["wc_margin"]) else "-"))
-    p = study.parts
-    tol = [f"resistors ±{p.resistor_tolerance * 100:g} %"] if any(
-        a.key in ("ra", "rb", "r") for a in study.design) else []
+    p, given = study.parts, study.raw.get("parts", {})
+
+    def source(key: str, parts: tuple[str, ...]) -> str:
+        series = sorted({a.series for a in study.design if a.key in parts and a.series})
+        if key in given:
+            return "from [parts]"
+        return f"implied by {', '.join(series)}" if series else "default"
+    tol = []
+    if any(a.key in ("ra", "rb", "r") for a in study.design):
+        tol.append(f"resistors ±{p.resistor_tolerance * 100:g} % "
+                   f"({source('resistor_tolerance', ('ra', 'rb', 'r'))})")
     if any(a.key == "c" for a in study.design):
-        tol.append(f"capacitor ±{p.capacitor_tolerance * 100:g} % ({p.technology.label})")
+        tol.append(f"capacitor ±{p.capacitor_tolerance * 100:g} % "
+                   f"({source('capacitor_tolerance', ('c',))}; {p.technology.label})")
     if tol:
-        implied = [a.series for a in study.design if a.series]
-        lines.append(("Tolerances assumed", ", ".join(tol) + (
-            f" (unless given in [parts], implied by the series: {', '.join(sorted(set(implied)))})"
-            if implied else "")))
+        lines.append(("Tolerances assumed", ", ".join(tol)))
     lines.append(("Supply current", f"{eng(best['supply_current_a_nom'], 'supply_current_a')} nominal, "
                                     f"{eng(best['supply_current_a_max'], 'supply_current_a')} at most"))
     if "idle_current_a_nom" in best:
