@@ -115,7 +115,7 @@ def _charge_phase(circuit, timer, parts, stage: OutputStates, curve, g_leak, i_d
     tpd = timer.propagation_delay_s
     if circuit == "astable":                                   # through RA + RB [book]
         vinf, g = node_source(vcc, ra_t + rb_t, g_leak, i_draw)
-        return (linear_phase(curve, vinf, g, v_bot, v_up, tpd), vinf <= v_up,
+        return (linear_phase(curve, vinf, g, v_bot, v_up, tpd, curve.at_fraction(1.0)), vinf <= v_up,
                 (vcc - v_bot) / (ra_t + rb_t), ra_t)
     if circuit == "astable-symmetric":                         # the output high drives R [derived]
         v_h, r_h = stage.high
@@ -180,14 +180,15 @@ def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, 
     # the cycle starts where the low phase's run-on ends [derived]
     vinf_b, g_b = seg_d if split is None else (np.where(v_lo > split[1], seg_d[0], split[0][0]),
                                                 np.where(v_lo > split[1], seg_d[1], split[0][1]))
-    v_bot = run_on(curve, vinf_b, g_b, v_lo, tpd)
+    at_lo = curve.at_fraction(1.0 / 3.0)       # Vc/2 in the fit from Vc/4 to Vc
+    v_bot = run_on(curve, vinf_b, g_b, v_lo, tpd, at_lo)
     high, stalls, i_start, r_feed = _charge_phase(
         circuit, timer, parts, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb, ra_t=ra_t,
         rb_t=rb_t, r_t=r_t, v_bot=v_bot, v_up=v_up, ideal=ideal)
     v_top = high.v_end_v
     with np.errstate(all="ignore"):
         if split is None:
-            low = linear_phase(curve, *seg_d, v_top, v_lo, tpd)
+            low = linear_phase(curve, *seg_d, v_top, v_lo, tpd, at_lo)
             stalls = stalls | (seg_d[0] >= v_lo)
         else:
             low, stalls_d = two_segment_phase(curve, seg_d, split[0], split[1], v_top, v_lo, tpd)
@@ -197,7 +198,7 @@ def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, 
     period = t_h + t_l
     # charge from the supply in the high phase: what the node stored plus what leaked and what
     # the inputs drew [derived: charge balance]
-    q_h = curve.charge(v_bot, v_top) + g_leak * high.vt_vs + i_draw * high.time_s
+    q_h = high.charge_c + g_leak * high.vt_vs + i_draw * high.time_s
     vm_l = low.vt_vs / low.time_s                             # mean node voltage, low phase
     if circuit == "astable-symmetric":
         i_ra_l = 0.0
@@ -232,7 +233,8 @@ def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, 
 
 def _surge(timer, curve: NodeCapacitance, v_top, v_end, r_series):
     """The discharge transistor's turn-on surge: (energy [J] it takes, duration [s] to a tenth
-    of its peak). The capacitor's energy between v_top and v_end splits between the transistor
+    of its peak), with C taken at the middle of the swing. The capacitor's energy between v_top
+    and v_end splits between the transistor
     and a series resistance in proportion to their resistances; beyond surge_current_a the
     transistor leaves saturation and takes the excess itself [derived]."""
     if np.all(np.isinf(r_series)):
@@ -240,7 +242,7 @@ def _surge(timer, curve: NodeCapacitance, v_top, v_end, r_series):
         return z, z * np.nan
     r_sat = timer.saturation_ohm
     with np.errstate(all="ignore"):
-        c_mean = curve.charge(v_end, v_top) / (v_top - v_end)
+        c_mean = curve.at(0.5 * (v_end + v_top))
         energy = 0.5 * c_mean * (v_top ** 2 - v_end ** 2)
         r_eff = np.maximum(r_sat, v_top / timer.surge_current_a - r_series)
         e_tr = energy * r_eff / (r_eff + r_series)
@@ -267,7 +269,7 @@ def _monostable(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up):
     vinf_c, g_c = node_source(vcc, r_t, g_leak, i_draw)
     stalls = vinf_c <= v_up
     with np.errstate(all="ignore"):
-        ph = linear_phase(curve, vinf_c, g_c, v0, v_up, tpd)
+        ph = linear_phase(curve, vinf_c, g_c, v0, v_up, tpd, curve.at_fraction(1.0))
         pw = np.where(stalls, np.nan, ph.time_s)
         vm_h = ph.vt_vs / ph.time_s
     i_idle_r = (vcc - v0) / r_t

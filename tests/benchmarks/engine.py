@@ -33,9 +33,15 @@ monte_carlo = 0
 """
 
 
+CHEB = [0.5 - 0.5 * math.cos((2 * i + 1) * math.pi / 6) for i in range(3)]
+TO_MONO = np.linalg.inv(np.vander(CHEB, 3, increasing=True)).tolist()
+
+
 def plain_point(st, ra, rb, c, vcc, t):
     """The realistic astable timing for one point, written as a plain Python function with the
-    math module: the baseline a per-point loop would run."""
+    math module: the baseline a per-point loop would run (the same equations as the engine: a
+    cubic C(v) over the swing integrated against each phase's Thevenin source, the input
+    currents, the propagation delay's run-on)."""
     tm, p = st.timer, st.parts
     cap = p.technology
     rf = 1 + p.resistor_tempco_per_k * (t - 25)
@@ -46,24 +52,46 @@ def plain_point(st, ra, rb, c, vcc, t):
     xs, ys = [q[0] for q in pts], [q[1] for q in pts]
     tf = 1 + float(np.interp(t, xs, ys)) if len(pts) > 1 else 1 + ys[0]
     k = cap.dc_bias_loss if p.dc_bias_loss is None else p.dc_bias_loss
-    dcb = min(max(1 - k * (0.75 * vup / p.capacitor_voltage_v) ** 1.3, 0.05), 1.0)
-    ce = c * tf * dcb + p.stray_capacitance_f
+    a, h = 0.25 * vup, 0.75 * vup
+    vals = [c * tf * min(max(1 - k * ((a + h * x) / p.capacitor_voltage_v) ** 1.3, 0.05), 1.0)
+            + p.stray_capacitance_f for x in CHEB]
+    e = [sum(TO_MONO[m][i] * vals[i] for i in range(3)) for m in range(3)]
+
+    def cap_at(v):
+        x = (v - a) / h
+        return e[0] + x * (e[1] + x * e[2])
+
+    def phase_time(vinf, g, v0, v1):
+        big = (vinf - a) / h
+        p0 = e[0] + big * (e[1] + big * e[2])
+        p1 = e[1] + 2 * e[2] * big
+        u0, u1 = (vinf - v0) / h, (vinf - v1) / h
+        return (p0 * math.log(u0 / u1) - p1 * (u0 - u1) + e[2] * (u0 * u0 - u1 * u1) / 2) / g
+
+    def run_on(vinf, g, v1):
+        c1 = cap_at(v1)
+        v = vinf - (vinf - v1) * math.exp(-tpd * g / c1)
+        x = (v1 - a) / h
+        c_mid = c1 + 0.5 * (e[1] + 2 * e[2] * x) / h * (v - v1)
+        return vinf - (vinf - v1) * math.exp(-tpd * g / c_mid)
+
     g_leak = 1 / min(10e9, 500 / c)
-    ib = tm.threshold_current_a
+    trig = -tm.trigger_current_a if tm.trigger_current_sources else tm.trigger_current_a
+    ib = tm.threshold_current_a + trig
     rs_c = ra + rb
-    g = 1 / rs_c + g_leak
-    vinf_c, tau_c = (vcc / rs_c - ib) / g, ce / g
+    g_c = 1 / rs_c + g_leak
+    vinf_c = (vcc / rs_c - ib) / g_c
     rsat, vsat = tm.saturation_ohm, tm.saturation_v
     vd = (vcc * rsat + vsat * ra) / (ra + rsat)
     rd = ra * rsat / (ra + rsat)
     rs_d = rb + rd
-    g = 1 / rs_d + g_leak
-    vinf_d, tau_d = (vd / rs_d - ib) / g, ce / g
+    g_d = 1 / rs_d + g_leak
+    vinf_d = (vd / rs_d - ib) / g_d
     tpd = tm.propagation_delay_s
-    vtop = vinf_c - (vinf_c - vup) * math.exp(-tpd / tau_c)
-    vbot = vinf_d - (vinf_d - vlo) * math.exp(-tpd / tau_d)
-    th = tau_c * math.log((vinf_c - vbot) / (vinf_c - vup)) + tpd
-    tl = tau_d * math.log((vtop - vinf_d) / (vlo - vinf_d)) + tpd
+    vbot = run_on(vinf_d, g_d, vlo)
+    th = phase_time(vinf_c, g_c, vbot, vup) + tpd
+    vtop = run_on(vinf_c, g_c, vup)
+    tl = phase_time(vinf_d, g_d, vtop, vlo) + tpd
     return 1 / (th + tl), th / (th + tl)
 
 
