@@ -151,10 +151,14 @@ def test_timing_increases_with_r_and_c(design):
     base = run(*design)
     if int(base["flag_mask"]) & STALL:
         return
-    # an electrolytic's leakage grows with C (0.01 C V) [cp]: where it rivals the timing
-    # resistor, more C also means a stronger pull to ground, which can shorten the discharge
-    # [derived], so C is stepped only for the other technologies
-    leaky = parts.technology.leakage in ("electrolytic", "tantalum")
+    # leakage grows with C (an electrolytic's 0.01 C V, a ceramic's 500 s / C insulation) [cp]:
+    # where it rivals the timing resistors, more C also means a stronger pull to ground, which
+    # can shorten the discharge [derived], so C is stepped only where leakage is small
+    from sweep.physics.parts import leakage_conductance_s
+    g = float(leakage_conductance_s(parts.technology, kw["c"], parts.capacitor_voltage_v,
+                                    kw["temperature"], v_work_v=kw["vcc"]))
+    r_big = max(kw.get(k, 0.0) for k in ("ra", "rb", "r") if k in kw)
+    leaky = g * r_big > 1e-3
     for key, outputs in list(TIMED_BY[circuit].items()) + ([] if leaky else [("c", timing_keys(circuit))]):
         up = run(circuit, name, parts, load, {**kw, key: kw[key] * STEP})
         if int(up["flag_mask"]) & STALL:
