@@ -2,6 +2,12 @@
 order, so they equal a serial run exactly."""
 from __future__ import annotations
 
+import re
+import socket
+import struct
+import threading
+import time
+
 from .errors import InputError
 
 
@@ -19,23 +25,129 @@ def process_mapper(workers: int):
     return mapper
 
 
+CONNECT_S = 5.0          # seconds for the connection and the scheduler's first answer
+HANDSHAKE_S = 15.0       # seconds for the whole handshake of the cluster client
+WORKERS_S = 5.0          # seconds to wait for a first worker
+CALL_S = 600.0           # seconds for any one remote call (one block of designs)
+MAX_GREETING = 16 * 2**20   # bytes a scheduler's first message may announce
+SCHEMES = ("tcp", "tls")
+
+
+def check_address(address: str) -> tuple[str, str, int]:
+    """(scheme, host, port) of a scheduler address such as tcp://host:8786 or host:8786;
+    InputError for anything else, before any connection is tried."""
+    from urllib.parse import urlsplit
+    text = address.strip()
+    bad = InputError("", "--scheduler", f"{text!r} is not a scheduler address; expected "
+                     "tcp://HOST:PORT (e.g. tcp://scheduler-host:8786)")
+    if not text or any(ch.isspace() or not ch.isprintable() for ch in text) or len(text) > 300:
+        raise bad
+    parts = urlsplit(text if "://" in text else "tcp://" + text)
+    if parts.scheme not in SCHEMES:
+        raise InputError("", "--scheduler", f"scheme {parts.scheme!r} is not supported; use "
+                         "tcp://HOST:PORT or tls://HOST:PORT")
+    try:
+        port = parts.port
+    except ValueError:
+        raise bad from None
+    host = parts.hostname
+    if not host or port is None or not 0 < port < 65536 or parts.path not in ("", "/") \
+            or parts.query or parts.fragment or parts.username or parts.password:
+        raise bad
+    if not re.fullmatch(r"[A-Za-z0-9.\-]+|[0-9A-Fa-f:.]+", host, re.ASCII):
+        raise bad
+    return parts.scheme, host, port
+
+
+def probe(address: str, timeout: float = CONNECT_S) -> None:
+    """Connect to the scheduler with a timeout and read the size its greeting announces (a Dask
+    scheduler speaks first); refuse silence or junk before the cluster client sees them."""
+    scheme, host, port = check_address(address)
+    where = f"the Dask scheduler at {address}"
+    try:
+        sock = socket.create_connection((host, port), timeout=timeout)
+    except OSError as e:
+        raise InputError("", "--scheduler", f"cannot reach {where}: {e.strerror or e}") from None
+    with sock:
+        if scheme != "tcp":
+            return
+        head = b""
+        deadline = time.monotonic() + timeout
+        try:
+            while len(head) < 8:
+                sock.settimeout(max(0.01, deadline - time.monotonic()))
+                chunk = sock.recv(8 - len(head))
+                if not chunk:
+                    raise InputError("", "--scheduler", f"{where} closed the connection without "
+                                     "answering: is it a Dask scheduler?")
+                head += chunk
+        except (TimeoutError, socket.timeout):
+            raise InputError("", "--scheduler", f"{where} accepted the connection but did not "
+                             f"answer within {timeout:g} s: is it a Dask scheduler?") from None
+        except OSError as e:
+            raise InputError("", "--scheduler", f"{where}: {e.strerror or e}") from None
+        size = struct.unpack("Q", head)[0]       # the cluster's framing: native 64-bit length
+        if not 0 < size <= MAX_GREETING:
+            raise InputError("", "--scheduler", f"{where} answered with something that is not a "
+                             "Dask scheduler's greeting")
+
+
+def _in_thread(fn, seconds: float, what: str):
+    """fn() in a daemon thread, waiting at most `seconds`; InputError if it does not return."""
+    box: dict = {}
+
+    def target():
+        try:
+            box["value"] = fn()
+        except BaseException as e:  # noqa: BLE001 - handed to the caller
+            box["error"] = e
+    t = threading.Thread(target=target, daemon=True)
+    t.start()
+    t.join(seconds)
+    if t.is_alive():
+        raise InputError("", "--scheduler", f"{what} took more than {seconds:g} s")
+    if "error" in box:
+        raise box["error"]
+    return box["value"]
+
+
 def dask_mapper(address: str):
-    """Send blocks to the Dask scheduler at `address` (dask.distributed)."""
+    """Connect to the Dask scheduler at `address` now (every step with a timeout) and return a
+    mapper that sends blocks to it; `mapper.close()` disconnects."""
     try:
         from distributed import Client
     except ImportError:
         raise InputError("", "--scheduler", "needs dask.distributed: pip install 'timer-sweep[cluster]'") from None
+    probe(address)
+    where = f"the Dask scheduler at {address}"
+    try:
+        client = _in_thread(lambda: Client(address, timeout=f"{CONNECT_S:g}s", set_as_default=False),
+                            HANDSHAKE_S, f"connecting to {where}")
+    except InputError:
+        raise
+    except Exception as e:  # noqa: BLE001 - any failure to connect is the address's problem
+        raise InputError("", "--scheduler", f"cannot connect to {where}: {type(e).__name__}: {e}") from None
+    try:
+        client.wait_for_workers(1, timeout=WORKERS_S)
+    except Exception:  # noqa: BLE001
+        client.close(timeout=CONNECT_S)
+        raise InputError("", "--scheduler", f"{where} has no workers (waited {WORKERS_S:g} s); "
+                         "start some with: dask worker ADDRESS") from None
 
     def mapper(fn, study, opt, jobs):
+        futures: list = []
         try:
-            client = Client(address, timeout="5s")
-        except (OSError, TimeoutError) as e:
-            raise InputError("", "--scheduler", f"cannot reach a Dask scheduler at {address}: {e}") from None
-        try:
-            st = client.scatter(study, broadcast=True)
+            st = client.scatter(study, broadcast=True, timeout=CALL_S)
             futures = [client.submit(_run, (fn, st, opt, job), pure=False) for job in jobs]
-            for f in futures:
-                yield f.result()
+            for i, f in enumerate(futures):
+                try:
+                    yield f.result(timeout=CALL_S)
+                except TimeoutError:
+                    raise InputError("", "--scheduler", f"block {i + 1} of {len(futures)} got no "
+                                     f"result from {where} within {CALL_S:g} s") from None
         finally:
-            client.close()
+            if futures:
+                client.cancel(futures)
+
+    mapper.close = lambda: client.close(timeout=CONNECT_S)
     return mapper
