@@ -84,7 +84,10 @@ def main(argv: list[str] | None = None) -> int:
         if type(e).__name__ == "Abort":
             _stopped_exit()
         if hasattr(e, "show") and hasattr(e, "exit_code"):   # a usage error of the CLI framework
-            e.show()
+            import io
+            text = io.StringIO()
+            e.show(file=text)
+            sys.stderr.write("".join(shorten(printable(ln)) + "\n" for ln in text.getvalue().splitlines()))
             sys.exit(2)
         if os.environ.get("TIMER_SWEEP_DEBUG"):
             raise
