@@ -1,6 +1,8 @@
 """Hostile files and a flaky machine, through the real command line in a subprocess with a time
 limit (the subprocess timeout) and a memory limit (RLIMIT_AS in a preexec_fn): each case exits 2
-with one clear line, or 0, or 128 + the signal; never hangs, never loses the previous outputs."""
+with one clear line, or 0, or 128 + the signal; never hangs, never loses the previous outputs.
+Faults that cannot be made for real here (a full disk, a rename failing mid-commit) are made
+in-process with monkeypatch; the pieces behind the contract are checked in-process at the end."""
 from __future__ import annotations
 
 import errno
@@ -352,3 +354,59 @@ def test_disk_full_and_permission_errors_name_the_folder(target, fail, words, tm
     code, _, err = cli(["run", str(study), "--out", str(out), "-q"], capsys)
     refused(code, err, str(out), "--out", "previous outputs were kept", *words)
     assert snapshot(out) == before
+
+
+# ------------------------------------------------------------------ the pieces, in-process
+
+def test_a_signal_during_the_commit_waits_until_the_whole_set_is_in_place(tmp_path):
+    from sweep.pipeline import commit
+    staged, out = tmp_path / "staged", tmp_path / "out"
+    staged.mkdir(), out.mkdir()
+    names = ["a.parquet", "b.xlsx", "run.json"]
+    for n in names:
+        (staged / n).write_text("new " + n)
+        (out / n).write_text("old " + n)
+    seen = []
+
+    def stop(signum, frame):
+        seen.append([(out / n).read_text() for n in names])
+        raise KeyboardInterrupt
+    old = signal.signal(signal.SIGHUP, stop)
+    try:
+        with pytest.raises(KeyboardInterrupt):     # delivered once the renames are done
+            commit([(staged / n, out / n) for n in names],
+                   on_commit=lambda: os.kill(os.getpid(), signal.SIGHUP))
+    finally:
+        signal.signal(signal.SIGHUP, old)
+    assert seen == [["new " + n for n in names]]
+    assert sorted(p.name for p in out.iterdir()) == sorted(names)
+
+
+@pytest.mark.parametrize("written,words", [(False, "previous outputs were kept"),
+                                           (True, "new outputs were written whole")])
+def test_the_stop_message_says_which_outputs_are_there(written, words, capsys):
+    from sweep.cli import STOPPED, _stopped_exit
+    STOPPED.update(signal=signal.SIGTERM, written=written)
+    try:
+        with pytest.raises(SystemExit) as e:
+            _stopped_exit()
+    finally:
+        STOPPED.update(signal=None, written=False)
+    assert e.value.code == 143 and words in capsys.readouterr().err
+
+
+def test_series_rank_agrees_with_the_one_value_lookup():
+    import numpy as np
+    from sweep import values as qv
+    vals = np.concatenate([qv.series_values(k, 1e-12, 1e7) for k in qv.SERIES]
+                          + [np.random.default_rng(3).uniform(1e-9, 1e6, 2000), [0.0, -1.0, np.nan]])
+    one = [list(qv.SERIES).index(s) if (s := qv.series_of(v)) else len(qv.SERIES) for v in vals]
+    assert qv.series_rank(vals).tolist() == one
+    assert qv.series_rank([4700.0, 4750.0, 4990.0, 1234.5]).tolist() == [0, 5, 5, 7]   # [std IEC 60063]
+
+
+@pytest.mark.parametrize("text", ["\x1b[2J", "a\x07b", "\u202eevil", "line\nbreak", "\x9b31m"])
+def test_printable_shows_every_control_character_as_an_escape(text):
+    from sweep.errors import printable
+    shown = printable(text)
+    assert shown.isprintable() and "\\" in shown
