@@ -280,13 +280,26 @@ def _listener(answer: bytes | None):
     return srv.getsockname()[1], stop
 
 
+def _greeting(frames_of=None) -> bytes:
+    """A greeting framed as the cluster library frames one: size, frame count, lengths, frames."""
+    import struct
+    from distributed.protocol import dumps
+    from distributed.protocol.utils import pack_frames
+    frames = frames_of or dumps({"compression": None, "python": (3, 11, 0), "pickle-protocol": 5})
+    body = pack_frames(frames)
+    return struct.pack("Q", len(body)) + body
+
+
 @pytest.mark.parametrize("answer,words", [
-    (None, ["did not answer within 5 s"]),
-    (b"\xff" * 8 + b"HTTP/1.0 200 OK\r\n\r\n", ["not a Dask scheduler"]),
-], ids=["silent", "junk"])
+    (lambda: None, ["did not greet within 5 s"]),
+    (lambda: b"\xff" * 8 + b"HTTP/1.0 200 OK\r\n\r\n", ["not a Dask scheduler"]),
+    (lambda: (2**60).to_bytes(8, "little") * 3, ["not a Dask scheduler"]),     # claims an exabyte
+    (lambda: _greeting([b"\xc1" * 4]), ["cannot connect", "compatible version"]),   # not msgpack
+    (lambda: _greeting(), ["did not complete the handshake"]),   # greets, then says nothing
+], ids=["silent", "junk", "exabyte", "garbled-greeting", "greets-then-silent"])
 def test_a_scheduler_that_never_answers_or_answers_junk_is_refused_in_time(answer, words, tmp_path):
     pytest.importorskip("distributed")
-    port, stop = _listener(answer)
+    port, stop = _listener(answer())
     try:
         out = tmp_path / "out"
         code, _, err = sweep(["run", study_file(tmp_path), "--out", out, "-q",
