@@ -1,6 +1,7 @@
 """run_study: analyse every block, rank, build the report, write every output atomically."""
 from __future__ import annotations
 
+import contextlib
 import errno
 import hashlib
 import json
@@ -251,7 +252,8 @@ def clean_stale(out_dir: Path) -> None:
             except ProcessLookupError:
                 if prefix == PREVIOUS:
                     for old in p.iterdir():
-                        os.replace(old, out_dir / old.name)
+                        with contextlib.suppress(OSError):
+                            os.replace(old, out_dir / old.name)
                 shutil.rmtree(p, ignore_errors=True)
             except PermissionError:
                 pass
