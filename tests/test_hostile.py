@@ -357,7 +357,8 @@ def _wrapped_enospc(*a, **k):          # the workbook writer wraps the OSError i
     ("pathlib.Path.write_text", _enospc, ["No space left on device"]),
     ("pathlib.Path.write_text", _eacces, ["Permission denied"]),
     ("xlsxwriter.Workbook.close", _wrapped_enospc, ["No space left on device"]),
-], ids=["disk-full-record", "permission-record", "disk-full-workbook"])
+    ("pyarrow.parquet.ParquetWriter.write_table", _enospc, ["No space left on device"]),
+], ids=["disk-full-record", "permission-record", "disk-full-workbook", "disk-full-tables"])
 def test_disk_full_and_permission_errors_name_the_folder(target, fail, words, tmp_path, capsys,
                                                          monkeypatch):
     study, out = study_file(tmp_path), tmp_path / "out"
