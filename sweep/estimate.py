@@ -1,6 +1,8 @@
 """Estimates of work, memory and time before a run, and the guard that refuses a huge sweep."""
 from __future__ import annotations
 
+import dataclasses
+import math
 import time
 from dataclasses import dataclass
 
@@ -33,7 +35,10 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     evals = (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
              + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
     # measure this machine on a slice of the study itself: one block of the first pass (sweep,
-    # corners, elasticities) and one Monte Carlo evaluation of the same size
+    # corners, elasticities) and one Monte Carlo evaluation of the same size. The slice has at
+    # most `sample` conditions, so nothing here grows with the sweep before the guard speaks.
+    full_nc, study = nc, _thinned(study, sample)
+    nc = study.n_conditions
     k = max(1, min(nd, sample // max(nc, 1)))
     analyse_block(study, 0, 1, Options(monte_carlo=0))         # warm up
     t0 = time.perf_counter()
@@ -44,14 +49,27 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     t0 = time.perf_counter()
     evaluate_block(study, design, cond)
     rate = k * len(next(iter(cond.values()))) / max(time.perf_counter() - t0, 1e-6)
+    nc = full_nc
     seconds = nd * nc * per_point + min(nd, MC_DESIGNS) * nc * study.monte_carlo / rate
     # memory: the libraries, a few blocks of arrays, the ranking keys of every design, and the
     # best designs' full rows kept for the workbook [measured: 685 MiB at 1e8 points]
     from .pipeline import WORKBOOK_DESIGNS
     ncol = 7 * len(summary_outputs(study)) + 20
-    mem = (250 * 2**20 + DEFAULT_CHUNK * 16 * 80 * 8 + nd * 10 * 8 * 3
+    mem = (250 * 2**20 + max(DEFAULT_CHUNK, nc) * 16 * 80 * 8 + nd * 10 * 8 * 3
            + min(nd, WORKBOOK_DESIGNS) * ncol * 8 * 4)
     return Estimate(nd * nc, evals, int(mem), seconds, rate)
+
+
+def _thinned(study: Study, most: int) -> Study:
+    """The study with its condition axes thinned (every other value, ends kept) until it has at
+    most `most` conditions: a sample to time, never a sweep to run."""
+    axes = list(study.conditions)
+    while math.prod(len(a.values) for a in axes) > most:
+        i = max(range(len(axes)), key=lambda j: len(axes[j].values))
+        v = axes[i].values
+        keep = np.unique(np.r_[np.arange(0, len(v), 2), len(v) - 1])
+        axes[i] = dataclasses.replace(axes[i], values=v[keep])
+    return dataclasses.replace(study, conditions=tuple(axes))
 
 
 def human_time(s: float) -> str:

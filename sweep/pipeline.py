@@ -1,11 +1,14 @@
 """run_study: analyse every block, rank, build the report, write every output atomically."""
 from __future__ import annotations
 
+import contextlib
+import errno
 import hashlib
 import json
 import os
 import shutil
 import signal
+import stat
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -232,40 +235,118 @@ def write_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bo
 
 
 STAGING = ".timer-sweep-run-"
+PREVIOUS = ".timer-sweep-previous-"      # the outputs a commit replaces, until it is complete
+HELD = {signal.SIGINT, signal.SIGTERM, signal.SIGHUP}
 
 
 def clean_stale(out_dir: Path) -> None:
-    """Remove the staging folder of a run that was killed outright (SIGKILL, power loss)."""
-    for p in out_dir.glob(STAGING + "*"):
-        try:
-            pid = int(p.name[len(STAGING):])
-            os.kill(pid, 0)
-        except ValueError:
-            continue
-        except ProcessLookupError:
-            shutil.rmtree(p, ignore_errors=True)
-        except PermissionError:
-            pass
+    """Undo what a run killed outright (SIGKILL, power loss) left: remove its staging folder,
+    and if it died while putting its outputs in place, put the previous outputs back."""
+    for prefix in (STAGING, PREVIOUS):
+        for p in out_dir.glob(prefix + "*"):
+            try:
+                pid = int(p.name[len(prefix):])
+                os.kill(pid, 0)
+            except ValueError:
+                continue
+            except ProcessLookupError:
+                if prefix == PREVIOUS:
+                    for old in p.iterdir():
+                        with contextlib.suppress(OSError):
+                            os.replace(old, out_dir / old.name)
+                shutil.rmtree(p, ignore_errors=True)
+            except PermissionError:
+                pass
 
 
-def commit(pairs: list[tuple[Path, Path]]) -> None:
-    """Rename every temporary onto its final name with SIGINT and SIGTERM held back, so a
-    run stopped at any moment leaves either all the new outputs or all the old ones."""
-    held = {signal.SIGINT, signal.SIGTERM}
-    old = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+def check_target(final: Path) -> None:
+    """Refuse to replace anything but a file (or a link) at an output's name."""
     try:
-        for tmp, final in pairs:
-            os.replace(tmp, final)
+        mode = final.lstat().st_mode
+    except FileNotFoundError:
+        return
+    if not (stat.S_ISREG(mode) or stat.S_ISLNK(mode)):
+        what = "a folder" if stat.S_ISDIR(mode) else "something that is not a file"
+        raise InputError(str(final), "--out", f"{what} sits where this output goes; move it away "
+                         "and run again (the previous outputs were kept)")
+
+
+def commit(pairs: list[tuple[Path, Path]], on_commit: Callable[[], None] | None = None) -> None:
+    """Put every staged file in place as one step, with SIGINT, SIGTERM and SIGHUP held back:
+    each file being replaced is first moved aside into a PREVIOUS folder; if any rename fails,
+    every file already placed is removed and the previous ones are moved back, and the error
+    names the path that blocked. So the folder holds either the whole new set or the whole old
+    one, and run.json (renamed last) always describes the files beside it."""
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, HELD)
+    try:
+        out_dir = pairs[0][1].parent
+        aside = out_dir / f"{PREVIOUS}{os.getpid()}"
+        aside.mkdir(exist_ok=True)
+        placed: list[tuple[Path, Path | None]] = []   # (final, where its previous file went)
+        try:
+            for tmp, final in pairs:
+                check_target(final)
+                prev = None
+                if os.path.lexists(final):
+                    prev = aside / final.name
+                    os.replace(final, prev)
+                placed.append((final, prev))
+                os.replace(tmp, final)
+        except BaseException as e:
+            _roll_back(placed, aside)
+            if isinstance(e, OSError):
+                raise InputError(str(e.filename or out_dir), "--out", f"cannot put the outputs in "
+                                 f"place: {e.strerror or e}; the previous outputs were kept") from None
+            raise
+        shutil.rmtree(aside, ignore_errors=True)
+        if on_commit:
+            on_commit()
     finally:
         signal.pthread_sigmask(signal.SIG_SETMASK, old)
+
+
+def _roll_back(placed: list[tuple[Path, Path | None]], aside: Path) -> None:
+    """Undo a partial commit: remove the new files, move the previous ones back."""
+    for final, prev in reversed(placed):
+        try:
+            if prev is not None:
+                os.replace(prev, final)
+            elif os.path.lexists(final):
+                os.unlink(final)
+        except OSError as e:
+            raise InputError(str(aside), "--out", f"could not restore {final.name} after a failed "
+                             f"commit ({e.strerror}); the previous outputs are in this folder") from None
+    shutil.rmtree(aside, ignore_errors=True)
+
+
+DISK_ERRNOS = {errno.ENOSPC, errno.EDQUOT, errno.EFBIG, errno.EROFS, errno.EACCES, errno.EPERM,
+               errno.EIO}
+DISK_WORDS = ("No space left", "Disk quota", "Permission denied", "Read-only file system",
+              "File too large")
+
+
+def disk_error(e: BaseException) -> OSError | None:
+    """The disk or permission error behind `e` (writers wrap them in their own types), if any."""
+    seen = 0
+    while e is not None and seen < 8:
+        if isinstance(e, OSError) and (e.errno in DISK_ERRNOS or
+                                       any(w in str(e) for w in DISK_WORDS)):
+            return e
+        inner = [a for a in getattr(e, "args", ()) if isinstance(a, BaseException)]
+        e = inner[0] if inner else (e.__cause__ or e.__context__)
+        seen += 1
+    return None
 
 
 def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: bool = False,
               chunk: int = DEFAULT_CHUNK, progress: Callable[..., None] | None = None,
               mapper=None, workbook_points: int = WORKBOOK_POINTS,
-              parquet_points: int = PARQUET_POINTS) -> RunResult:
-    """The main job. Every output is written under a temporary name first and renamed at the end,
-    so an interrupted run leaves the previous outputs intact and no partial file behind."""
+              parquet_points: int = PARQUET_POINTS,
+              on_commit: Callable[[], None] | None = None) -> RunResult:
+    """The main job. Every output is written into a staging folder first and the set is put in
+    place together at the end (`commit`), so a run that is interrupted or fails leaves the
+    previous outputs whole and no partial file behind. `on_commit` is called once the new set is
+    in place. A full disk or a permission error is an InputError naming the output folder."""
     from .writers.page import write_page
     from .writers.workbook import write_workbook
 
@@ -279,8 +360,13 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     final = {"workbook": out_dir / f"{study.name}.xlsx", "page": out_dir / f"{study.name}.html",
              "points": out_dir / "points.parquet", "designs": out_dir / "designs.parquet",
              "record": out_dir / "run.json"}
+    for path in final.values():
+        check_target(path)
     staging = out_dir / f"{STAGING}{os.getpid()}"
-    staging.mkdir(exist_ok=True)
+    try:
+        staging.mkdir(exist_ok=True)
+    except OSError as e:
+        raise InputError(str(out_dir), "--out", f"cannot write here: {e.strerror}") from None
     tmp = {k: staging / p.name for k, p in final.items()}
     try:
         limit = study.n_points if all_points else parquet_points
@@ -322,7 +408,16 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         info["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
         info["sha256"] = {final[k].name: _sha256(tmp[k]) for k in ("points", "designs", "workbook", "page")}
         tmp["record"].write_text(json.dumps(info, indent=2) + "\n", encoding="utf-8")
-        commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "record")])
+        commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "record")],
+               on_commit)
+    except InputError:
+        raise
+    except Exception as e:
+        disk = disk_error(e)
+        if disk is None:
+            raise
+        raise InputError(str(out_dir), "--out", f"cannot write the outputs: "
+                         f"{disk.strerror or disk}; the previous outputs were kept") from None
     finally:
         shutil.rmtree(staging, ignore_errors=True)
     return RunResult(study, ranked, out_dir, final, info)

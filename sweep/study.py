@@ -19,6 +19,7 @@ import numpy as np
 
 from . import values as qv
 from .errors import InputError
+from .files import MAX_TEXT, read_bytes_limited
 from .models import load_timer
 from .physics import ASTABLES, CIRCUIT_PARTS, CIRCUITS, Load, Parts, TimerModel, capacitor_named
 from .physics.parts import DIODES, CAPACITOR_ALIASES
@@ -88,8 +89,7 @@ class Axis:
 
     def __post_init__(self):
         # for each value, the coarsest IEC 60063 series holding it: 0 = E3 ... 6 = E192, 7 = none
-        rank = np.array([SERIES_ORDER.index(s) if (s := qv.series_of(v)) else len(SERIES_ORDER)
-                         for v in self.values]) if self.key in ("ra", "rb", "r", "c") else \
+        rank = qv.series_rank(self.values) if self.key in ("ra", "rb", "r", "c") else \
             np.full(len(self.values), len(SERIES_ORDER))
         object.__setattr__(self, "series_rank", rank)
 
@@ -130,11 +130,11 @@ class Study:
 
     @property
     def n_designs(self) -> int:
-        return int(np.prod([len(a.values) for a in self.design])) if self.design else 1
+        return math.prod(len(a.values) for a in self.design)      # exact: no int64 overflow
 
     @property
     def n_conditions(self) -> int:
-        return int(np.prod([len(a.values) for a in self.conditions])) if self.conditions else 1
+        return math.prod(len(a.values) for a in self.conditions)
 
     @property
     def n_points(self) -> int:
@@ -154,10 +154,6 @@ def load_study(path: str | Path) -> Study:
     """Read a study from a TOML file or from the Study sheet of a timer-sweep workbook."""
     p = Path(path)
     fname = str(path)
-    if p.is_dir():
-        raise InputError(fname, "", "is a folder, not a study file")
-    if not p.exists():
-        raise InputError(fname, "", "file not found")
     if p.suffix.lower() in (".xlsx", ".xlsm"):
         from .workbook_input import read_study_sheet
         text, sheet_rows = read_study_sheet(p)
@@ -170,7 +166,7 @@ def load_study(path: str | Path) -> Study:
             where = f"{fname}, sheet Study" + (f", row {row}" if row else "")
             raise InputError(where, e.key, e.problem) from None
     else:
-        raw_bytes = p.read_bytes()
+        raw_bytes = read_bytes_limited(p, MAX_TEXT, "a study file")
         if not raw_bytes.strip():
             raise InputError(fname, "", "the file is empty: a study needs at least [study] circuit")
         if b"\x00" in raw_bytes:
@@ -182,7 +178,41 @@ def load_study(path: str | Path) -> Study:
     return parse_study(text, fname, base_dir=p.parent)
 
 
+MAX_DEPTH = 16                # nested [ ] and { } in a TOML value; a study needs 3
+MAX_DIGITS = 64               # digits in one bare TOML number
+MAX_KEY = 200                 # characters in one key or dotted key
+_TOKENS = re.compile(r'''"""(?:[^\\]|\\.)*?"""|\'\'\'.*?\'\'\'|"(?:[^"\\\n]|\\.)*"|'[^'\n]*'|#[^\n]*'''
+                     r"|[\[\]{}]|[0-9_.eE+-]{%d,}|[A-Za-z0-9_.-]{%d,}" % (MAX_DIGITS + 1, MAX_KEY + 1),
+                     re.DOTALL)
+
+
+def check_toml_text(text: str, fname: str) -> None:
+    """Refuse TOML text the parser should never see: values nested deeper than MAX_DEPTH,
+    numbers longer than MAX_DIGITS digits, bare keys longer than MAX_KEY (strings and comments
+    are skipped). Vectorised over the tokens, so a 1 MiB file takes milliseconds."""
+    toks = [(m.group(), m.start()) for m in _TOKENS.finditer(text)
+            if m.group()[0] not in "\"'#"]
+    if not toks:
+        return
+    def line(pos):
+        return text.count("\n", 0, pos) + 1
+    for t, pos in toks:
+        if len(t) > 1:
+            if t.replace("_", "").isdigit() or t[0] in "0123456789+-.":
+                raise InputError(fname, "", f"a number of {len(t):,} characters; the limit is "
+                                 f"{MAX_DIGITS}", line(pos))
+            raise InputError(fname, "", f"a key of {len(t):,} characters; the limit is {MAX_KEY}",
+                             line(pos))
+    step = np.array([1 if t in "[{" else -1 for t, _ in toks])
+    depth = np.cumsum(step)
+    i = int(np.argmax(depth))
+    if depth[i] > MAX_DEPTH:
+        raise InputError(fname, "", f"values nested {int(depth[i])} deep; the limit is {MAX_DEPTH}",
+                         line(toks[i][1]))
+
+
 def parse_study(text: str, fname: str = "<study>", base_dir: Path | None = None) -> Study:
+    check_toml_text(text, fname)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
@@ -218,7 +248,7 @@ class _Parser:
     def quantity(self, section, key, value, unit, allow_negative=False) -> float:
         if unit == "int":
             if isinstance(value, bool) or not isinstance(value, int):
-                self.fail(section, key, f"must be a whole number, got {value!r}")
+                self.fail(section, key, f"must be a whole number, got {qv.clip(repr(value))}")
             return value
         try:
             x = qv.parse_quantity(value, unit, allow_negative=allow_negative)
@@ -325,6 +355,9 @@ class _Parser:
                 self.fail(section, key, "below absolute zero")
             if key == "temperature" and np.any(np.abs(vals) > 1000):
                 self.fail(section, key, "a temperature beyond +-1000 °C is not a timer's world")
+            if key == "c" and np.any(vals >= 1.0):
+                self.fail(section, key, f"{qv.format_eng(vals.max(), 'F')}: timer-sweep models timing "
+                          "capacitors below 1 F (for microfarads write e.g. \"1u\")")
             if nominal is not None and role == "design":
                 self.fail(section, f"{key}.nominal", "a nominal value belongs to [conditions]")
             if role == "condition":
@@ -336,12 +369,25 @@ class _Parser:
             out.append(Axis(key, column, vals, role, series, nominal))
         return tuple(out)
 
+    def numbers(self, section, key, items: list, unit: str, neg: bool) -> np.ndarray:
+        """A list's values in SI units: plain numbers checked as one array, text one by one."""
+        if all(type(v) in (int, float) for v in items):
+            vals = np.asarray(items, dtype=float)
+            bad = ~np.isfinite(vals) | ((vals < 0) if not neg else False)
+            if bad.any():                        # let the one parser word the message
+                self.quantity(section, key, items[int(np.argmax(bad))], unit, neg)
+            return vals + 0.0
+        return np.array([self.quantity(section, key, v, unit, neg) for v in items])
+
     def range_values(self, section, key, value, unit):
         neg = key == "temperature"
         if isinstance(value, list):
             if not value:
                 self.fail(section, key, "empty list")
-            vals = np.array([self.quantity(section, key, v, unit, neg) for v in value])
+            if len(value) > MAX_POINTS_PER_AXIS:
+                self.fail(section, key, f"a list of {len(value):,} values: too many for one axis "
+                          f"(limit {MAX_POINTS_PER_AXIS:,})")
+            vals = self.numbers(section, key, value, unit, neg)
             if len(np.unique(vals)) != len(vals):
                 self.fail(section, key, "the list repeats a value")
             return vals, None, None
@@ -382,6 +428,9 @@ class _Parser:
                 self.fail(section, f"{key}.steps", f"must be a whole number from 1 to {MAX_STEPS}")
             if n > 1 and lo == hi:
                 self.fail(section, key, "min equals max: use a single value or steps = 1")
+            if n == 1 and lo != hi:
+                self.fail(section, f"{key}.steps", f"steps = 1 gives one value, but min ({value['min']}) "
+                          f"and max ({value['max']}) differ: use steps = 2 or more, or a single value")
             vals = np.linspace(lo, hi, n) if n > 1 else np.array([lo])
             return vals, None, nominal
         if kind == "per_decade":

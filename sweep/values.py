@@ -29,7 +29,7 @@ from __future__ import annotations
 import math
 import numbers
 import re
-from decimal import Decimal, InvalidOperation
+from decimal import Decimal, DecimalException
 
 import numpy as np
 
@@ -100,6 +100,26 @@ def series_of(value: float) -> str | None:
     return None
 
 
+def series_rank(values) -> np.ndarray:
+    """For each value, the index in SERIES (0 = E3 ... 6 = E192) of the coarsest series holding
+    it to 1e-9 relative, or len(SERIES) for none: :func:`series_of` over an array, vectorised."""
+    v = np.asarray(values, dtype=float).ravel()
+    rank = np.full(v.shape, len(SERIES))
+    ok = np.isfinite(v) & (v > 0)
+    if not ok.any():
+        return rank
+    w = v[ok]
+    mant = w / 10.0 ** np.floor(np.log10(w))                  # in [1, 10), give or take rounding
+    found = np.full(w.shape, len(SERIES))
+    for i, key in reversed(list(enumerate(SERIES))):         # finest first; coarser overwrite
+        table = np.sort(np.concatenate([np.asarray(SERIES[key]) * f for f in (0.1, 1.0, 10.0)]))
+        j = np.clip(np.searchsorted(table, mant), 1, len(table) - 1)
+        near = np.minimum(np.abs(table[j] - mant), np.abs(table[j - 1] - mant))
+        found[near <= 1e-9 * mant] = i
+    rank[ok] = found
+    return rank
+
+
 # --- quantity text -----------------------------------------------------------------------------
 _PREFIX = {"p": -12, "n": -9, "u": -6, "µ": -6, "μ": -6, "m": -3, "k": 3, "M": 6, "G": 9}  # [std SI]
 _RES_LETTERS = {"R": 0, "K": 3, "k": 3, "M": 6, "G": 9}             # [std IEC 60062]
@@ -117,13 +137,20 @@ _ACCEPTS = {u: {u} for u in ("ohm", "F", "V", "A", "Hz", "s", "W", "C", "%")}
 _ACCEPTS |= {"": {"%", "ppm"}, "ppm/K": {"ppm", "ppm/K"}}
 _SCALE = {"%": -2, "ppm": -6, "ppm/K": -6}   # written unit -> power of ten to the base unit
 _NO_PREFIX = {"C", "%", "ppm/K"}
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
-_RKM = re.compile(r"([+-]?)(\d*)([RKkMGpnuµμm])(\d*)\s*(.*)")
+_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?", re.ASCII)   # ASCII digits only
+_RKM = re.compile(r"([+-]?)(\d*)([RKkMGpnuµμm])(\d*)\s*(.*)", re.ASCII)
+MAX_TEXT = 40    # characters of quantity text; longer is refused, and shown cut to this length
 _HINT = "expected a number with an optional SI prefix and unit, e.g. '4.7k', '100nF', '4K7'"
 
 
+def clip(text: str, n: int = MAX_TEXT) -> str:
+    """`text` cut to `n` characters, saying how long it was, for quoting in a message."""
+    text = str(text)
+    return text if len(text) <= n else f"{text[:n]}... ({len(text):,} characters)"
+
+
 def _bad(text: str, why: str) -> ValueError:
-    return ValueError(f"'{text}' is not a quantity: {why}")
+    return ValueError(f"'{clip(text)}' is not a quantity: {why}")
 
 
 def _rkm_match(text: str):
@@ -211,6 +238,8 @@ def parse_quantity(text: str | int | float, unit: str, *, allow_negative: bool =
         shown = text.strip().replace("\u2212", "-")
         if not shown:
             raise ValueError(f"an empty text is not a quantity; {_HINT}")
+        if len(shown) > MAX_TEXT:
+            raise ValueError(f"'{clip(shown)}' is too long for a quantity (limit {MAX_TEXT} characters)")
         if shown.lstrip("+-").lower() in ("nan", "inf", "infinity"):
             raise ValueError(f"'{shown}' is not a finite number")
         m = _rkm_match(shown)
@@ -224,7 +253,7 @@ def parse_quantity(text: str | int | float, unit: str, *, allow_negative: bool =
             exp = _parse_suffix(shown, rest, unit)[0] if rest else 0
             try:
                 dec = Decimal(num.group()).scaleb(exp)
-            except InvalidOperation:
+            except DecimalException:
                 raise _bad(shown, "the number is out of range") from None
         value = float(dec)
     else:

@@ -6,10 +6,12 @@ ratio before openpyxl opens it.
 """
 from __future__ import annotations
 
+import io
 import zipfile
 from pathlib import Path
 
 from .errors import InputError
+from .files import read_bytes_limited
 
 MAX_FILE = 50 * 2**20            # bytes on disk
 MAX_UNPACKED = 200 * 2**20       # bytes once unzipped
@@ -19,11 +21,11 @@ MAX_SHEETS = 64
 MAX_ROWS = 2000
 
 
-def _guard(path: Path) -> None:
+def _guard(path: Path) -> io.BytesIO:
+    """The workbook's bytes in memory, once the file and its zip container pass every check."""
     fname = str(path)
-    size = path.stat().st_size
-    if size > MAX_FILE:
-        raise InputError(fname, "", f"workbook is {size / 2**20:.0f} MiB; the limit is {MAX_FILE // 2**20} MiB")
+    data = read_bytes_limited(path, MAX_FILE, "a workbook")
+    path = io.BytesIO(data)
     if not zipfile.is_zipfile(path):
         raise InputError(fname, "", "not a workbook (an .xlsx file is a zip container)")
     try:
@@ -44,6 +46,8 @@ def _guard(path: Path) -> None:
                 raise InputError(fname, "", f"corrupt workbook: part {bad} fails its checksum")
     except zipfile.BadZipFile as e:
         raise InputError(fname, "", f"corrupt workbook: {e}") from None
+    path.seek(0)
+    return path
 
 
 def read_study_sheet(path: Path) -> tuple[str, dict[int, int]]:
@@ -55,10 +59,10 @@ def read_study_sheet(path: Path) -> tuple[str, dict[int, int]]:
         raise InputError(str(path), "", "refusing to read a workbook without defusedxml installed")
 
     from .study import rows_to_toml
-    _guard(path)
+    data = _guard(path)
     fname = str(path)
     try:
-        wb = load_workbook(path, read_only=True, data_only=True)
+        wb = load_workbook(data, read_only=True, data_only=True)
     except Exception as e:  # noqa: BLE001 - any parser failure is a bad file, not our bug
         raise InputError(fname, "", f"cannot read the workbook: {type(e).__name__}: {e}") from None
     try:

@@ -41,7 +41,11 @@ def test_two_worker_dask_cluster_on_loopback_equals_serial(study, serial, tmp_pa
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, host="127.0.0.1",
                                   dashboard_address=None, processes=True) as cluster:
-        run_study(study, tmp_path, chunk=4096, mapper=dask_mapper(cluster.scheduler_address))
+        mapper = dask_mapper(cluster.scheduler_address)
+        try:
+            run_study(study, tmp_path, chunk=4096, mapper=mapper)
+        finally:
+            mapper.close()
     got = outputs(tmp_path)
     pd.testing.assert_frame_equal(got[0], serial[0])
     pd.testing.assert_frame_equal(got[1], serial[1])
@@ -50,7 +54,7 @@ def test_two_worker_dask_cluster_on_loopback_equals_serial(study, serial, tmp_pa
 
 def test_unreachable_scheduler_is_a_clear_error(study, tmp_path):
     from sweep.errors import InputError
-    with pytest.raises(InputError) as e:
+    with pytest.raises(InputError) as e:     # refused when connecting, before the run starts
         run_study(study, tmp_path, mapper=dask_mapper("tcp://127.0.0.1:9"))
     assert "--scheduler" in e.value.message and "127.0.0.1:9" in e.value.message
     assert not any(p.name.endswith((".xlsx", ".html", ".json")) for p in tmp_path.iterdir())

@@ -11,7 +11,7 @@ import sys
 import typer
 
 from .. import __version__
-from ..errors import InputError
+from ..errors import InputError, printable, shorten
 
 app = typer.Typer(
     help="Sweep 555-timer designs over standard parts, supply and temperature; rank them for "
@@ -35,35 +35,68 @@ def _root(version: bool = typer.Option(False, "--version", callback=_version, is
 from . import commands  # noqa: E402,F401  (registers the commands on `app`)
 
 
-def _terminate(signum, frame):
-    raise KeyboardInterrupt
+STOPPED: dict = {"signal": None, "written": False}   # the stopping signal; outputs in place?
+STOP_SIGNALS = ("SIGINT", "SIGTERM", "SIGHUP")
+
+
+def _stop(signum, frame):
+    """Ctrl-C, SIGTERM and SIGHUP: unwind (staging removed, previous outputs kept) and exit
+    128 + the signal number. A second signal while unwinding is ignored, so cleanup finishes."""
+    if STOPPED["signal"] is None:
+        STOPPED["signal"] = signum
+        raise KeyboardInterrupt
+
+
+def _stopped_exit() -> None:
+    import signal
+    after_write = STOPPED["written"]
+    signum = STOPPED["signal"] or signal.SIGINT
+    name = "Ctrl-C" if signum == signal.SIGINT else signal.Signals(signum).name
+    if after_write:
+        print(f"timer-sweep: stopped by {name} after the new outputs were written whole",
+              file=sys.stderr)
+    else:
+        print(f"timer-sweep: stopped by {name}; the run did not finish and the previous outputs "
+              "were kept", file=sys.stderr)
+    sys.exit(128 + signum)
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Console entry point: bad input exits 2 with one line, internal errors exit 1. SIGTERM is
-    handled like Ctrl-C: temporary files are removed and earlier outputs stay as they were."""
+    """Console entry point: bad input exits 2 with one line, internal errors exit 1; Ctrl-C,
+    SIGTERM and SIGHUP exit 130, 143 and 129 with one line, temporary files removed and earlier
+    outputs as they were."""
     import signal
     if argv is None:
-        signal.signal(signal.SIGTERM, _terminate)
+        for name in STOP_SIGNALS:
+            if hasattr(signal, name):
+                signal.signal(getattr(signal, name), _stop)
+    STOPPED.update(signal=None, written=False)
     try:
-        app(args=argv, standalone_mode=False)
+        rv = app(args=argv, standalone_mode=False)
     except InputError as e:
         print(f"timer-sweep: error: {e.message}", file=sys.stderr)
         sys.exit(2)
     except SystemExit:
         raise
     except KeyboardInterrupt:
-        print("timer-sweep: interrupted; previous outputs left as they were", file=sys.stderr)
-        sys.exit(130)
+        _stopped_exit()
     except Exception as e:  # noqa: BLE001
         if type(e).__name__ == "Abort":
-            sys.exit(130)
+            _stopped_exit()
         if hasattr(e, "show") and hasattr(e, "exit_code"):   # a usage error of the CLI framework
-            e.show()
+            import io
+            text = io.StringIO()
+            e.show(file=text)
+            sys.stderr.write("".join(shorten(printable(ln)) + "\n" for ln in text.getvalue().splitlines()))
             sys.exit(2)
         if os.environ.get("TIMER_SWEEP_DEBUG"):
             raise
-        print(f"timer-sweep: internal error: {type(e).__name__}: {e} "
-              "(set TIMER_SWEEP_DEBUG=1 for the details)", file=sys.stderr)
+        print(printable(f"timer-sweep: internal error: {type(e).__name__}: {shorten(str(e))} "
+                        "(set TIMER_SWEEP_DEBUG=1 for the details)"), file=sys.stderr)
         sys.exit(1)
+    # the CLI framework turns an interrupt into the return value 130
+    if rv == 130 or STOPPED["signal"] is not None:
+        _stopped_exit()
+    if isinstance(rv, int) and rv:
+        sys.exit(rv)
     return 0

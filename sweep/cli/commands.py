@@ -26,8 +26,8 @@ def _err(console_text: str) -> None:
 
 @app.command()
 def run(study: StudyArg,
-        out: Annotated[Optional[Path], typer.Option("--out", "-o", help="Output folder "
-                                                    "(default: outputs/<study name>/)")] = None,
+        out: Annotated[Optional[str], typer.Option("--out", "-o", help="Output folder "
+                                                   "(default: outputs/<study name>/)")] = None,
         ideal: Ideal = False,
         all_points: Annotated[bool, typer.Option("--all-points", help="Stream every point to "
                                                  "points.parquet, however many.")] = False,
@@ -44,21 +44,32 @@ def run(study: StudyArg,
     from ..pipeline import run_study
     from .show import progress_bar, top_table
 
+    from . import STOPPED
+
+    if out is not None and not out.strip():
+        raise InputError("", "--out", "is empty; give a folder (--out . for the current one)")
+    if scheduler:
+        from ..parallel import check_address
+        check_address(scheduler)
     st = load_study(study)
-    if out is None:
-        out = Path("outputs") / st.name
+    out_dir = Path(out) if out is not None else Path("outputs") / st.name
     est = estimate(st)
     if not yes:
         guard(st, est)
     mapper = None
     if scheduler:
         from ..parallel import dask_mapper
-        mapper = dask_mapper(scheduler)
+        mapper = dask_mapper(scheduler)      # connects now: a refusal writes nothing
     elif workers > 1:
         from ..parallel import process_mapper
         mapper = process_mapper(workers)
-    with progress_bar(st.n_points, quiet or not sys.stderr.isatty(), est) as advance:
-        res = run_study(st, out, ideal=ideal, all_points=all_points, progress=advance, mapper=mapper)
+    try:
+        with progress_bar(st.n_points, quiet or not sys.stderr.isatty(), est) as advance:
+            res = run_study(st, out_dir, ideal=ideal, all_points=all_points, progress=advance,
+                            mapper=mapper, on_commit=lambda: STOPPED.update(written=True))
+    finally:
+        if hasattr(mapper, "close"):
+            mapper.close()
     top_table(res, table=not quiet)
 
 

@@ -5,10 +5,17 @@ import contextlib
 import sys
 
 from rich.console import Console
-from rich.markup import escape
+from rich.markup import escape as _markup_escape
 from rich.table import Table
 
+from ..errors import printable
 from ..reporting import eng
+
+
+def escape(text: str) -> str:
+    """User text for the terminal: control characters and escape sequences shown as escapes,
+    rich markup taken literally."""
+    return _markup_escape(printable(text))
 
 err = Console(stderr=True)
 out = Console() if sys.stdout.isatty() else Console(width=120)   # pipes and logs get room

@@ -31,11 +31,15 @@ def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") ->
         if not path.suffix == ".toml":
             raise InputError(study_file, "study.timer",
                              f"unknown timer {spec!r}: use 'bipolar', 'cmos' or a path to a .toml file")
-        if not path.is_file():
+        if not path.exists():
             raise InputError(study_file, "study.timer", f"timer-model file {str(path)!r} not found")
     fname = str(path)
+    from ..files import MAX_TEXT, read_bytes_limited
+    from ..study import check_toml_text
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        text = read_bytes_limited(path, MAX_TEXT, "a timer-model file").decode("utf-8")
+        check_toml_text(text, fname)
+        data = tomllib.loads(text)
     except UnicodeDecodeError:
         raise InputError(fname, "", "not a UTF-8 text file") from None
     except tomllib.TOMLDecodeError as e:
