@@ -110,7 +110,7 @@ def spread_reading(study: Study) -> str:
     sig = "one sigma" if k == 1 else f"{k:g} sigma"
     dist = ("normal with the tolerance as 3 sigma, clipped at the tolerance"
             if study.distribution == "normal" else "uniform over the tolerance")
-    return (f"Timer spreads: a typical datasheet figure is read as {sig} ([analysis] typical_sigma "
+    return (f"a typical datasheet figure of the timer is read as {sig} ([analysis] typical_sigma "
             f"= {k:g}); Monte Carlo builds draw them normal and clip at the maximum, the worst case "
             f"uses the maximum (3 x typical where none is published). Part tolerances: {dist}.")
 

@@ -92,8 +92,13 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
                    f"({source('capacitor_tolerance', ('c',))}; {p.technology.label})")
     if tol:
         lines.append(("Tolerances assumed", ", ".join(tol)))
-    lines.append(("Supply current", f"{eng(best['supply_current_a_nom'], 'supply_current_a')} nominal, "
-                                    f"{eng(best['supply_current_a_max'], 'supply_current_a')} at most"))
+    stalls = str(best.get("stalls_at", "") or "")
+
+    def figure(col: str) -> str:
+        v = best[col]
+        return eng(v, "supply_current_a") if np.isfinite(v) else f"none ({stalls or 'no figure'})"
+    lines.append(("Supply current", f"{figure('supply_current_a_nom')} nominal, "
+                                    f"{figure('supply_current_a_max')} at most"))
     if "idle_current_a_nom" in best:
         lines.append(("Idle current", eng(best["idle_current_a_nom"], "idle_current_a")))
     lines.append(("Flags of the pick", best["flags"] or "none"))
