@@ -659,3 +659,36 @@ def test_big_workbook_prints_on_few_pages(big_book, tmp_path):
     # 200 designs at ~45 rows a page, 200 points rows twice (two pages wide) and a page or two
     # for each small sheet: about 25; the whole tables would take well over a hundred
     assert 8 <= pages <= 35, pages
+
+
+def test_readable_headers_times_notes_and_control_pin(tmp_path):
+    rep = make_report()
+    long_note = "A long note about the scenario. " * 12
+    rep.study_rows = rep.study_rows + [("study", "notes", f'"{long_note}"', "free text, copied")]
+    d = rep.designs.copy()
+    d["period_s_nom"] = 1 / d["frequency_hz_nom"]          # about 0.4 s: a plain format's range
+    d["high_time_s_nom"] = 0.002 + 0 * d["frequency_hz_nom"]  # milliseconds: engineering's
+    rep.designs = d
+    path = tmp_path / "readable.xlsx"
+    write_workbook(path, rep)
+    wb = openpyxl.load_workbook(path)
+    ws = wb["Designs"]
+    # the header row is at most three lines tall (it was five)
+    assert ws.row_dimensions[1].height <= 3 * 15
+    # seconds show one way on a sheet: engineering notation, whatever their size
+    fmts = {ws.cell(2, i).number_format for i in range(1, ws.max_column + 1)
+            if "[s]" in str(ws.cell(1, i).value)}
+    assert fmts == {ENG_FORMAT}
+    # the Study sheet wraps a long note in a row tall enough for it
+    st = wb["Study"]
+    row = next(r for r in st.iter_rows(min_row=3) if r[1].value == "notes")
+    assert row[2].alignment.wrap_text and st.row_dimensions[row[2].row].height > 15
+    # every Check formula reads the control-pin cell (blank: the internal divider), never a
+    # hard-coded 2/3 of the supply alone
+    ch = wb["Check"]
+    head = _headers(ch, 5)
+    vc = openpyxl.utils.get_column_letter(head.index("Control pin [V] (blank: divider)") + 1)
+    th = head.index("High time [s] formula") + 1
+    for r in range(6, 6 + len(rep.check)):
+        f = ch.cell(r, th).value
+        assert f"ISBLANK({vc}{r})" in f and f"{vc}{r})" in f.replace(f"ISBLANK({vc}{r})", ""), f
