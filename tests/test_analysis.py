@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import itertools
+import re
 import math
 from dataclasses import replace
 
@@ -355,3 +356,63 @@ def test_latch_monte_carlo_covers_every_condition():
     assert df["supply_current_a_mc_mean"].iloc[0] == pytest.approx(i.mean(), rel=1e-12)
     n = s.monte_carlo * s.n_conditions        # the sample: every build at every condition
     assert df["supply_current_a_mc_std"].iloc[0] == pytest.approx(i.std() * math.sqrt(n / (n - 1)), rel=1e-9)
+
+
+def test_uncommon_parts_carry_a_note_and_rank_after_plainer_ties():
+    # C0G/NP0 above 100 nF, film below 1 nF, electrolytic below 1 uF are uncommon or costly
+    # [cp: distributors' ranges]
+    from sweep.analysis import uncommon_parts
+    def note(cap, c):
+        s = study_of(BASE_UNCOMMON.replace("X7R", cap))
+        return uncommon_parts(s, pd.DataFrame({"c_f": [c], "ra_ohm": [1e3], "rb_ohm": [1e3]}))[0]
+    assert "C0G" in note("C0G", 470e-9) and note("C0G", 100e-9) == ""
+    assert note("polypropylene", 470e-12) and note("polypropylene", 10e-9) == ""
+    assert note("electrolytic", 470e-9) and note("electrolytic", 10e-6) == ""
+    assert note("X7R", 470e-9) == ""
+    d = _ties_table()
+    d.loc[d["design"] == 1, "uncommon"] = "C0G ceramic above 100 nF is uncommon and costly"
+    d.loc[d["design"] == 2, "wc_margin"] = -0.10                 # tied with design 1 on margin
+    order = d["design"].to_numpy()[np.argsort(rank_designs(d))]
+    assert list(order[:2]) == [2, 1]
+
+
+BASE_UNCOMMON = """
+[study]
+circuit = "astable"
+[design]
+ra = "1k"
+rb = "1k"
+c = "470n"
+[parts]
+capacitor = "X7R"
+"""
+
+
+def test_a_stalling_design_says_where_it_stalls():
+    # a 100 uF electrolytic through 10 Mohm: leakage outruns the charging current, so the
+    # capacitor never reaches the threshold [book: the RC law with a leakage sink]
+    s = study_of("""
+[study]
+circuit = "monostable"
+[design]
+r = ["10k", "100k", "10M"]
+c = "100u"
+[conditions]
+vcc = [5, 12]
+temperature = [25, 85]
+[parts]
+capacitor = "electrolytic"
+capacitor_voltage = "16V"
+[spec]
+pulse_width = { min = "1", max = "5000" }
+[analysis]
+monte_carlo = 50
+""")
+    df = analyse_designs(s, 0, 3).set_index("r_ohm")
+    assert df.loc[10e6, "verdict"] == "stalls"
+    assert re.fullmatch(r"stalls at \d+ V, \d+ °C with nominal parts", df.loc[10e6, "stalls_at"])
+    # 100 k stalls only at a tolerance corner, hot, with the larger C (more leakage) [derived]
+    assert df.loc[100e3, "verdict"] == "stalls"
+    assert re.fullmatch(r"stalls at \d+ V, 85 °C with R at [+-]5 %, C at \+10 %",
+                        df.loc[100e3, "stalls_at"]), df.loc[100e3, "stalls_at"]
+    assert df.loc[10e3, "stalls_at"] == "" and df.loc[10e3, "verdict"] != "stalls"
