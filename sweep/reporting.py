@@ -337,6 +337,8 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         designs=designs_for_people(study, designs),
         parts=parts_list(study, designs), check=check_table(study, designs),
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
-        study_rows=study_rows(study), notes=NOTES + ([("Notes from the study", study.notes)] if study.notes else []),
+        study_rows=study_rows(study),
+        notes=NOTES + [("Timer spreads", spread_reading(study))]
+        + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
         temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS))

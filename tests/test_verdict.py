@@ -38,6 +38,7 @@ def test_workbook_page_and_run_record_agree_design_by_design(extra, tmp_path, ca
     text = text.replace("monte_carlo = 500", "monte_carlo = 200")
     if extra:   # a yield target no design can show: every pick is at best a low yield
         text = text.replace("[spec]\n", "[spec]\nyield = { min = 0.999 }\n")
+        text = text.replace("[analysis]\n", "[analysis]\ntypical_sigma = 2\n")
     study = tmp_path / "bike.toml"
     study.write_text(text, encoding="utf-8")
     out = tmp_path / "o"
@@ -67,10 +68,14 @@ def test_workbook_page_and_run_record_agree_design_by_design(extra, tmp_path, ca
         assert info["yield_target"] == 0.999
         assert pick["verdict"] == "low yield" and info["meets_spec"] is False
         assert pick["yield_hi"] < 0.999
-    assert info["typical_sigma"] == 1.0 and "one sigma" in info["spreads"]
+    reading = "2 sigma" if extra else "one sigma"
+    assert info["typical_sigma"] == (2.0 if extra else 1.0) and reading in info["spreads"]
     # the Summary sheet says the same word and the reading of the spreads
     summary = load_workbook(out / "bike.xlsx", read_only=True)["Summary"]
     lines = {r[0]: r[1] for r in summary.iter_rows(values_only=True) if r and r[0]}
     assert lines["Verdict"].split(":")[0].endswith(pick["verdict"]) or \
         f"verdict is {pick['verdict']}" in lines["Verdict"]
-    assert "one sigma" in lines["Timer spreads"]
+    assert reading in lines["Timer spreads"]
+    notes = load_workbook(out / "bike.xlsx", read_only=True)["Notes"]
+    topics = {r[0]: r[1] for r in notes.iter_rows(values_only=True) if r and r[0]}
+    assert reading in topics["Timer spreads"]
