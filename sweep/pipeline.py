@@ -303,6 +303,7 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         wb_pts = points_of(study, order, workbook_points, ideal)
         rank_of = dict(zip(order, ranked["rank"]))
         wb_pts.insert(0, "rank", wb_pts["design"].map(rank_of))
+        wb_pts.insert(2, "verdict", wb_pts["design"].map(dict(zip(order, ranked["verdict"]))))
         if len(wb_pts) < study.n_points:
             note = (f"This sheet holds {len(wb_pts):,} of {study.n_points:,} points, best-ranked designs "
                     f"first. {parquet_note}")

@@ -208,7 +208,8 @@ def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
             unit = "ohm" if a.key != "c" else "F"
             is_c = a.key == "c"
             rows.append({
-                "rank": int(d["rank"]), "design": int(d["design"]), "ref": REFS[a.key], "value": v,
+                "rank": int(d["rank"]), "design": int(d["design"]), "verdict": d.get("verdict", ""),
+                "ref": REFS[a.key], "value": v,
                 "unit": "Ω" if not is_c else "F", "value_text": qv.format_eng(v, unit),
                 "rkm": qv.rkm_code(v, unit), "series": qv.series_of(v) or "-",
                 "tolerance": tolerance_of(study, a.key),
@@ -217,7 +218,7 @@ def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
                 "rating": (f"{study.parts.capacitor_voltage_v:g} V" if is_c
                            else f"{study.parts.resistor_power_w:g} W"),
                 "note": _part_note(study, a.key, v)})
-    return pd.DataFrame(rows, columns=["rank", "design", "ref", "value", "unit", "value_text", "rkm",
+    return pd.DataFrame(rows, columns=["rank", "design", "verdict", "ref", "value", "unit", "value_text", "rkm",
                                        "series", "tolerance", "technology", "rating", "note"])
 
 
@@ -236,6 +237,8 @@ def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     ideal = evaluate_block(study, design, nomc, ideal=True, with_spec=False)
     real = evaluate_block(study, design, nomc, ideal=False, with_spec=False)
     df = pd.DataFrame({"rank": top["rank"].to_numpy(), "design": top["design"].to_numpy()})
+    if "verdict" in top:
+        df["verdict"] = top["verdict"].to_numpy()
     for a in study.design:
         df[a.column] = top[a.column].to_numpy()
     for k in ("vcc", "control_voltage"):

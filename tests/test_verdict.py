@@ -54,6 +54,14 @@ def test_workbook_page_and_run_record_agree_design_by_design(extra, tmp_path, ca
     d, v = head.index("Design"), head.index("Verdict")
     sheet = {str(r[d]): r[v] for r in rows if r[d] is not None}
     assert sheet == want
+    # every other sheet that lists designs: Points (header in row 2), Parts, Check (row 5)
+    book = load_workbook(out / "bike.xlsx", read_only=True)
+    for name, header_row in (("Points", 2), ("Parts", 1), ("Check", 5)):
+        rows = list(book[name].iter_rows(min_row=header_row, values_only=True))
+        head = list(rows[0])
+        d, v = head.index("Design"), head.index("Verdict")
+        seen = {str(r[d]): r[v] for r in rows[1:] if r[d] is not None}
+        assert seen and all(want[k] == w for k, w in seen.items()), name
     # the chart page: hover text and how each design is drawn
     page, states = _page_verdicts((out / "bike.html").read_text(encoding="utf-8"))
     assert page and all(want[k] == w for k, w in page.items())

@@ -683,7 +683,7 @@ def _points(ws, st: _Styles, report: Report) -> None:
 
 
 def _parts(ws, st: _Styles, report: Report) -> None:
-    heads = {"rank": "Rank", "design": "Design", "ref": "Ref.", "value_text": "Value",
+    heads = {"rank": "Rank", "design": "Design", "verdict": "Verdict", "ref": "Ref.", "value_text": "Value",
              "rkm": "RKM code", "series": "Series", "tolerance": "Tolerance",
              "technology": "Technology", "rating": "Rating", "note": "Note"}
     df = report.parts
@@ -780,6 +780,8 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
     helpers = circuit != "monostable"
     # layout: inputs, then (helpers), then per output: formula, ideal, realistic, difference
     layout = [("rank", "Rank", "int", "key"), ("design", "Design", "int", "key")]
+    if "verdict" in chk.columns:
+        layout.append(("verdict", "Verdict", "text", "key"))
     layout += [(p, column_header(p), column_format(p), "input") for p in parts]
     layout += [("vcc_v", column_header("vcc_v"), "fixed2", "input"),
                ("control_voltage_v", column_header("control_voltage_v") + " (blank: divider)",
@@ -802,6 +804,8 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
               if not name.startswith(("f:", "d:"))}
     if "c_f" in values:
         values["c_f"] = values["c_f"] * CAP_SCALE
+    if "verdict" in values:
+        values["verdict"] = chk["verdict"].fillna("").astype(str).to_numpy(dtype=object)
     if "frequency_hz" in ideal:   # engine's own high/low times, as cached helper results
         f, d = ideal["frequency_hz"], ideal.get("duty", np.full(n, np.nan))
         ideal["high_time_s"], ideal["low_time_s"] = d / f, (1 - d) / f
@@ -818,8 +822,9 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
             props.update(bold=True)
         fmts[name] = props
     # narrow key columns and headers wrapped by word keep the sheet readable printed one page wide
-    widths = [8.0 if role == "key" else max(11.0, min(15.0, max(len(w) for w in h.split()) + 2))
-              for _, h, _k, role in layout]
+    widths = [(10.0 if name == "verdict" else 8.0) if role == "key"
+              else max(11.0, min(15.0, max(len(w) for w in h.split()) + 2))
+              for name, h, _k, role in layout]
     for i, w in enumerate(widths):
         ws.set_column(i, i, w)
     # the notes wrap within the table's width, so they do not widen the printed page
