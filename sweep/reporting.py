@@ -175,7 +175,8 @@ NOTES = [
     ("Sensitivity", "Elasticity d ln y / d ln x of the main output to each part, by central "
                     "difference at the nominal condition."),
     ("Ranking", "Feasible designs first (no limit flag at any condition, nominal in spec). Yields "
-                "whose 95 % intervals overlap the best yield's are a tie: those designs go by "
+                "whose 95 % intervals overlap the best yield's are a tie (when any design passes, only "
+                "passing designs lead): those designs go by "
                 "lower supply current in a battery study or one with a supply-current spec, else "
                 "by wider worst-case margin, then plainer parts (no uncommon part, coarser "
                 "series, fewer distinct values). With [spec] yield = { min = ... } the leaders "

@@ -253,6 +253,10 @@ def test_ties_within_the_interval_go_by_supply_current_in_a_battery_study():
     assert list(order) == [2, 4, 1, 3, 5]       # 1.67 mA beats 2.41 mA; 90 % stays behind
     order = d["design"].to_numpy()[np.argsort(rank_designs(d, by_current=False))]
     assert list(order) == [1, 2, 4, 3, 5]       # regulated: the wider worst-case margin
+    # a tie never hands the pick to a design whose verdict is not a pass, when one passes
+    order = d["design"].to_numpy()[np.argsort(rank_designs(d, by_current=True,
+                                                           eligible=d["design"].to_numpy() != 2))]
+    assert list(order[:2]) == [4, 1]
 
 
 def test_a_yield_target_picks_the_lowest_current_design_that_reaches_it():
