@@ -42,6 +42,7 @@ class Variation:
     accuracy: np.ndarray | float = 0.0   # relative timing error at 25 °C, nominal supply
     drift_per_k: np.ndarray | float = 0.0
     supply_per_v: np.ndarray | float = 0.0
+    leak: np.ndarray | float = 1.0       # capacitor leakage relative to its typical figure
 
 
 def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
@@ -58,7 +59,9 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
         for k, m in variation.part.items():
             if k in kw:
                 kw[k] = kw[k] * m
-    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **kw)
+    leak = 1.0 if variation is None else variation.leak
+    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal,
+                   leak_factor=leak, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
         vnom = next((a.nominal for a in study.conditions if a.key == "vcc"), study.timer.typical_v)

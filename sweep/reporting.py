@@ -143,20 +143,69 @@ def cautions(study: Study, designs: pd.DataFrame) -> list[str]:
         out.append("Polarised timing capacitor: observe polarity; its leakage drifts with age and "
                    "temperature, so check the timing on the bench.")
     hot = designs.head(study.top)
+    surge = discharge_surge_caution(study, hot)
+    if surge:
+        out.append(surge)
     if (hot.get("junction_temp_c_max", pd.Series([0.0])) > 85).any():
         out.append("Hot parts: a top design runs the chip above 85 °C junction; keep fingers and "
                    "heat-sensitive parts away and check the package's rating.")
     return out
 
 
+def discharge_surge_caution(study: Study, top: pd.DataFrame) -> str:
+    """When a top design's capacitor dumps more into the discharge transistor than it takes, the
+    series resistor between the discharge pin and the capacitor that brings the dump's peak down
+    to the transistor's steady limit: R = V_threshold / I_limit - R_sat, next E12 value up
+    [derived; E12 from IEC 60063]."""
+    if study.circuit != "monostable" or "flags" not in top or not top["flags"].astype(str).str.contains(
+            "discharge-current-over-limit").any():
+        return ""
+    timer = study.timer
+    vcc = max(float(np.max(a.values)) for a in study.axes if a.key == "vcc") \
+        if any(a.key == "vcc" for a in study.axes) else timer.typical_v
+    cv = [float(np.max(a.values)) for a in study.axes if a.key == "control_voltage"]
+    v_top = cv[0] if cv else timer.threshold_fraction * vcc
+    need = max(v_top / timer.discharge_max_a - timer.saturation_ohm, 1.0)
+    r = float(qv.series_values("E12", need, 10.0 * need)[0])
+    return (f"Discharge surge: when the pulse ends, the timing capacitor (at {v_top:.2g} V) dumps "
+            "straight into the discharge transistor, more energy than it is taken to survive "
+            f"(flag discharge-current-over-limit). Put about {eng(r, 'ra_ohm')} in series between "
+            "the discharge pin and the capacitor (the threshold pin stays on the capacitor): "
+            f"that keeps the peak near {timer.discharge_max_a * 1e3:.0f} mA and leaves the pulse "
+            "width as it is.")
+
+
 NOTES = [
-    ("Model", "Each phase of the timing capacitor is an exponential towards a Thevenin source "
-              "(RC law [book]); thresholds at 2/3 and 1/3 of the supply from the internal divider "
-              "[book], or at the control-pin voltage and half of it."),
-    ("Non-idealities", "Threshold bias current drawn from the timing node, discharge saturation "
-                       "(V0 + R I), propagation delay per transition, stray capacitance, capacitor "
-                       "leakage, class II ceramic DC-bias loss, capacitor temperature curves, "
-                       "resistor tempco [ds-bip], [ds-cmos], [cp], [mem]."),
+    ("Model", "Each phase of the timing capacitor is a charge or discharge between the thresholds "
+              "through Thevenin sources (RC law [book]), integrated over the voltages the node "
+              "crosses where the network or the capacitor is not linear; thresholds at 2/3 and 1/3 "
+              "of the supply from the internal divider [book], or at the control-pin voltage and "
+              "half of it."),
+    ("Non-idealities", "Threshold and (astables) trigger input currents at the timing node, "
+                       "discharge saturation (V0 + R I), propagation delay per transition, stray "
+                       "capacitance, capacitor temperature curves, resistor tempco [ds-bip], "
+                       "[ds-cmos], [cp], [mem]."),
+    ("Capacitor", "Class II ceramics lose capacitance with DC bias as 1 - k (V/V_rated)^1.3 [mem], "
+                  "applied to the node voltage as it moves (a cubic fit over the swing, integrated "
+                  "exactly). Electrolytic and tantalum leakage: the nominal figure is typical, a "
+                  "fifth of the 0.01 C V (or 3 uA) maximum at rated voltage, falling with the "
+                  "square of the working voltage's share of the rating [cp, mem]; the maximum is "
+                  "the worst-case bound, and the Monte Carlo draws between them."),
+    ("Diode (astable-diode)", "A Shockley device, I = Is (exp(V / n Vt) - 1), Vt = kT/q, its "
+                              "saturation current rising with temperature by the SPICE diode "
+                              "rule [book]; small-signal silicon Is 2.5 nA, n 1.75, Schottky "
+                              "Is 15 nA, n 1.05 [mem]. At the microamps of megohm resistors it "
+                              "drops 0.3-0.5 V, not 0.7 V. Reverse biased it leaks (Schottky "
+                              "far more), which shortens the low time. A study may give a fixed "
+                              "drop (diode_drop) instead."),
+    ("Output stage", "Drop against current from the timer file's curves, met with the load line; "
+                     "a bipolar high stage sources but cannot sink, so a load to the supply lifts "
+                     "the output; its drop falls about 4 mV/K [book]."),
+    ("Discharge surge", "When the discharge transistor turns on, the capacitor dumps into it "
+                        "(through RB in an astable, straight in a monostable), limited by the "
+                        "transistor's surge current; the dump's energy in the transistor is "
+                        "checked against the timer file's limit [mem], and the Dump time column "
+                        "says how long it lasts."),
     ("Worst case", "Every tolerance corner of every timing part at every condition point, with the "
                    "timer's initial accuracy, drift (ppm/K) and supply sensitivity (%/V) at their "
                    "maximum figures (3 x typical where the data gives none) as a band on the "

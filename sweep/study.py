@@ -21,7 +21,7 @@ from . import values as qv
 from .errors import InputError
 from .models import load_timer
 from .physics import ASTABLES, CIRCUIT_PARTS, CIRCUITS, Load, Parts, TimerModel, capacitor_named
-from .physics.parts import CAPACITOR_ALIASES
+from .physics.parts import DIODES, CAPACITOR_ALIASES
 from .variables import AXES
 
 # ---- the schema: section -> key -> (unit for parse_quantity, what it is) ----
@@ -42,7 +42,11 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
               "capacitor_tolerance": ("%", "default: implied by the capacitor series, else 10 %"),
               "capacitor_voltage": ("V", "rated voltage, default 50 V"),
               "stray_capacitance": ("F", "added to C, default 5 pF"),
-              "diode_drop": ("V", "forward drop of the diode in astable-diode, default 0.7 V"),
+              "diode": ("text", "silicon | schottky: the diode of astable-diode, a Shockley "
+                                "device (default silicon)"),
+              "diode_saturation_current": ("A", "the diode's saturation current at 25 °C"),
+              "diode_ideality": ("", "the diode's ideality factor"),
+              "diode_drop": ("V", "a fixed forward drop instead of the Shockley diode"),
               "dc_bias_loss": ("", "fractional capacitance loss at rated voltage (class II ceramics)")},
     "load": {"resistance": ("ohm", "load on the output; absent: no load"),
              "to": ("text", "ground (output sources current) | supply (output sinks it)"),
@@ -429,6 +433,8 @@ class _Parser:
                           ("capacitor_voltage", "capacitor_voltage_v"),
                           ("stray_capacitance", "stray_capacitance_f"),
                           ("diode_drop", "diode_drop_v"),
+                          ("diode_saturation_current", "diode_saturation_current_a"),
+                          ("diode_ideality", "diode_ideality"),
                           ("dc_bias_loss", "dc_bias_loss")):
             if key in p:
                 kw[attr] = self.quantity("parts", key, p[key], units[key][0],
@@ -440,6 +446,7 @@ class _Parser:
         for key, attr in (("resistor_power", "resistor_power_w"), ("capacitor_voltage", "capacitor_voltage_v")):
             if attr in kw and kw[attr] <= 0:
                 self.fail("parts", key, "must be greater than zero")
+        self._diode(p, kw)
         if "resistor_tempco_per_k" in kw and abs(kw["resistor_tempco_per_k"]) > 0.01:
             self.fail("parts", "resistor_tempco", "beyond +-10 000 ppm/K: check the unit (ppm)")
         if "capacitor" in p:
@@ -461,6 +468,28 @@ class _Parser:
         kw.setdefault("resistor_tolerance", implied(("ra", "rb", "r"), 0.05))
         kw.setdefault("capacitor_tolerance", implied(("c",), 0.10))
         return Parts(**kw)
+
+    def _diode(self, p: dict, kw: dict) -> None:
+        """The diode keys: a named diode, its Shockley figures, or a fixed drop, not both."""
+        if "diode" in p:
+            name = p["diode"]
+            if not isinstance(name, str) or name.strip().lower() not in DIODES:
+                self.fail("parts", "diode", f"unknown diode {str(name)[:40]!r}; known: "
+                          + ", ".join(DIODES))
+            kw["diode"] = name.strip().lower()
+        shockley = [k for k in ("diode", "diode_saturation_current", "diode_ideality") if k in p]
+        if "diode_drop" in p and shockley:
+            self.fail("parts", "diode_drop", f"give either diode_drop (a fixed drop) or "
+                      f"{' and '.join(shockley)} (a Shockley diode), not both")
+        if "diode_drop_v" in kw and not 0 <= kw["diode_drop_v"] < 3:
+            self.fail("parts", "diode_drop", "must be from 0 V to below 3 V")
+        i_s = kw.get("diode_saturation_current_a")
+        if i_s is not None and not 1e-18 <= i_s <= 1e-3:
+            self.fail("parts", "diode_saturation_current", "must be from 1e-18 A to 1 mA "
+                      "(a small-signal diode: nanoamps, a Schottky tens of nanoamps)")
+        n = kw.get("diode_ideality")
+        if n is not None and not 0.8 <= n <= 3:
+            self.fail("parts", "diode_ideality", "must be from 0.8 to 3")
 
     def load(self) -> Load:
         ld = self.data.get("load", {})

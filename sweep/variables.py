@@ -46,7 +46,8 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("output_high_v", "Output high", "V", "fixed2", "Output voltage in the high state, under the load"),
     _V("output_low_v", "Output low", "V", "fixed2", "Output voltage in the low state, under the load"),
     _V("output_current_a", "Output current", "A", "eng", "Current through the load in the state that drives it"),
-    _V("discharge_peak_a", "Discharge peak", "A", "eng", "Peak current into the discharge pin"),
+    _V("discharge_peak_a", "Discharge peak", "A", "eng", "Peak current into the discharge pin, the capacitor's turn-on dump included"),
+    _V("discharge_dump_s", "Dump time", "s", "eng", "How long the discharge transistor's turn-on surge lasts (to a tenth of its peak)", True),
     _V("ra_power_w", "Resistor power", "W", "eng", "Largest dissipation in the resistor from the supply (RA, or R)"),
     _V("junction_temp_c", "Junction", "°C", "fixed1", "Chip junction temperature, worst phase"),
     _V("flags", "Flags", "", "text", "Limits broken at this point (space-separated codes)"),
@@ -83,7 +84,7 @@ AXES: dict[str, tuple[str, str]] = {
 #: output columns in the order tables show them
 OUTPUTS = ["high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
            "supply_current_a", "idle_current_a", "power_w", "output_high_v", "output_low_v",
-           "output_current_a", "discharge_peak_a", "ra_power_w", "junction_temp_c"]
+           "output_current_a", "discharge_peak_a", "discharge_dump_s", "ra_power_w", "junction_temp_c"]
 
 #: stable flag codes, in the order they are reported
 FLAGS = ["supply-below-min", "supply-above-max", "supply-above-abs-max", "temperature-out-of-range",

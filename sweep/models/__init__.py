@@ -64,6 +64,7 @@ def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") ->
             raise InputError(fname, section, "missing section")
         for key, value in table.items():
             flat[key] = value
+    _upgrade_output_lines(flat)
     unknown = [k for k in data if k not in SECTIONS + ("name", "kind")]
     if unknown:
         raise InputError(fname, unknown[0], "unknown key")
@@ -71,20 +72,32 @@ def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") ->
     for k in flat:
         if k not in names:
             raise InputError(fname, k, "unknown key")
+    maxima = {spread_max_name(t): t for t in SPREADS}
     for k in names:
+        if k in maxima and k not in flat:
+            raise InputError(fname, k, f"missing key: the maximum of {maxima[k]} (where the data "
+                             "gives none, write 3 x the typical figure and say so)")
         if k not in flat:
             raise InputError(fname, k, "missing key")
         if k in ("name", "kind"):
             continue
-        if k == "quiescent_points":
+        if k in POINT_LISTS:
             pts = flat[k]
+            x_name, y_name = POINT_LISTS[k]
             ok = (isinstance(pts, list) and pts and all(
                 isinstance(p, list) and len(p) == 2 and all(_is_num(x) for x in p) for p in pts))
             if not ok:
-                raise InputError(fname, k, "must be a list of [volts, amperes] pairs")
-            if any(p[1] < 0 for p in pts) or any(b[0] <= a[0] for a, b in zip(pts, pts[1:])):
-                raise InputError(fname, k, "currents must be >= 0 and volts strictly increasing")
+                raise InputError(fname, k, f"must be a list of [{x_name}, {y_name}] pairs")
+            if any(p[0] < 0 or p[1] < 0 for p in pts) or any(b[0] <= a[0] for a, b in zip(pts, pts[1:])):
+                raise InputError(fname, k, f"{y_name} and {x_name} must be >= 0 and {x_name} "
+                                 "strictly increasing")
+            if k != "quiescent_points" and any(b[1] < a[1] for a, b in zip(pts, pts[1:])):
+                raise InputError(fname, k, "the drop must not fall as the current rises")
             flat[k] = tuple((float(a), float(b)) for a, b in pts)
+            continue
+        if k in ("high_can_sink", "trigger_current_sources"):
+            if not isinstance(flat[k], bool):
+                raise InputError(fname, k, "must be true or false")
             continue
         if not _is_num(flat[k]):
             raise InputError(fname, k, "must be a finite number")
@@ -92,6 +105,30 @@ def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") ->
     model = TimerModel(**flat)
     _check_physical(model, fname)
     return model
+
+
+#: timer-model keys that are lists of points, with the names of their two columns
+POINT_LISTS = {"quiescent_points": ("volts", "amperes"),
+               "source_drop_points": ("amperes", "volts"),
+               "sink_drop_points": ("amperes", "volts")}
+
+
+def _upgrade_output_lines(flat: dict) -> None:
+    """Accept the older straight-line output keys (drop V0 + R I: high_drop_v, high_ohm,
+    low_drop_v, low_ohm) as two-point curves, so timer files written for earlier versions load;
+    such a file's source drop gets no temperature coefficient and a stage that sinks and sources
+    (what the older model assumed)."""
+    upgraded = False
+    for old_v, old_r, new in (("high_drop_v", "high_ohm", "source_drop_points"),
+                              ("low_drop_v", "low_ohm", "sink_drop_points")):
+        if old_v in flat and old_r in flat and new not in flat:
+            v0, r = flat.pop(old_v), flat.pop(old_r)
+            if _is_num(v0) and _is_num(r):
+                flat[new] = [[0.0, v0], [0.1, v0 + 0.1 * r]]
+                upgraded = True
+    if upgraded:
+        flat.setdefault("source_drop_tempco_v_per_k", 0.0)
+        flat.setdefault("high_can_sink", True)
 
 
 def _is_num(x) -> bool:
@@ -110,7 +147,7 @@ def _check_physical(m: TimerModel, fname: str) -> None:
         bad("threshold_fraction", "the upper threshold must lie between 0 and 1 of the supply "
             "(the lower one is half of it, so the thresholds stay in order)")
     for k in ("threshold_current_a", "threshold_current_max_a", "trigger_current_a", "saturation_v",
-              "saturation_ohm", "high_drop_v", "high_ohm", "low_drop_v", "low_ohm",
+              "saturation_ohm", "surge_energy_max_j",
               "propagation_delay_s", "accuracy_astable", "accuracy_monostable",
               "drift_astable_ppm_per_k", "drift_monostable_ppm_per_k",
               "supply_sensitivity_astable_per_v", "supply_sensitivity_monostable_per_v",
@@ -122,11 +159,11 @@ def _check_physical(m: TimerModel, fname: str) -> None:
     for typ in SPREADS:
         if getattr(m, spread_max_name(typ)) < getattr(m, typ):
             bad(spread_max_name(typ), f"a maximum must be at least the typical {typ}")
-    for k in ("divider_resistance_ohm", "discharge_max_a", "source_max_a", "sink_max_a",
+    for k in ("divider_resistance_ohm", "discharge_max_a", "surge_current_a", "source_max_a", "sink_max_a",
               "max_frequency_hz", "theta_ja_c_per_w", "resistance_derating"):
         if getattr(m, k) <= 0:
             bad(k, "must be greater than zero")
     if not m.ambient_min_c < m.ambient_max_c < m.tj_max_c:
         bad("ambient_max_c", "must satisfy ambient_min_c < ambient_max_c < tj_max_c")
-    if m.high_drop_v >= m.min_v:
-        bad("high_drop_v", "output drop is larger than the lowest supply")
+    if m.source_drop_points[0][1] >= m.min_v:
+        bad("source_drop_points", "output drop is larger than the lowest supply")

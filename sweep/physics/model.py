@@ -1,19 +1,28 @@
-"""The realistic 555 model: one pure, broadcasting numpy function per job.
+"""The realistic 555 model: one pure, broadcasting numpy function.
 
 Every input is an array (or scalar) in SI units; all arrays broadcast against each other, so the
 engine can pass a design axis and a condition axis with different shapes and never loop in
-Python. Equations and sources are in DOMAIN.md; the tags are repeated beside each formula.
+Python. Source tags beside each formula: [book] a textbook, [ds-bip]/[ds-cmos] a typical
+datasheet figure (the timer-model files), [cp] common practice, [mem] from memory, [derived]
+worked out here from the RC law and Kirchhoff's laws.
 
-The timing node is linear in every element the model has (Thevenin sources, saturation as
-V0 + R I, leakage as a conductance, bias as a constant current), so each phase is one exponential
-towards V_inf with time constant tau, and the RC law gives its length exactly [book].
+Each phase of the timing node is a charge or discharge between the thresholds through a network
+of Thevenin sources (saturation as V0 + R I, leakage as a conductance, bias and trigger currents
+as constant currents) into the capacitor, whose value follows its DC-bias curve over the swing;
+`nodes.py` integrates it. The diode of astable-diode is a Shockley device (or, when a study
+gives `diode_drop`, a fixed drop), the output stage follows its drop-vs-current curves
+(`output.py`).
 """
 from __future__ import annotations
 
 import numpy as np
 
-from .parts import (Load, Parts, capacitance_temperature_factor, dc_bias_factor,
-                    leakage_conductance_s, resistor_at)
+from .nodes import (NodeCapacitance, linear_phase, node_capacitance, quadrature_phase, run_on,
+                    two_segment_phase)
+from .output import OutputStates, output_states
+from .parts import (Load, Parts, capacitance_temperature_factor, leakage_conductance_s,
+                    resistor_at, reverse_current_at, saturation_at, thermal_voltage_v,
+                    wright_omega)
 from .timer import TimerModel
 
 CIRCUITS = ("astable", "astable-diode", "astable-symmetric", "monostable", "bistable")
@@ -36,19 +45,6 @@ FLAG_BITS = {name: 1 << i for i, name in enumerate([
     "junction-too-hot", "timing-stalls", "spec-miss"])}
 
 
-def rc_time_s(tau_s, v_inf_v, v_start_v, v_end_v):
-    """Time for an RC node to go from v_start to v_end towards v_inf:
-    t = tau ln((V_inf - V1) / (V_inf - V2)) [book: RC law]. The caller masks points where
-    v_end is never reached (they give NaN or a negative time here)."""
-    return tau_s * np.log((v_inf_v - v_start_v) / (v_inf_v - v_end_v))
-
-
-def mean_between_v(tau_s, v_inf_v, v_start_v, v_end_v, t_s):
-    """Mean node voltage over a segment of V(t) = V_inf + (V0 - V_inf) exp(-t/tau) that goes from
-    v_start to v_end in t_s: V_inf + tau (V0 - V1) / t, the integral of the RC law [derived]."""
-    return v_inf_v + tau_s * (v_start_v - v_end_v) / t_s
-
-
 def thevenin_with_sat(vcc_v, r_pull_ohm, v_sat_v, r_sat_ohm):
     """Node held by a discharge transistor (V_sat0 + R_sat I) against a pull-up r_pull to VCC:
     returns (V_th, R_th) [derived]. Exact also for R_sat = 0."""
@@ -57,53 +53,249 @@ def thevenin_with_sat(vcc_v, r_pull_ohm, v_sat_v, r_sat_ohm):
     return v, r
 
 
-def node_source(v_src_v, r_src_ohm, g_leak_s, i_bias_a, c_f):
-    """A source v_src behind r_src charging C that also leaks g_leak to ground and loses i_bias
-    into the comparator inputs: returns (V_inf [V], tau [s]) [book: Thevenin]."""
+def node_source(v_src_v, r_src_ohm, g_leak_s, i_draw_a):
+    """A source v_src behind r_src driving the timing node, which also leaks g_leak to ground and
+    loses i_draw into the comparator inputs: returns (V_inf [V], g [S]), the net current into
+    the node being g (V_inf - v) [book: Thevenin]."""
     g = 1.0 / r_src_ohm + g_leak_s
-    v_inf = (v_src_v / r_src_ohm - i_bias_a) / g
-    return v_inf, c_f / g
+    return (v_src_v / r_src_ohm - i_draw_a) / g, g
 
 
-def output_stage(timer: TimerModel, load: Load, vcc_v):
-    """Output voltages and load currents in each state [derived: load line against a linear
-    output stage V = V0 + R I, DOMAIN.md section 8]. Returns (v_high, v_low, i_high, i_low)."""
-    vcc = np.asarray(vcc_v, dtype=float)
-    zero = np.zeros_like(vcc)
-    v_oh0 = vcc - timer.high_drop_v
-    v_ol0 = timer.low_drop_v + zero
-    rl = load.resistance_ohm
-    if not np.isfinite(rl):
-        return v_oh0, v_ol0, zero, zero
-    vf = load.forward_voltage_v
-    if load.to == "ground":
-        i_h = np.maximum((v_oh0 - vf) / (rl + timer.high_ohm), 0.0)
-        return v_oh0 - timer.high_ohm * i_h, v_ol0, i_h, zero
-    i_l = np.maximum((vcc - vf - v_ol0) / (rl + timer.low_ohm), 0.0)
-    return v_oh0, v_ol0 + timer.low_ohm * i_l, zero, i_l
+def diode_feed_a(vcc_v, v_node_v, ra_ohm, rb_ohm, i_sat_a, n_vt_v):
+    """Current [A] from VCC through RA into the timing node when RB and a Shockley diode
+    I = Is (exp(u / (n Vt)) - 1) in parallel join RA to the node [derived: Kirchhoff's current
+    law at the discharge node, (VCC - v - u)/RA = u/RB + Is (exp(u/nVt) - 1), solved for the
+    diode voltage u with Lambert's W: u = A/G - nVt W((Is / (G nVt)) exp(A / (G nVt))),
+    A = (VCC - v)/RA + Is, G = 1/RA + 1/RB; W of an exponential is the Wright omega function]."""
+    g = 1.0 / ra_ohm + 1.0 / rb_ohm
+    a = (vcc_v - v_node_v) / ra_ohm + i_sat_a
+    u = a / g - n_vt_v * wright_omega(np.log(i_sat_a / (g * n_vt_v)) + a / (g * n_vt_v))
+    return (vcc_v - v_node_v - u) / ra_ohm
 
 
-def output_resistance(timer: TimerModel, load: Load, i_high_a, i_low_a):
-    """Thevenin resistance of the output seen by a timing resistor, in each state: the stage's
-    own resistance, with a conducting load (resistor, LED as a fixed drop) in parallel
-    [derived: Thevenin]. Returns (r_high, r_low) in ohms."""
-    rl = load.resistance_ohm
-    if not np.isfinite(rl):
-        return timer.high_ohm, timer.low_ohm
-    par_h = timer.high_ohm * rl / (timer.high_ohm + rl)
-    par_l = timer.low_ohm * rl / (timer.low_ohm + rl)
-    r_h = np.where(np.asarray(i_high_a) > 0, par_h, timer.high_ohm)
-    r_l = np.where(np.asarray(i_low_a) > 0, par_l, timer.low_ohm)
-    return r_h, r_l
+def _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor):
+    """The timing node's C(v) over the swing, its leakage conductance [S] and the constant
+    current [A] the comparator inputs draw from it."""
+    cap = parts.technology
+    c_nom = np.asarray(c, dtype=float)
+    c_t = c_nom * (1.0 if ideal else capacitance_temperature_factor(cap, t_amb))
+    loss = 0.0 if ideal else (cap.dc_bias_loss if parts.dc_bias_loss is None else parts.dc_bias_loss)
+    # the monostable ramps from (nearly) 0 V, an astable swings between Vc/2 and Vc [book] and,
+    # at the highest frequencies, runs on below Vc/2 for the delay: the curve is fitted from Vc/4
+    curve = node_capacitance(c_t, parts.stray_capacitance_f, loss, parts.capacitor_voltage_v,
+                             v_up, 0.0 if circuit == "monostable" else 0.25)
+    g_leak = 0.0 if ideal else leak_factor * leakage_conductance_s(
+        cap, c_nom, parts.capacitor_voltage_v, t_amb, v_work_v=v_up)
+    # threshold input current drawn from the node, and in the astables the trigger input's, which
+    # sits on the same node: a bipolar trigger input (PNP) pushes its current into the node, so
+    # it speeds the charge and slows the discharge [ds-bip, mem]
+    i_trig = 0.0
+    if circuit in ASTABLES:
+        i_trig = -timer.trigger_current_a if timer.trigger_current_sources else timer.trigger_current_a
+    i_draw = timer.threshold_current_a + i_trig
+    return curve, g_leak, i_draw
+
+
+def _discharge_network(timer, vcc, ra_t, rb_t):
+    """Astable low phase: the discharge node D with RA from VCC, RB to the capacitor and the
+    transistor (V_sat0 + R_sat) to ground is linear in the capacitor voltage V: V_D = a + b V
+    [derived: Kirchhoff's current law]. Returns (Thevenin V, R seen through RB, a, b)."""
+    v_d, r_d = thevenin_with_sat(vcc, ra_t, timer.saturation_v, timer.saturation_ohm)
+    rs_, vs_ = timer.saturation_ohm, timer.saturation_v
+    den = rs_ * rb_t + ra_t * rb_t + ra_t * rs_
+    a_d = (vcc * rs_ * rb_t + vs_ * ra_t * rb_t) / den
+    b_d = ra_t * rs_ / den
+    return v_d, rb_t + r_d, a_d, b_d
+
+
+def _charge_phase(circuit, timer, parts, stage: OutputStates, curve, g_leak, i_draw, *, vcc,
+                  t_amb, ra_t, rb_t, r_t, v_bot, v_up, ideal):
+    """The astable's high phase from v_bot to v_up and on for the delay. Returns (Phase, stalls,
+    current [A] into the node at its start, its source's resistance to the supply [Ω])."""
+    tpd = timer.propagation_delay_s
+    if circuit == "astable":                                   # through RA + RB [book]
+        vinf, g = node_source(vcc, ra_t + rb_t, g_leak, i_draw)
+        return (linear_phase(curve, vinf, g, v_bot, v_up, tpd), vinf <= v_up,
+                (vcc - v_bot) / (ra_t + rb_t), ra_t)
+    if circuit == "astable-symmetric":                         # the output high drives R [derived]
+        v_h, r_h = stage.high
+        seg1 = node_source(v_h, r_t + r_h, g_leak, i_draw)
+        i0 = (v_h - v_bot) / (r_t + r_h)
+        if stage.high_lifted is None:
+            return linear_phase(curve, *seg1, v_bot, v_up, tpd), seg1[0] <= v_up, i0, r_t
+        # a load to the supply lifts the output above a stage that cannot sink: the load alone
+        # feeds R while the node stays above the stage's open level e [derived]
+        v_l, r_l, e = stage.high_lifted
+        lifted = ~np.isnan(v_l)
+        seg2 = node_source(np.where(lifted, v_l, v_h), r_t + np.where(lifted, r_l, r_h), g_leak, i_draw)
+        v_sw = np.where(lifted, e - r_t * (v_l - e) / r_l, -np.inf)
+        ph, stalls = two_segment_phase(curve, seg1, seg2, v_sw, v_bot, v_up, tpd)
+        i0 = np.where(lifted & (v_bot >= v_sw), (np.where(lifted, v_l, v_h) - v_bot)
+                      / (r_t + np.where(lifted, r_l, r_h)), i0)
+        return ph, stalls, i0, r_t
+    if ideal or parts.diode_drop_v is not None:
+        # fixed diode drop: the diode conducts while (VCC - V) RB / (RA + RB) >= Vd, i.e. below
+        # v_sw = VCC - Vd (RA + RB) / RB; above it the capacitor charges through RA + RB [derived]
+        vd = 0.0 if ideal else parts.diode_drop_v
+        seg1 = node_source(vcc - vd, ra_t, g_leak, i_draw)
+        seg2 = node_source(vcc, ra_t + rb_t, g_leak, i_draw)
+        v_sw = vcc - vd * (ra_t + rb_t) / rb_t
+        ph, stalls = two_segment_phase(curve, seg1, seg2, v_sw, v_bot, v_up, tpd)
+        i0 = np.where(v_sw > v_bot, (vcc - vd - v_bot) / ra_t, (vcc - v_bot) / (ra_t + rb_t))
+        return ph, stalls, i0, ra_t
+    # Shockley diode across RB [book: Sedra & Smith; temperature rule in parts.saturation_at]
+    diode = parts.diode_model
+    i_sat = saturation_at(diode, t_amb)
+    n_vt = diode.ideality * thermal_voltage_v(t_amb)
+
+    def net(v):
+        return diode_feed_a(vcc, v, ra_t, rb_t, i_sat, n_vt) - g_leak * v - i_draw
+    ph, stalls = quadrature_phase(curve, net, v_bot, v_up, tpd)
+    return ph, stalls, diode_feed_a(vcc, v_bot, ra_t, rb_t, i_sat, n_vt), ra_t
+
+
+def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, t_amb, ra_t, rb_t,
+             r_t, v_up, ideal):
+    """Both phases of an astable, the supply current and the discharge figures."""
+    tpd = timer.propagation_delay_s
+    v_lo = 0.5 * v_up
+    split = None
+    if circuit == "astable-symmetric":
+        v_l, r_l = stage.low
+        seg_d = node_source(v_l, r_t + r_l, g_leak, i_draw)      # output low sinks R [derived]
+        if stage.low_split is not None:
+            # a load to ground below the stage's offset: while the node is above v_k the stage
+            # and the load sink R's current together, below it the load alone [derived]
+            v_ld, r_ld, e = stage.low_split
+            on = ~np.isnan(e)
+            seg_ld = node_source(np.where(on, v_ld, v_l), r_t + np.where(on, r_ld, r_l), g_leak, i_draw)
+            split = (seg_ld, np.where(on, e + r_t * (e - v_ld) / r_ld, -np.inf))
+    else:
+        v_d, r_d, a_d, b_d = _discharge_network(timer, vcc, ra_t, rb_t)
+        i_rev = 0.0
+        if circuit == "astable-diode" and not ideal and parts.diode_drop_v is None:
+            # the diode is reverse biased while C discharges: its leakage helps [cp]
+            i_rev = reverse_current_at(parts.diode_model, t_amb)
+        seg_d = node_source(v_d, r_d, g_leak, i_draw + i_rev)
+    # the cycle starts where the low phase's run-on ends [derived]
+    vinf_b, g_b = seg_d if split is None else (np.where(v_lo > split[1], seg_d[0], split[0][0]),
+                                                np.where(v_lo > split[1], seg_d[1], split[0][1]))
+    v_bot = run_on(curve, vinf_b, g_b, v_lo, tpd)
+    high, stalls, i_start, r_feed = _charge_phase(
+        circuit, timer, parts, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb, ra_t=ra_t,
+        rb_t=rb_t, r_t=r_t, v_bot=v_bot, v_up=v_up, ideal=ideal)
+    v_top = high.v_end_v
+    with np.errstate(all="ignore"):
+        if split is None:
+            low = linear_phase(curve, *seg_d, v_top, v_lo, tpd)
+            stalls = stalls | (seg_d[0] >= v_lo)
+        else:
+            low, stalls_d = two_segment_phase(curve, seg_d, split[0], split[1], v_top, v_lo, tpd)
+            stalls = stalls | stalls_d
+    t_h = np.where(stalls, np.nan, high.time_s)
+    t_l = np.where(stalls, np.nan, low.time_s)
+    period = t_h + t_l
+    # charge from the supply in the high phase: what the node stored plus what leaked and what
+    # the inputs drew [derived: charge balance]
+    q_h = curve.charge(v_bot, v_top) + g_leak * high.vt_vs + i_draw * high.time_s
+    vm_l = low.vt_vs / low.time_s                             # mean node voltage, low phase
+    if circuit == "astable-symmetric":
+        i_ra_l = 0.0
+        dis_peak = np.zeros(np.shape(period))
+        steady = dis_peak
+        p_res = i_start ** 2 * r_t
+        p_dis_l = 0.0
+        r_series = np.inf
+    else:
+        vd_mean = a_d + b_d * vm_l
+        i_ra_l = (vcc - vd_mean) / ra_t
+        vd_top = a_d + b_d * v_top
+        # turn-on: the capacitor dumps through RB into the transistor, RA's current on top
+        dis_peak = np.minimum((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, timer.surge_current_a)
+        vd_bot = a_d + b_d * v_bot
+        steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t   # at the end of the low phase
+        # RA: worst of the low phase (VCC across it, less node D) and the start of the high
+        p_res = np.maximum((vcc - vd_bot) ** 2 / ra_t, i_start ** 2 * ra_t)
+        p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
+        r_series = rb_t
+    i_h = timer.quiescent_a(vcc, output_high=True) + q_h / high.time_s + stage.i_high
+    i_l = timer.quiescent_a(vcc, output_high=False) + i_ra_l + stage.i_low
+    supply = (t_h * i_h + t_l * i_l) / period
+    p_chip_h = vcc * timer.quiescent_a(vcc, output_high=True) + (vcc - stage.v_high) * stage.i_high
+    p_chip_l = vcc * timer.quiescent_a(vcc, output_high=False) + stage.v_low * stage.i_low + p_dis_l
+    p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
+    out = dict(high_time_s=t_h, low_time_s=t_l, period_s=period, frequency_hz=1.0 / period,
+               duty=t_h / period, pulse_width_s=np.nan, supply_current_a=supply,
+               idle_current_a=np.nan, discharge_peak_a=dis_peak, ra_power_w=p_res)
+    return out, stalls, p_chip, _surge(timer, curve, v_top, v_lo, r_series), steady
+
+
+def _surge(timer, curve: NodeCapacitance, v_top, v_end, r_series):
+    """The discharge transistor's turn-on surge: (energy [J] it takes, duration [s] to a tenth
+    of its peak). The capacitor's energy between v_top and v_end splits between the transistor
+    and a series resistance in proportion to their resistances; beyond surge_current_a the
+    transistor leaves saturation and takes the excess itself [derived]."""
+    if np.all(np.isinf(r_series)):
+        z = np.zeros(np.shape(v_top))
+        return z, z * np.nan
+    r_sat = timer.saturation_ohm
+    with np.errstate(all="ignore"):
+        c_mean = curve.charge(v_end, v_top) / (v_top - v_end)
+        energy = 0.5 * c_mean * (v_top ** 2 - v_end ** 2)
+        r_eff = np.maximum(r_sat, v_top / timer.surge_current_a - r_series)
+        e_tr = energy * r_eff / (r_eff + r_series)
+        # limited at first to surge_current_a (constant current), then exponential [derived]
+        r_loop = r_sat + r_series
+        v_knee = np.minimum(v_top, timer.surge_current_a * r_loop)
+        t_cc = c_mean * (v_top - v_knee) / timer.surge_current_a
+        tau = c_mean * r_loop
+        duration = t_cc + tau * np.log(np.maximum(v_knee / (0.1 * v_top), 1.0))
+    return e_tr, duration
+
+
+def _monostable(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up):
+    """The monostable's pulse, supply and idle currents, and the capacitor dump at its end."""
+    tpd = timer.propagation_delay_s
+    # at rest the discharge transistor holds C: R from VCC, V_sat0 + R_sat, leakage and the
+    # threshold input current [derived: Kirchhoff's current law]
+    r_sat = timer.saturation_ohm
+    if r_sat > 0:
+        v0 = ((vcc / r_t + timer.saturation_v / r_sat - i_draw)
+              / (1.0 / r_t + 1.0 / r_sat + g_leak))
+    else:
+        v0 = timer.saturation_v + 0.0 * vcc * r_t
+    vinf_c, g_c = node_source(vcc, r_t, g_leak, i_draw)
+    stalls = vinf_c <= v_up
+    with np.errstate(all="ignore"):
+        ph = linear_phase(curve, vinf_c, g_c, v0, v_up, tpd)
+        pw = np.where(stalls, np.nan, ph.time_s)
+        vm_h = ph.vt_vs / ph.time_s
+    i_idle_r = (vcc - v0) / r_t
+    supply = timer.quiescent_a(vcc, output_high=True) + (vcc - vm_h) / r_t + stage.i_high
+    idle = timer.quiescent_a(vcc, output_high=False) + i_idle_r + stage.i_low
+    p_chip = np.maximum(vcc * timer.quiescent_a(vcc, output_high=True) + (vcc - stage.v_high) * stage.i_high,
+                        vcc * timer.quiescent_a(vcc, output_high=False) + stage.v_low * stage.i_low
+                        + v0 * i_idle_r)
+    v_top = ph.v_end_v
+    # at the pulse's end the capacitor dumps straight into the transistor [derived]
+    with np.errstate(all="ignore"):
+        dump = np.minimum((v_top - timer.saturation_v) / max(r_sat, 1e-12), timer.surge_current_a)
+    nan = np.full_like(pw, np.nan)
+    out = dict(high_time_s=pw, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
+               pulse_width_s=pw, supply_current_a=supply, idle_current_a=idle,
+               discharge_peak_a=dump + i_idle_r, ra_power_w=(vcc - v0) ** 2 / r_t)
+    return out, stalls, p_chip, _surge(timer, curve, v_top, v0, 0.0), i_idle_r
 
 
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
-             ideal: bool = False) -> dict[str, np.ndarray]:
+             leak_factor=1.0, ideal: bool = False) -> dict[str, np.ndarray]:
     """Evaluate every point of a broadcast grid.
 
     Parameters (SI units; arrays broadcast): vcc [V], temperature [°C], c [F] nominal at 25 °C,
-    ra, rb, r [Ω] nominal at 25 °C, control_voltage [V] (NaN: internal divider).
+    ra, rb, r [Ω] nominal at 25 °C, control_voltage [V] (NaN: internal divider), leak_factor [-]
+    the capacitor's leakage relative to its typical figure (1: typical; see
+    parts.leakage_conductance_s for the specification maximum).
     Returns a dict of arrays: the output columns of sweep.variables.OUTPUTS and 'flag_mask'
     (bits of FLAG_BITS, spec-miss excluded: that needs the study's [spec]).
     """
@@ -111,165 +303,53 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         raise ValueError(f"unknown circuit {circuit!r}")
     if ideal:
         timer, parts = timer.idealised(), parts.idealised()
-    cap = parts.technology
     vcc = np.asarray(vcc, dtype=float)
     t_amb = np.asarray(temperature, dtype=float)
     cv = np.asarray(control_voltage, dtype=float)
     tc = parts.resistor_tempco_per_k
     ra_t, rb_t, r_t = (resistor_at(np.asarray(x, dtype=float), t_amb, tc) for x in (ra, rb, r))
-
     # thresholds: upper = control voltage, lower = half of it [book]
     v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
-    v_lo_th = 0.5 * v_up
-    v_oh, v_ol, i_load_h, i_load_l = output_stage(timer, load, vcc)
-    iq_l = timer.quiescent_a(vcc, output_high=False)
-    iq_h = timer.quiescent_a(vcc, output_high=True)
-    tpd = timer.propagation_delay_s
-    out: dict[str, np.ndarray] = {}
-
+    stage = output_states(timer, load, vcc, t_amb)
     timed = circuit != "bistable"
+    surge = steady = None
     if timed:
-        c_nom = np.asarray(c, dtype=float)
-        # DC bias taken at the mean node voltage: 3/4 Vc between Vc/2 and Vc in an astable,
-        # Vc/2 on the monostable's ramp from 0 [derived; DOMAIN.md section 3]
-        v_mean_cap = (0.5 if circuit == "monostable" else 0.75) * v_up
-        k_bias = 0.0 if ideal else parts.dc_bias_loss
-        c_eff = (c_nom * (1.0 if ideal else capacitance_temperature_factor(cap, t_amb))
-                 * dc_bias_factor(cap, v_mean_cap, parts.capacitor_voltage_v, k_bias)
-                 + parts.stray_capacitance_f)
-        g_leak = 0.0 if ideal else leakage_conductance_s(cap, c_nom, parts.capacitor_voltage_v, t_amb)
-        i_b = timer.threshold_current_a   # net input current drawn from the timing node [ds-bip]
-
-    if circuit in ("astable", "astable-diode"):
-        v_d, r_d = thevenin_with_sat(vcc, ra_t, timer.saturation_v, timer.saturation_ohm)
-        vs_d, rs_d = v_d, rb_t + r_d                             # discharge through RB [book]
-    elif circuit == "astable-symmetric":
-        r_out_h, r_out_l = output_resistance(timer, load, i_load_h, i_load_l)
-        vs_d, rs_d = v_ol, r_t + r_out_l                         # output low sinks R [derived]
-    # the charge phase runs in up to two segments: segment 1 while the capacitor is below v_sw,
-    # then segment 2 [derived]. Only the diode circuit has two: RB sits across the diode, so the
-    # diode conducts while (VCC - V) RB / (RA + RB) >= Vd, i.e. below v_sw = VCC - Vd (RA+RB)/RB;
-    # above it the capacitor charges through RA + RB towards VCC.
-    if circuit == "astable":
-        seg1 = seg2 = (vcc, ra_t + rb_t)                          # through RA + RB [book]
-        v_sw = -np.inf
-    elif circuit == "astable-diode":
-        vd = parts.diode_drop_v
-        seg1 = (vcc - vd, ra_t)                                  # RA and the conducting diode
-        seg2 = (vcc, ra_t + rb_t)                                # diode off: RA + RB
-        v_sw = vcc - vd * (ra_t + rb_t) / rb_t
-    elif circuit == "astable-symmetric":
-        seg1 = seg2 = (v_oh, r_t + r_out_h)                      # output high drives R [derived]
-        v_sw = -np.inf
-    elif circuit == "monostable":
-        vs_c, rs_c = vcc, r_t
-
-    if circuit in ASTABLES:
-        diode = circuit == "astable-diode"
-        vinf2, tau2 = node_source(*seg2, g_leak, i_b, c_eff)
-        vinf_d, tau_d = node_source(vs_d, rs_d, g_leak, i_b, c_eff)
-        if diode:
-            vinf1, tau1 = node_source(*seg1, g_leak, i_b, c_eff)
-            last2 = v_sw < v_up              # the threshold is met in segment 2
-            vinf_c, tau_c = np.where(last2, vinf2, vinf1), np.where(last2, tau2, tau1)
+        curve, g_leak, i_draw = _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor)
+        if circuit in ASTABLES:
+            out, stalls, p_chip, surge, steady = _astable(
+                circuit, timer, parts, load, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb,
+                ra_t=ra_t, rb_t=rb_t, r_t=r_t, v_up=v_up, ideal=ideal)
         else:
-            vinf_c, tau_c = vinf2, tau2
-        # each phase runs on for the propagation delay past its threshold [derived]
-        v_top = vinf_c - (vinf_c - v_up) * np.exp(-tpd / tau_c)
-        v_bot = vinf_d - (vinf_d - v_lo_th) * np.exp(-tpd / tau_d)
-        with np.errstate(all="ignore"):      # stalled points give NaN, masked just below
-            if diode:
-                v_mid = np.clip(v_sw, v_bot, v_up)
-                t1 = rc_time_s(tau1, vinf1, v_bot, v_mid)
-                t2 = rc_time_s(tau2, vinf2, v_mid, v_up)
-                stalls = (vinf_c <= v_up) | ((v_mid > v_bot) & (vinf1 <= v_mid))
-            else:
-                t1, t2 = 0.0, rc_time_s(tau_c, vinf_c, v_bot, v_up)
-                stalls = vinf_c <= v_up
-            t_l = rc_time_s(tau_d, vinf_d, v_top, v_lo_th) + tpd
-        stalls = stalls | (vinf_d >= v_lo_th)
-        t_h = np.where(stalls, np.nan, t1 + t2 + tpd)
-        t_l = np.where(stalls, np.nan, t_l)
-        period = t_h + t_l
-        # charge drawn from the supply along a segment from v0 to v1 in time t:
-        # Q = ((V_s - V_inf) t + tau (v1 - v0)) / R_s, the integral of the RC law [derived]
-        if diode:
-            end1 = np.where(last2, v_mid, v_top)
-            q1 = ((seg1[0] - vinf1) * (t1 + np.where(last2, 0.0, tpd)) + tau1 * (end1 - v_bot)) / seg1[1]
-            q2 = np.where(last2, ((seg2[0] - vinf2) * (t2 + tpd) + tau2 * (v_top - v_mid)) / seg2[1], 0.0)
-            i_charge_h = (q1 + q2) / t_h
-            i_start = np.where(v_sw > v_bot, (seg1[0] - v_bot) / seg1[1], (seg2[0] - v_bot) / seg2[1])
-        else:
-            i_charge_h = ((seg2[0] - vinf_c) * t_h + tau_c * (v_top - v_bot)) / seg2[1] / t_h
-            i_start = (seg2[0] - v_bot) / seg2[1]
-        # mean capacitor voltage in the low phase: V_inf + tau (v0 - v1) / t [derived]
-        vm_l = mean_between_v(tau_d, vinf_d, v_top, v_bot, t_l)
-        if circuit == "astable-symmetric":
-            i_ra_l = 0.0
-            dis_peak = np.zeros(np.shape(period))
-            p_res = i_start ** 2 * r_t
-            p_dis_l = 0.0
-        else:
-            # node D during the low phase: VCC via RA, V_sat via R_sat, capacitor via RB,
-            # linear in the capacitor voltage: V_D = a + b V [derived]
-            rs_, vs_ = timer.saturation_ohm, timer.saturation_v
-            den = rs_ * rb_t + ra_t * rb_t + ra_t * rs_
-            a_d = (vcc * rs_ * rb_t + vs_ * ra_t * rb_t) / den
-            b_d = ra_t * rs_ / den
-            vd_mean = a_d + b_d * vm_l
-            i_ra_l = (vcc - vd_mean) / ra_t
-            vd_top = a_d + b_d * v_top
-            dis_peak = (vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t
-            # RA: worst of the low phase (VCC across it, less node D) and the start of the high
-            p_res = np.maximum((vcc - a_d - b_d * v_bot) ** 2 / ra_t, i_start ** 2 * ra_t)
-            p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
-        i_h = iq_h + i_charge_h + i_load_h
-        i_l = iq_l + i_ra_l + i_load_l
-        supply = (t_h * i_h + t_l * i_l) / period
-        p_chip_h = vcc * iq_h + (vcc - v_oh) * i_load_h
-        p_chip_l = vcc * iq_l + v_ol * i_load_l + p_dis_l
-        p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
-        out.update(high_time_s=t_h, low_time_s=t_l, period_s=period, frequency_hz=1.0 / period,
-                   duty=t_h / period, pulse_width_s=np.nan, supply_current_a=supply,
-                   idle_current_a=np.nan, discharge_peak_a=dis_peak, ra_power_w=p_res)
-    elif circuit == "monostable":
-        # at rest the discharge transistor holds C near V_sat [derived]
-        v0, _ = thevenin_with_sat(vcc, r_t, timer.saturation_v, timer.saturation_ohm)
-        vinf_c, tau_c = node_source(vs_c, rs_c, g_leak, i_b, c_eff)
-        stalls = vinf_c <= v_up
-        with np.errstate(all="ignore"):
-            pw = np.where(stalls, np.nan, rc_time_s(tau_c, vinf_c, v0, v_up) + tpd)
-        v_end = vinf_c - (vinf_c - v_up) * np.exp(-tpd / tau_c)
-        vm_h = mean_between_v(tau_c, vinf_c, v0, v_end, pw)
-        i_idle_r = (vcc - v0) / r_t
-        supply = iq_h + (vcc - vm_h) / r_t + i_load_h
-        idle = iq_l + i_idle_r + i_load_l
-        p_chip = np.maximum(vcc * iq_h + (vcc - v_oh) * i_load_h,
-                            vcc * iq_l + v_ol * i_load_l + v0 * i_idle_r)
-        nan = np.full_like(pw, np.nan)
-        out.update(high_time_s=pw, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
-                   pulse_width_s=pw, supply_current_a=supply, idle_current_a=idle,
-                   discharge_peak_a=i_idle_r, ra_power_w=(vcc - v0) ** 2 / r_t)
+            out, stalls, p_chip, surge, steady = _monostable(
+                timer, parts, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up)
+        out["discharge_dump_s"] = surge[1]
     else:  # bistable: set/reset latch, no timing [book]
-        i_h = iq_h + i_load_h
-        i_l = iq_l + i_load_l
+        i_h = timer.quiescent_a(vcc, output_high=True) + stage.i_high
+        i_l = timer.quiescent_a(vcc, output_high=False) + stage.i_low
         stalls = np.zeros(np.broadcast(vcc, t_amb).shape, dtype=bool)
-        p_chip = np.maximum(vcc * iq_h + (vcc - v_oh) * i_load_h, vcc * iq_l + v_ol * i_load_l)
+        p_chip = np.maximum(vcc * timer.quiescent_a(vcc, output_high=True) + (vcc - stage.v_high) * stage.i_high,
+                            vcc * timer.quiescent_a(vcc, output_high=False) + stage.v_low * stage.i_low)
         nan = np.full(stalls.shape, np.nan)
-        out.update(high_time_s=nan, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
+        out = dict(high_time_s=nan, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
                    pulse_width_s=nan, supply_current_a=np.maximum(i_h, i_l), idle_current_a=i_l,
-                   discharge_peak_a=np.zeros(stalls.shape), ra_power_w=np.zeros(stalls.shape))
-
+                   discharge_peak_a=np.zeros(stalls.shape), ra_power_w=np.zeros(stalls.shape),
+                   discharge_dump_s=nan)
     tj = t_amb + timer.theta_ja_c_per_w * p_chip
     shape = np.broadcast(*(np.asarray(v) for v in out.values()), tj, vcc, t_amb).shape
     out["power_w"] = vcc * out["supply_current_a"]
-    out["output_high_v"] = v_oh
-    out["output_low_v"] = v_ol
-    out["output_current_a"] = np.maximum(i_load_h, i_load_l)
+    out["output_high_v"] = stage.v_high
+    out["output_low_v"] = stage.v_low
+    out["output_current_a"] = np.maximum(stage.i_high, stage.i_low)
     out["junction_temp_c"] = tj
     out = {k: np.broadcast_to(np.asarray(v, dtype=float), shape) for k, v in out.items()}
+    out["flag_mask"] = np.broadcast_to(_flags(circuit, timer, parts, stage, out, locals()), shape)
+    return out
 
-    # flags [ds-bip]/[ds-cmos] limits from the timer model, [cp] part limits
+
+def _flags(circuit, timer, parts, stage, out, env):
+    """Flag bits of every limit broken [ds-bip]/[ds-cmos] limits from the timer model, [cp] part
+    limits."""
+    vcc, t_amb, v_up = env["vcc"], env["t_amb"], env["v_up"]
     m = np.zeros((), dtype=np.uint32)
 
     def flag(name, cond):
@@ -281,24 +361,27 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     flag("supply-above-max", vcc > timer.max_v)
     flag("supply-above-abs-max", vcc > timer.abs_max_v)
     flag("temperature-out-of-range", (t_amb < timer.ambient_min_c) | (t_amb > timer.ambient_max_c))
-    flag("output-current-over-limit", (i_load_h > timer.source_max_a) | (i_load_l > timer.sink_max_a))
-    flag("junction-too-hot", tj > timer.tj_max_c)
-    if timed:
-        r_in = {"astable": ra, "astable-diode": ra}.get(circuit, r)
-        flag("resistor-too-small", np.asarray(r_in) < timer.min_resistance_ohm)
-        # R_max = derating x (VCC - Vc) / I_th,max [ds-bip; cp halves it]
-        r_charge = np.asarray(ra) + np.asarray(rb) if circuit == "astable" else np.asarray(r_in)
-        if timer.threshold_current_max_a > 0:
-            r_max = timer.resistance_derating * (vcc - v_up) / timer.threshold_current_max_a
-            flag("resistance-too-large", r_charge > r_max)
-        flag("capacitor-too-small", c_nom < timer.min_capacitance_f)
-        flag("discharge-current-over-limit", out["discharge_peak_a"] > timer.discharge_max_a)
-        flag("resistor-overpowered", out["ra_power_w"] > parts.resistor_power_w)
-        flag("timing-stalls", stalls)
-        if circuit in ASTABLES:
-            flag("frequency-too-high", out["frequency_hz"] > timer.max_frequency_hz)
-    out["flag_mask"] = np.broadcast_to(m, shape)
-    return out
+    flag("output-current-over-limit", (stage.i_high > timer.source_max_a) | (stage.i_low > timer.sink_max_a))
+    flag("junction-too-hot", out["junction_temp_c"] > timer.tj_max_c)
+    if circuit == "bistable":
+        return m
+    ra, rb, r, c = (np.asarray(env[k]) for k in ("ra", "rb", "r", "c"))
+    r_in = ra if circuit in ("astable", "astable-diode") else r
+    flag("resistor-too-small", r_in < timer.min_resistance_ohm)
+    # R_max = derating x (VCC - Vc) / I_th,max [ds-bip; cp halves it]
+    r_charge = ra + rb if circuit == "astable" else r_in
+    if timer.threshold_current_max_a > 0:
+        r_max = timer.resistance_derating * (vcc - v_up) / timer.threshold_current_max_a
+        flag("resistance-too-large", r_charge > r_max)
+    flag("capacitor-too-small", c < timer.min_capacitance_f)
+    # steady current through the transistor, or a turn-on dump with more energy than it takes
+    flag("discharge-current-over-limit", (env["steady"] > timer.discharge_max_a)
+         | (env["surge"][0] > timer.surge_energy_max_j))
+    flag("resistor-overpowered", out["ra_power_w"] > parts.resistor_power_w)
+    flag("timing-stalls", env["stalls"])
+    if circuit in ASTABLES:
+        flag("frequency-too-high", out["frequency_hz"] > timer.max_frequency_hz)
+    return m
 
 
 def flag_names(mask: int) -> list[str]:

@@ -1,7 +1,8 @@
 """Passive parts: resistor tempco, capacitor technologies (temperature, DC bias, leakage).
 
-Pure numpy, SI units. Every figure carries its source tag (see DOMAIN.md):
-[std] standard, [cp] common practice, [mem] from memory, [derived] worked out here.
+Pure numpy, SI units. Every figure carries its source tag: [std] a published standard, [book] a
+published textbook, [cp] common practice in the trade, [mem] from memory (uncertain), [derived]
+worked out here from the RC law or Kirchhoff's laws.
 """
 from __future__ import annotations
 
@@ -17,7 +18,7 @@ class Capacitor:
     temp_points: (temperature [°C], relative change of capacitance) points, interpolated
         linearly and held flat outside; the band of the code is in `temp_band`.
     dc_bias_loss: fractional loss at rated voltage; the loss at voltage V is
-        dc_bias_loss * (V / V_rated) ** 1.3 [mem: DOMAIN.md section 3].
+        dc_bias_loss * (V / V_rated) ** 1.3 [mem], applied to the node voltage as it moves.
     leakage: "electrolytic" (0.01 C V uA or 3 uA), "tantalum" (0.01 C V uA or 0.5 uA),
         or "insulation" (10 GΩ or 500 s / C, whichever is less).
     """
@@ -83,15 +84,29 @@ class Parts:
     capacitor_tolerance: float = 0.10      # [cp]
     capacitor_voltage_v: float = 50.0      # rating [cp]
     stray_capacitance_f: float = 5e-12     # board and pins [cp: DOMAIN.md section 3]
-    diode_drop_v: float = 0.7              # silicon diode forward drop [book]
+    diode: str = "silicon"                 # diode of astable-diode: a DIODES entry
+    diode_saturation_current_a: float | None = None   # at 25 °C; None: the diode's figure
+    diode_ideality: float | None = None               # None: the diode's figure
+    diode_drop_v: float | None = None      # a fixed forward drop instead of the Shockley law
     dc_bias_loss: float | None = None      # None: the technology's default
 
     @property
     def technology(self) -> Capacitor:
         return capacitor_named(self.capacitor)
 
+    @property
+    def diode_model(self) -> "Diode":
+        """The diode of astable-diode with any explicit figures of the study applied."""
+        d = DIODES[self.diode]
+        if self.diode_saturation_current_a is not None:
+            d = replace(d, saturation_current_a=self.diode_saturation_current_a)
+        if self.diode_ideality is not None:
+            d = replace(d, ideality=self.diode_ideality)
+        return d
+
     def idealised(self) -> "Parts":
-        """Parts with every non-ideality that moves timing set to zero (DOMAIN.md section 9)."""
+        """Parts with every non-ideality that moves timing set to zero: no tempco, stray
+        capacitance, DC-bias loss or leakage, and an ideal diode (a fixed drop of 0 V)."""
         return replace(self, resistor_tempco_per_k=0.0, stray_capacitance_f=0.0, diode_drop_v=0.0,
                        dc_bias_loss=0.0)
 
@@ -127,17 +142,132 @@ def dc_bias_factor(cap: Capacitor, v_mean_v, v_rated_v, loss: float | None = Non
     return np.clip(1.0 - k * ratio ** 1.3, 0.05, 1.0)
 
 
-def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c):
-    """Leakage of the timing capacitor as a parallel conductance [S].
+#: typical leakage of an electrolytic or tantalum at its rated voltage as a share of the
+#: specification maximum: typical parts leak several times less than the limit [cp]
+LEAKAGE_TYPICAL_SHARE = 0.2
+#: exponent of the typical leakage against the working voltage as a share of the rating: the
+#: leakage falls steeply when a part is worked below its rating (the usual cure for leakage) [mem]
+LEAKAGE_VOLTAGE_EXPONENT = 2.0
 
-    Electrolytic: I <= 0.01 C V [uA, C in uF, V rated] or 3 uA, whichever is greater, after
-    2 min at rated voltage [cp; test method in IEC 60384-4]; tantalum the same rule with a 0.5 uA
-    floor [cp]. Both rise 2-3x from 20 to 60 °C [mem]: factor 2.5 ** ((T - 20) / 40).
-    Ceramics and films: insulation resistance 10 GΩ or 500 s / C, whichever is less [cp, mem].
+
+def leakage_max_a(cap: Capacitor, c_f, v_rated_v, temperature_c):
+    """Specification maximum of the leakage current [A] at the rated voltage (a guaranteed bound,
+    not a nominal figure).
+
+    Aluminium electrolytic: I <= 0.01 C V [uA, C in uF, V rated] or 3 uA, whichever is greater,
+    after 2 min at rated voltage [cp; test method in IEC 60384-4]; tantalum the same rule with a
+    0.5 uA floor [cp]. Both rise 2-3x from 20 to 60 °C [mem]: factor 2.5 ** ((T - 20) / 40).
+    """
+    floor_a = 3e-6 if cap.leakage == "electrolytic" else 0.5e-6
+    i_a = np.maximum(0.01e-6 * (np.asarray(c_f, dtype=float) * 1e6) * v_rated_v, floor_a)
+    return i_a * 2.5 ** ((np.asarray(temperature_c, dtype=float) - 20.0) / 40.0)
+
+
+def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c, v_work_v=None,
+                          maximum: bool = False):
+    """Leakage of the timing capacitor as a parallel conductance [S] at temperature_c [°C].
+
+    Electrolytic and tantalum, typical (the nominal figure): the specification maximum
+    (`leakage_max_a`) times LEAKAGE_TYPICAL_SHARE at rated voltage, falling as
+    (V_work / V_rated) ** LEAKAGE_VOLTAGE_EXPONENT below it; the conductance is that current at
+    the working voltage v_work_v [V] (the highest voltage the capacitor sees, the upper
+    threshold) divided by it, so it is exact there and errs high below it. At one working voltage
+    a higher-rated part leaks less [cp]. maximum=True: the specification maximum at rated
+    voltage as a conductance, I_max / V_rated (the worst-case bound), never below the typical.
+    Ceramics and films: insulation resistance 10 GΩ or 500 s / C, whichever is less [cp, mem],
+    no temperature dependence modelled, the same for typical and maximum.
     """
     c_f = np.asarray(c_f, dtype=float)
     if cap.leakage in ("electrolytic", "tantalum"):
-        floor_a = 3e-6 if cap.leakage == "electrolytic" else 0.5e-6
-        i_a = np.maximum(0.01e-6 * (c_f * 1e6) * v_rated_v, floor_a)
-        return i_a / v_rated_v * 2.5 ** ((np.asarray(temperature_c, dtype=float) - 20.0) / 40.0)
-    return 1.0 / np.minimum(10e9, 500.0 / c_f)       # no temperature dependence modelled
+        i_max = leakage_max_a(cap, c_f, v_rated_v, temperature_c)
+        g_max = i_max / v_rated_v
+        if v_work_v is None:
+            v_work_v = v_rated_v
+        share = np.clip(np.asarray(v_work_v, dtype=float) / v_rated_v, 1e-6, 1.0)
+        g_typ = LEAKAGE_TYPICAL_SHARE * g_max * share ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
+        return g_max if maximum else g_typ
+    return 1.0 / np.minimum(10e9, 500.0 / c_f)
+
+
+def leakage_spread(cap: Capacitor, v_rated_v, v_work_v):
+    """Ratio of the specification maximum to the typical leakage conductance at working voltage
+    v_work_v [V] (1 where the technology's leakage is not specified that way): how far the
+    worst case and the Monte Carlo may take the leakage above its nominal figure."""
+    if cap.leakage not in ("electrolytic", "tantalum"):
+        return np.ones(np.shape(v_work_v))
+    share = np.clip(np.asarray(v_work_v, dtype=float) / v_rated_v, 1e-6, 1.0)
+    return 1.0 / (LEAKAGE_TYPICAL_SHARE * share ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0))
+
+
+# --- the diode of astable-diode ---------------------------------------------------------------
+BOLTZMANN_J_PER_K = 1.380649e-23     # exact since the 2019 SI redefinition [std: SI brochure]
+ELEMENTARY_CHARGE_C = 1.602176634e-19  # exact [std: SI brochure]
+T0_K = 298.15                          # 25 °C, the reference temperature of the diode figures
+
+
+@dataclass(frozen=True)
+class Diode:
+    """A small-signal diode as a Shockley device, I = Is (exp(V / (n Vt)) - 1) [book: Sedra &
+    Smith, *Microelectronic Circuits*, the diode equation], Vt = k T / q.
+
+    saturation_current_a: Is at 25 °C [A]; ideality: n [-]; gap_ev: the band-gap energy and xti
+    the saturation-current temperature exponent of the temperature rule in `saturation_at`;
+    reverse_current_a: typical reverse leakage at 25 °C [A] with the diode reverse biased by a few
+    volts (it doubles about every 10 K [cp]).
+    """
+    name: str
+    label: str
+    saturation_current_a: float
+    ideality: float
+    gap_ev: float
+    xti: float
+    reverse_current_a: float
+
+
+# Small-signal silicon: Is about 2.5 nA, n about 1.75, a common small-signal fit [mem]; band gap
+# 1.11 eV and XTI 3 for a silicon junction [book: Massobrio & Antognetti, *Semiconductor Device
+# Modeling with SPICE*, diode model]. Small-signal Schottky: about 0.3 V at 1 mA (Is 15 nA,
+# n 1.05) [mem], barrier 0.69 eV and XTI 2 [book: same]; reverse leakage 5 nA (silicon) and
+# 50 nA (Schottky) at 25 °C and a few volts, typical [mem].
+DIODES: dict[str, Diode] = {d.name: d for d in [
+    Diode("silicon", "small-signal silicon diode", 2.5e-9, 1.75, 1.11, 3.0, 5e-9),
+    Diode("schottky", "small-signal Schottky diode", 15e-9, 1.05, 0.69, 2.0, 50e-9),
+]}
+
+
+def thermal_voltage_v(temperature_c):
+    """Vt = k T / q [V] at temperature_c [°C] (25.7 mV at 25 °C) [book]."""
+    return BOLTZMANN_J_PER_K * (np.asarray(temperature_c, dtype=float) + 273.15) / ELEMENTARY_CHARGE_C
+
+
+def saturation_at(diode: Diode, temperature_c):
+    """Saturation current [A] at temperature_c [°C]:
+    Is(T) = Is(T0) (T/T0)^(XTI/n) exp(q Eg / (n k) (1/T0 - 1/T)) [book: Massobrio & Antognetti,
+    *Semiconductor Device Modeling with SPICE*, the diode model's temperature rule]."""
+    t_k = np.asarray(temperature_c, dtype=float) + 273.15
+    n = diode.ideality
+    return diode.saturation_current_a * (t_k / T0_K) ** (diode.xti / n) * np.exp(
+        diode.gap_ev * ELEMENTARY_CHARGE_C / (n * BOLTZMANN_J_PER_K) * (1.0 / T0_K - 1.0 / t_k))
+
+
+def reverse_current_at(diode: Diode, temperature_c):
+    """Reverse leakage [A] at temperature_c [°C]: the 25 °C figure doubling every 10 K [cp],
+    and never below the Shockley saturation current at that temperature [book]."""
+    t = np.asarray(temperature_c, dtype=float)
+    return np.maximum(diode.reverse_current_a * 2.0 ** ((t - 25.0) / 10.0), saturation_at(diode, t))
+
+
+def wright_omega(z):
+    """Wright omega function w(z), the solution w of w + ln w = z (so w = W(exp z), Lambert's W
+    of exp z without overflow) for real z [book: Corless & Jeffrey, "The Wright omega function",
+    2002]. Newton's method on w + ln w - z from a start within a few per cent everywhere: exp z
+    below z = -2 (where w ~ exp z), z - ln z above z = 4 (the asymptote), a line between; four
+    steps reach 1e-14 (tested against scipy.special.wrightomega). Below z = -35, w = exp z to
+    1e-15. Vectorised; only numpy."""
+    z = np.asarray(z, dtype=float)
+    with np.errstate(all="ignore"):
+        w = np.where(z < -2.0, np.exp(z), np.where(z > 4.0, z - np.log(np.abs(z)), 0.12 + 0.22 * (z + 2.0)))
+        for _ in range(4):
+            w = np.maximum(w, 1e-300)
+            w = w - (w + np.log(w) - z) * w / (1.0 + w)
+        return np.where(z < -35.0, np.exp(z), w)

@@ -26,18 +26,22 @@ class TimerModel:
     threshold_current_a: float
     threshold_current_max_a: float
     trigger_current_a: float
+    trigger_current_sources: bool   # True: flows out of the trigger pin into the node
     reset_v: float
     resistance_derating: float
     # discharge
     saturation_v: float
     saturation_ohm: float
     discharge_max_a: float
+    surge_current_a: float           # most the transistor pulls from a capacitor at turn-on
+    surge_energy_max_j: float        # energy one turn-on may dump into the transistor
     min_resistance_ohm: float
-    # output
-    high_drop_v: float
-    high_ohm: float
-    low_drop_v: float
-    low_ohm: float
+    # output: drop below the supply (high) or above ground (low) against the load current, as
+    # (A, V) points interpolated linearly and extended along the last segment
+    source_drop_points: tuple[tuple[float, float], ...]
+    sink_drop_points: tuple[tuple[float, float], ...]
+    source_drop_tempco_v_per_k: float
+    high_can_sink: bool              # can the high stage take current from a load to the supply
     source_max_a: float
     sink_max_a: float
     # timing
@@ -68,10 +72,12 @@ class TimerModel:
         return [f.name for f in fields(cls)]
 
     def idealised(self) -> "TimerModel":
-        """No bias current, saturation, delay or output drop (DOMAIN.md section 9)."""
+        """No bias current, saturation, delay or output drop: a rail-to-rail output that sources
+        and sinks without loss, so the figures equal the textbook formulas."""
         return replace(self, threshold_current_a=0.0, trigger_current_a=0.0, saturation_v=0.0,
-                       saturation_ohm=0.0, high_drop_v=0.0, high_ohm=0.0, low_drop_v=0.0,
-                       low_ohm=0.0, propagation_delay_s=0.0)
+                       saturation_ohm=0.0, source_drop_points=((0.0, 0.0),),
+                       sink_drop_points=((0.0, 0.0),), source_drop_tempco_v_per_k=0.0,
+                       high_can_sink=True, propagation_delay_s=0.0)
 
     def quiescent_a(self, vcc_v, output_high: bool = False):
         """Quiescent supply current [A] at supply vcc_v [V], no load; linear through the data

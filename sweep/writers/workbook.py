@@ -741,13 +741,20 @@ _FORMULA_TEXT = {
 
 
 def _diode_line(report: Report) -> str:
-    """The Check sheet's hint for the diode drop cell: the study's value, or the default."""
+    """The Check sheet's hint for the diode drop cell: the study's fixed drop, or what a
+    Shockley diode drops at timing currents."""
     given = [v for sec, key, v, _m in report.study_rows if key == "diode_drop"]
-    drop = given[0].strip().strip('"') if given else "0.7 V, the default"
-    return ("Diode drop Vd (blue) is 0, the ideal case the engine's ideal figure uses, so "
-            f"'formula vs ideal' stays exact. Type the study's diode drop ({drop}) into Vd to "
-            "see how much of the gap to the realistic figures the diode explains (for the duty, "
-            "most of it); the rest comes from the other non-idealities (see Notes).")
+    if given:
+        drop = f"the study's fixed drop, {given[0].strip().strip(chr(34))}"
+    else:
+        drop = ("the diode's drop at the timing current: the engine treats it as a Shockley "
+                "device, and a small-signal silicon diode drops about 0.35-0.5 V at microamps, "
+                "0.6-0.7 V at milliamps; a Schottky about half of that")
+    return ("Textbook formulas. Diode drop Vd (blue) is 0, the ideal case the engine's ideal "
+            "figure uses, so 'formula vs ideal' stays exact. Type a drop into Vd "
+            f"({drop}) to see how much of the gap to the realistic figures the diode explains "
+            "(for the duty, most of it); the rest comes from the other non-idealities (see "
+            "Notes).")
 
 
 def _check(ws, st: _Styles, report: Report, cached: bool) -> None:

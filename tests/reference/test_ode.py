@@ -5,22 +5,30 @@ integrating Kirchhoff's current law written in this file from the circuit descri
 timer-sweep's formulas [book: nodal analysis and the 555 block diagram, e.g. Horowitz & Hill,
 *The Art of Electronics*, oscillators and timers; Sedra & Smith, *Microelectronic Circuits*]:
 
-- timing node X (the capacitor, C_eff, with leakage conductance g and the comparator input
-  current i_b drawn from it): C dV/dt = i_in(V) - g V - i_b
+- timing node X (the capacitor C(v), its DC-bias curve taken at the instantaneous voltage, with
+  leakage conductance g and the comparator input currents i_b drawn from it):
+  C(V) dV/dt = i_in(V) - g V - i_b
 - discharge node D (no capacitance, so it is solved algebraically at every step): RA from VCC,
   RB to X, the discharge transistor to ground as a source V_sat0 in series with R_sat when on,
-  and in the diode circuit a diode from D to X modelled as a constant forward drop that conducts
-  only when forward biased (current >= 0)
-- symmetric astable: the output as a source (V_OH loaded, or V_OL loaded) behind the stage's
-  resistance, the element model timer-sweep uses
+  and in the diode circuit a diode from D to X: a Shockley device I = Is (exp(u / n Vt) - 1)
+  [book: Sedra & Smith], its forward equation solved with scipy's Wright omega function and
+  checked against scipy's root finder in a test below, or a fixed drop that conducts only when
+  forward biased; reverse biased it leaks its reverse current
+- output node O of the output-fed astable (also solved algebraically): the stage's drop against
+  its current as the timer file's piecewise-linear curve, a high stage that cannot sink current
+  when the file says so, a low stage that only sinks, and the load (a resistor and an LED's
+  forward voltage that conducts one way) to ground or to the supply; the root of the piecewise
+  linear current balance is found exactly between its breakpoints
 - comparators switch the output a propagation delay after the node crosses a threshold: the
   simulation keeps integrating the same equations for t_pd before switching.
 
-Part data (the capacitor's temperature curve, DC-bias curve and leakage rule) come from
-sweep.physics.parts: the simulation checks timing dynamics, not capacitor data. Both are run on
-the same element values, so the only differences left are the model's algebra and the solver's
-error; 0.5 % is a generous bound for an exact model and a 1e-10 solver, while a wrong term
-(a missing bias current, the wrong Thevenin resistance, the delay on the wrong side) is larger.
+Part data (the capacitor's temperature and DC-bias curves, the leakage rule, the diode's figures
+and the output curves) come from sweep.physics.parts and the timer files: the simulation checks
+timing dynamics, not data. Both are run on the same element values, so the only differences
+left are the model's approximations (a cubic for C(v), quadrature for the diode, a linearised
+output stage) and the solver's error; 0.5 % is the agreement asked of them, while a wrong term
+(a missing bias current, the wrong Thevenin resistance, the delay on the wrong side, a fixed
+diode drop) is larger.
 """
 from __future__ import annotations
 
@@ -30,11 +38,14 @@ from dataclasses import dataclass, replace
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
+from scipy.optimize import brentq
+from scipy.special import wrightomega
 
 from sweep.models import load_timer
 from sweep.physics import CAPACITORS, FLAG_BITS, Load, Parts, evaluate
 from sweep.physics.parts import (capacitance_temperature_factor, dc_bias_factor,
-                                 leakage_conductance_s)
+                                 leakage_conductance_s, reverse_current_at, saturation_at,
+                                 thermal_voltage_v)
 
 TIMERS = {name: load_timer(name) for name in ("bipolar", "cmos")}
 TIMED = ("astable", "astable-diode", "astable-symmetric", "monostable")
@@ -52,66 +63,78 @@ class Network:
     vcc: float
     v_up: float            # upper threshold
     v_lo: float            # lower threshold
-    c: float               # effective capacitance
+    c_t: float             # capacitance at 0 V and the working temperature
+    loss: float            # DC-bias loss at rated voltage
+    v_rated: float
+    stray: float
+    cap_name: str
     g_leak: float          # capacitor leakage conductance
-    i_b: float             # comparator input current drawn from X
+    i_b: float             # comparator input currents drawn from X
     ra: float
     rb: float
     r: float
     v_sat0: float
     r_sat: float
-    v_diode: float
-    v_oh: float            # symmetric astable: output source when high, when low
-    r_oh: float
-    v_ol: float
-    r_ol: float
+    v_diode: float         # fixed drop; NaN: the Shockley diode below
+    i_sat: float
+    n_vt: float
+    i_rev: float
+    src_points: tuple      # output stage: (A, V) drop curves, the high level's shift
+    snk_points: tuple
+    src_shift: float
+    can_sink: bool
+    load_r: float
+    load_to: str
+    load_vf: float
     t_pd: float
+
+    def cap(self, v: float) -> float:
+        """C(v): the DC-bias curve at the instantaneous voltage, plus the stray capacitance."""
+        return self.c_t * float(dc_bias_factor(CAPACITORS[self.cap_name], v, self.v_rated,
+                                               self.loss)) + self.stray
 
     @property
     def tau_scale(self) -> float:
         """An upper bound on any time constant of the network, for the integration window."""
         r = {"astable": self.ra + self.rb, "astable-diode": self.ra + self.rb,
-             "astable-symmetric": self.r + max(self.r_oh, self.r_ol)}.get(self.circuit, self.r)
-        return r * self.c
+             "astable-symmetric": self.r + 1e3 + (self.load_r if math.isfinite(self.load_r) else 0.0)
+             }.get(self.circuit, self.r)
+        return r * self.c_t * 1.1 + r * self.stray
 
 
 def network(circuit, timer, parts, load, *, vcc, temperature, c, ra=np.nan, rb=np.nan, r=np.nan,
-            control_voltage=np.nan) -> Network:
+            control_voltage=np.nan, leak_factor=1.0) -> Network:
     """Element values from the data records, written out here rather than taken from the model."""
-    # R(T) = R25 (1 + alpha (T - 25 C)) [cp: DOMAIN.md section 4]
+    # R(T) = R25 (1 + alpha (T - 25 C)) [cp]
     k_r = 1.0 + parts.resistor_tempco_per_k * (temperature - 25.0)
     # thresholds: control voltage (internal divider, or driven) and half of it [book]
     v_up = timer.threshold_fraction * vcc if math.isnan(control_voltage) else control_voltage
     cap = parts.technology
-    # the model takes the DC-bias loss at the mean node voltage of the ramp: 3/4 of the upper
-    # threshold in an astable (between Vc/2 and Vc), half of it in the monostable (0 to Vc)
-    v_mean = (0.5 if circuit == "monostable" else 0.75) * v_up
-    c_eff = (c * float(capacitance_temperature_factor(cap, temperature))
-             * float(dc_bias_factor(cap, v_mean, parts.capacitor_voltage_v, parts.dc_bias_loss))
-             + parts.stray_capacitance_f)
-    g_leak = float(leakage_conductance_s(cap, c, parts.capacitor_voltage_v, temperature))
-    # output stage as a straight line V = V0 -/+ R I against the load line [derived]
-    # seen from the timing resistor the output is a Thevenin source: the loaded output voltage
-    # behind the stage's resistance in parallel with a conducting load [book: Thevenin]
-    v_oh, v_ol = vcc - timer.high_drop_v, timer.low_drop_v
-    r_oh, r_ol = timer.high_ohm, timer.low_ohm
-    rl = load.resistance_ohm
-    if math.isfinite(rl):
-        if load.to == "ground":     # the load hangs on the output when it is high
-            i = max(0.0, (v_oh - load.forward_voltage_v) / (rl + timer.high_ohm))
-            v_oh -= timer.high_ohm * i
-            if i > 0:
-                r_oh = 1.0 / (1.0 / timer.high_ohm + 1.0 / rl) if timer.high_ohm else 0.0
-        else:                       # the load pulls the output up when it is low
-            i = max(0.0, (vcc - load.forward_voltage_v - v_ol) / (rl + timer.low_ohm))
-            v_ol += timer.low_ohm * i
-            if i > 0:
-                r_ol = 1.0 / (1.0 / timer.low_ohm + 1.0 / rl) if timer.low_ohm else 0.0
-    return Network(circuit=circuit, vcc=vcc, v_up=v_up, v_lo=0.5 * v_up, c=c_eff, g_leak=g_leak,
-                   i_b=timer.threshold_current_a, ra=ra * k_r, rb=rb * k_r, r=r * k_r,
-                   v_sat0=timer.saturation_v, r_sat=timer.saturation_ohm,
-                   v_diode=parts.diode_drop_v, v_oh=v_oh, r_oh=r_oh, v_ol=v_ol,
-                   r_ol=r_ol, t_pd=timer.propagation_delay_s)
+    loss = cap.dc_bias_loss if parts.dc_bias_loss is None else parts.dc_bias_loss
+    g_leak = leak_factor * float(leakage_conductance_s(cap, c, parts.capacitor_voltage_v,
+                                                        temperature, v_work_v=v_up))
+    # the trigger input sits on the timing node of an astable, not of the monostable [book]; the
+    # timer file says whether its current flows out of the pin (a PNP input) or in
+    i_trig = 0.0
+    if circuit != "monostable":
+        i_trig = -timer.trigger_current_a if timer.trigger_current_sources else timer.trigger_current_a
+    i_b = timer.threshold_current_a + i_trig
+    d = parts.diode_model
+    fixed = parts.diode_drop_v is not None
+    return Network(
+        circuit=circuit, vcc=vcc, v_up=v_up, v_lo=0.5 * v_up,
+        c_t=c * float(capacitance_temperature_factor(cap, temperature)), loss=loss,
+        v_rated=parts.capacitor_voltage_v, stray=parts.stray_capacitance_f, cap_name=cap.name,
+        g_leak=g_leak, i_b=i_b, ra=ra * k_r, rb=rb * k_r, r=r * k_r,
+        v_sat0=timer.saturation_v, r_sat=timer.saturation_ohm,
+        v_diode=parts.diode_drop_v if fixed else math.nan,
+        i_sat=float(saturation_at(d, temperature)),
+        n_vt=d.ideality * float(thermal_voltage_v(temperature)),
+        i_rev=0.0 if fixed else float(reverse_current_at(d, temperature)),
+        src_points=timer.source_drop_points, snk_points=timer.sink_drop_points,
+        src_shift=timer.source_drop_tempco_v_per_k * (temperature - 25.0),
+        can_sink=timer.high_can_sink, load_r=load.resistance_ohm, load_to=load.to,
+        load_vf=load.forward_voltage_v, t_pd=timer.propagation_delay_s)
 
 
 # --- node equations ------------------------------------------------------------------------
@@ -120,10 +143,74 @@ def node_d_off(n: Network, v):
     return (n.vcc / n.ra + v / n.rb) / (1.0 / n.ra + 1.0 / n.rb)
 
 
-def node_d_on(n: Network, v):
-    """Discharge node with the transistor on: KCL with RA to VCC, RB to X, V_sat0 + R_sat."""
-    return ((n.vcc / n.ra + v / n.rb + n.v_sat0 / n.r_sat)
+def node_d_on(n: Network, v, i_into_d=0.0):
+    """Discharge node with the transistor on: KCL with RA to VCC, RB to X, V_sat0 + R_sat, and
+    any other current into D."""
+    return ((n.vcc / n.ra + v / n.rb + n.v_sat0 / n.r_sat + i_into_d)
             / (1.0 / n.ra + 1.0 / n.rb + 1.0 / n.r_sat))
+
+
+def shockley_feed(n: Network, v):
+    """RA's current with RB and the Shockley diode from D to X: KCL at D,
+    (VCC - v - u)/RA = u/RB + Is (exp(u/nVt) - 1), u = V_D - v, solved with Lambert's W of an
+    exponential (scipy's Wright omega) [book: the diode equation; Corless & Jeffrey 2002]."""
+    g = 1.0 / n.ra + 1.0 / n.rb
+    a = (n.vcc - v) / n.ra + n.i_sat
+    u = a / g - n.n_vt * float(np.real(wrightomega(math.log(n.i_sat / (g * n.n_vt)) + a / (g * n.n_vt))))
+    return (n.vcc - v - u) / n.ra
+
+
+def _curve_inverse(points, drop, sinks_below):
+    """Stage current [A] that gives this drop on a piecewise-linear (A, V) curve extended along
+    its end segments; below the first point's drop, the first segment continued (a stage that
+    conducts both ways) or 0 (one that cannot)."""
+    xs = [p[0] for p in points]
+    ys = [p[1] for p in points]
+    if len(xs) == 1:
+        return math.inf if drop > ys[0] else (-math.inf if sinks_below else 0.0)
+    if drop <= ys[0]:
+        if not sinks_below:
+            return 0.0
+        s = (ys[1] - ys[0]) / (xs[1] - xs[0])
+        return (drop - ys[0]) / s if s > 0 else -math.inf
+    for k in range(len(xs) - 1):
+        if drop <= ys[k + 1] or k == len(xs) - 2:
+            s = (ys[k + 1] - ys[k]) / (xs[k + 1] - xs[k])
+            return xs[k] + (drop - ys[k]) / s if s > 0 else (math.inf if drop > ys[k] else xs[k])
+    raise AssertionError
+
+
+def output_node(n: Network, v_x: float, high: bool) -> float:
+    """Voltage of the output node O given the capacitor voltage: the current balance at O (stage,
+    load, and R to the capacitor) is piecewise linear and decreasing in V_O, so its root lies
+    between two breakpoints where it changes sign and is found there exactly [derived]."""
+    def balance(vo):
+        if high:     # stage current out of the supply into O
+            i_stage = _curve_inverse(n.src_points, n.vcc - n.src_shift - vo, n.can_sink)
+        else:        # stage current sunk from O (never sourced)
+            i_stage = -_curve_inverse(n.snk_points, vo, False)
+        i_load = 0.0
+        if math.isfinite(n.load_r):
+            if n.load_to == "ground":
+                i_load = -max(0.0, (vo - n.load_vf) / n.load_r) if n.load_vf > 0 else -vo / n.load_r
+            else:
+                i_load = max(0.0, (n.vcc - n.load_vf - vo) / n.load_r) if n.load_vf > 0 \
+                    else (n.vcc - vo) / n.load_r
+        return i_stage + i_load - (vo - v_x) / n.r
+    # breakpoints of the balance: the stage curve's corners and the load's turn-on
+    if high:
+        corners = [n.vcc - n.src_shift - p[1] for p in n.src_points]
+    else:
+        corners = [p[1] for p in n.snk_points]
+    if math.isfinite(n.load_r):
+        corners.append(n.load_vf if n.load_to == "ground" else n.vcc - n.load_vf)
+    span = 10.0 * n.vcc + 10.0 + abs(v_x)
+    xs = sorted({-span, span, *corners})
+    fs = [balance(x) for x in xs]
+    for (a, fa), (b, fb) in zip(zip(xs, fs), zip(xs[1:], fs[1:])):
+        if fa >= 0.0 >= fb:
+            return a if fa == fb else a + fa * (b - a) / (fa - fb)
+    raise AssertionError(("no root at the output node", n, v_x, high))
 
 
 def current_into_x(n: Network, v, high: bool):
@@ -133,15 +220,18 @@ def current_into_x(n: Network, v, high: bool):
         return (vd - v) / n.rb
     if n.circuit == "astable-diode":
         if high:
-            # the diode clamps D at most Vd above X; it is off when RB alone keeps D lower.
+            if math.isnan(n.v_diode):
+                return shockley_feed(n, v)
+            # a fixed drop clamps D at most Vd above X; it is off when RB alone keeps D lower.
             # All of RA's current then reaches X (through RB, the diode, or both).
             vd = min(v + n.v_diode, node_d_off(n, v))
             return (n.vcc - vd) / n.ra
-        vd = node_d_on(n, v)
-        assert vd - v < n.v_diode          # diode reverse biased while discharging
-        return (vd - v) / n.rb
+        # discharging: the diode is reverse biased and leaks its reverse current from X into D
+        vd = node_d_on(n, v, n.i_rev)
+        assert vd < v
+        return (vd - v) / n.rb - n.i_rev
     if n.circuit == "astable-symmetric":
-        return (n.v_oh - v) / (n.r + n.r_oh) if high else (n.v_ol - v) / (n.r + n.r_ol)
+        return (output_node(n, v, high) - v) / n.r
     if n.circuit == "monostable":
         return (n.vcc - v) / n.r
     raise ValueError(n.circuit)
@@ -153,7 +243,7 @@ def phase(n: Network, v0: float, high: bool, t_window: float):
     reached within t_window."""
     def rhs(t, y):
         v = y[0]
-        return [(current_into_x(n, v, high) - n.g_leak * v - n.i_b) / n.c]
+        return [(current_into_x(n, v, high) - n.g_leak * v - n.i_b) / n.cap(v)]
 
     target = n.v_up if high else n.v_lo
 
@@ -217,16 +307,21 @@ def random_designs(seed: int, count: int):
         vcc = float(rng.uniform(timer.min_v, timer.max_v))
         cap = str(rng.choice(sorted(CAPACITORS)))
         rating = float(rng.choice([x for x in RATINGS if x >= vcc]))
+        diode = [dict(), dict(diode="schottky"), dict(diode_drop_v=0.7),
+                 dict(diode_saturation_current_a=log_u(1e-12, 1e-7),
+                      diode_ideality=float(rng.uniform(1.0, 2.0)))][int(rng.integers(4))]
         parts = Parts(capacitor=cap, capacitor_voltage_v=rating,
                       resistor_tempco_per_k=float(rng.choice([100e-6, -300e-6, 25e-6])),
-                      stray_capacitance_f=float(rng.choice([2e-12, 5e-12, 20e-12])))
+                      stray_capacitance_f=float(rng.choice([2e-12, 5e-12, 20e-12])), **diode)
         kind = int(rng.integers(4))
         load = [Load(), Load(resistance_ohm=log_u(300.0, 100e3)),
                 Load(resistance_ohm=log_u(300.0, 100e3), to="supply"),
                 Load(resistance_ohm=log_u(300.0, 10e3), forward_voltage_v=1.9)][kind]
         cv = float(rng.uniform(0.45, 0.8) * vcc) if rng.random() < 0.25 else math.nan
+        # leakage from typical (1) to several times typical, as the Monte Carlo draws it
         kw = dict(vcc=vcc, temperature=float(rng.uniform(-40.0, 105.0)),
-                  c=log_u(100e-12, 1000e-6), control_voltage=cv)
+                  c=log_u(100e-12, 1000e-6), control_voltage=cv,
+                  leak_factor=float(rng.choice([1.0, 1.0, log_u(1.0, 20.0)])))
         if circuit in ("astable", "astable-diode"):
             kw.update(ra=log_u(1e3, 10e6), rb=log_u(1e3, 10e6))
         else:
@@ -241,9 +336,9 @@ def model_times(circuit, timer, parts, load, kw):
 
 
 def diode_turns_off(n: Network, v_top: float) -> bool:
-    """True if, at the top of the ramp, RB alone would keep D less than Vd above X (so the
-    diode carries no current for part of the high phase)."""
-    return node_d_off(n, v_top) - v_top < n.v_diode
+    """True if, at the top of the ramp, RB alone would keep D less than a fixed drop Vd above X
+    (so the diode carries no current for part of the high phase)."""
+    return not math.isnan(n.v_diode) and node_d_off(n, v_top) - v_top < n.v_diode
 
 
 def deviations(circuit, m, sim):
@@ -259,6 +354,7 @@ def deviations(circuit, m, sim):
 def test_model_matches_simulation():
     worst, worst_case = 0.0, None
     compared, stalled, diode_off = {}, 0, 0
+    worst_by: dict = {}
     for circuit, name, parts, load, kw in random_designs(20240, N_DESIGNS):
         timer = TIMERS[name]
         m = model_times(circuit, timer, parts, load, kw)
@@ -275,6 +371,7 @@ def test_model_matches_simulation():
             diode_off += 1          # compared all the same: the model charges in two segments
         for key, dev in deviations(circuit, m, sim).items():
             assert math.isfinite(dev)
+            worst_by[(circuit, name)] = max(worst_by.get((circuit, name), 0.0), abs(dev))
             if abs(dev) > worst:
                 worst, worst_case = abs(dev), (key, circuit, name, parts, load, kw)
         compared[(circuit, name)] = compared.get((circuit, name), 0) + 1
@@ -284,10 +381,12 @@ def test_model_matches_simulation():
           f"largest relative deviation {worst:.3e} ({worst_case[0]}, {worst_case[1]}, "
           f"{worst_case[2]})")
     print("per circuit and timer:", compared)
+    print("largest deviation per circuit and timer:",
+          {f"{c} {t}": f"{v:.1e}" for (c, t), v in sorted(worst_by.items())})
     assert total >= MIN_COMPARED
     assert len(compared) == 8 and min(compared.values()) >= 15
     assert stalled >= 1                 # the stall branch was exercised
-    assert diode_off >= 10              # the diode-off segment was exercised
+    assert diode_off >= 2               # the fixed drop's diode-off segment was exercised
     assert worst < TOLERANCE, worst_case
 
 
@@ -323,10 +422,10 @@ def test_simulation_detects_a_wrong_model():
                                               ("cmos", 9.0, 1e6, 47e3),
                                               ("bipolar", 15.0, 470e3, 47e3)])
 def test_astable_diode_when_rb_is_small(name, vcc, ra, rb):
-    # diode across RB [derived: DOMAIN.md section 2] modelled as a constant drop that only
-    # conducts forward; with RB much smaller than RA the drop across RB stays below Vd
+    # diode across RB [derived] given as a constant drop that only conducts forward; with RB
+    # much smaller than RA the drop across RB stays below Vd
     timer = TIMERS[name]
-    parts = Parts(capacitor="C0G")
+    parts = Parts(capacitor="C0G", diode_drop_v=0.7)
     kw = dict(vcc=vcc, temperature=25.0, c=10e-9, ra=ra, rb=rb)
     m = model_times("astable-diode", timer, parts, Load(), kw)
     n = network("astable-diode", timer, parts, Load(), **kw)
@@ -338,9 +437,10 @@ def test_astable_diode_when_rb_is_small(name, vcc, ra, rb):
 
 def test_astable_diode_low_supply_does_not_stall():
     # CMOS timer at 2.0 V [ds-cmos: supply 2-15 V]: VCC - Vd = 1.3 V < 2/3 VCC = 1.33 V, yet with
-    # RA = RB the diode is off above 0.6 V on the capacitor, and RA+RB charge it towards 2 V
+    # RA = RB a fixed-drop diode is off above 0.6 V on the capacitor, and RA+RB charge it
+    # towards 2 V
     timer = TIMERS["cmos"]
-    parts = Parts(capacitor="C0G")
+    parts = Parts(capacitor="C0G", diode_drop_v=0.7)
     kw = dict(vcc=2.0, temperature=25.0, c=10e-9, ra=100e3, rb=100e3)
     n = network("astable-diode", timer, parts, Load(), **kw)
     sim = simulate(n)

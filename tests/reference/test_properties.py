@@ -99,7 +99,9 @@ def test_standard_astable_duty_above_half(design):
     # Exactly so in ideal mode; in the realistic model the discharge ends towards the
     # transistor's saturation voltage instead of 0 V, which lengthens tL by roughly
     # 2.2 V_sat/VCC (a few percent) [derived], so the claim needs RA to be more than that
-    # fraction of RB: RA >= RB/10 is ample
+    # fraction of RB: RA >= RB/10 is ample. A bipolar trigger input pushes about 0.5 uA into the
+    # node [ds-bip], which slows the discharge through a multi-megohm RB by far more, so the
+    # claim also needs RB x 0.5 uA well below the swing: under 2 % of VCC
     circuit, name, parts, load, kw = design
     o = run(*design, ideal=True)
     assert 0.5 < o["duty"] < 1.0
@@ -107,22 +109,24 @@ def test_standard_astable_duty_above_half(design):
     if int(o["flag_mask"]) & STALL:
         return
     assert 0.0 < o["duty"] < 1.0
-    if kw["ra"] >= kw["rb"] / 10.0:
+    if kw["ra"] >= kw["rb"] / 10.0 and kw["rb"] * 0.5e-6 < 0.02 * kw["vcc"]:
         assert 0.5 < o["duty"] < 1.0
 
 
 def test_realistic_duty_can_dip_below_half():
     # RA = 1 kOhm, RB = 100 kOhm at 5 V: the ideal duty is 101/201 = 50.2 %, but the discharge
     # transistor holds node D near 85 mV (37 mV + 9.5 Ohm x 5 mA [ds-bip]), so the capacitor
-    # discharges towards that, not 0 V: tL grows by ln((3.333-0.085)/(1.667-0.085))/ln2 - 1,
-    # about 3.7 % (a little less, as the 0.1 uA input current pulls the end point down
-    # again), more than the 1 % RA adds to tH [derived: RC law]
+    # discharges towards that, not 0 V. The trigger input pushes 0.5 uA into the node and the
+    # threshold input draws 0.1 uA [ds-bip]: a net 0.4 uA through RB lifts the end point by
+    # 40 mV to 0.125 V, so tL = RB C ln((3.333-0.125)/(1.667-0.125)) = 1.057 ln2 RB C, while
+    # the same 0.4 uA lifts the charge's end point to 5.04 V: tH = 0.681 (RA+RB) C. The duty
+    # comes out near 48.4 % [derived: RC law]
     design = ("astable", "bipolar", Parts(capacitor="C0G"), Load(),
               dict(vcc=5.0, temperature=25.0, c=10e-6, ra=1e3, rb=100e3))
     assert run(*design, ideal=True)["duty"] == pytest.approx(101 / 201, rel=1e-12)
     o = run(*design)
-    assert 0.49 < o["duty"] < 0.5
-    assert 1.02 < o["low_time_s"] / (math.log(2) * 100e3 * 10e-6) < 1.04
+    assert 0.475 < o["duty"] < 0.49
+    assert 1.045 < o["low_time_s"] / (math.log(2) * 100e3 * 10e-6) < 1.07
 
 
 # --- monotonic in R and C ----------------------------------------------------------------
@@ -147,7 +151,11 @@ def test_timing_increases_with_r_and_c(design):
     base = run(*design)
     if int(base["flag_mask"]) & STALL:
         return
-    for key, outputs in list(TIMED_BY[circuit].items()) + [("c", timing_keys(circuit))]:
+    # an electrolytic's leakage grows with C (0.01 C V) [cp]: where it rivals the timing
+    # resistor, more C also means a stronger pull to ground, which can shorten the discharge
+    # [derived], so C is stepped only for the other technologies
+    leaky = parts.technology.leakage in ("electrolytic", "tantalum")
+    for key, outputs in list(TIMED_BY[circuit].items()) + ([] if leaky else [("c", timing_keys(circuit))]):
         up = run(circuit, name, parts, load, {**kw, key: kw[key] * STEP})
         if int(up["flag_mask"]) & STALL:
             continue
@@ -183,11 +191,15 @@ def scaled_records(timer, parts, eps):
     """Timer and parts with every non-ideality that moves timing multiplied by eps."""
     t = replace(timer, **{k: eps * getattr(timer, k) for k in (
         "threshold_current_a", "trigger_current_a", "saturation_v", "saturation_ohm",
-        "high_drop_v", "high_ohm", "low_drop_v", "low_ohm", "propagation_delay_s")})
+        "source_drop_tempco_v_per_k", "propagation_delay_s")},
+        **{k: tuple((i, eps * v) for i, v in getattr(timer, k))
+           for k in ("source_drop_points", "sink_drop_points")})
     tech = parts.technology
+    # the diode as a fixed drop scaled towards the ideal one (the Shockley diode has its own
+    # property test)
     p = replace(parts, resistor_tempco_per_k=eps * parts.resistor_tempco_per_k,
                 stray_capacitance_f=eps * parts.stray_capacitance_f,
-                diode_drop_v=eps * parts.diode_drop_v, dc_bias_loss=eps * tech.dc_bias_loss)
+                diode_drop_v=eps * 0.7, dc_bias_loss=eps * tech.dc_bias_loss)
     curve = replace(tech, temp_points=tuple((temp, eps * d) for temp, d in tech.temp_points))
     return t, p, curve
 
@@ -206,7 +218,7 @@ def test_realistic_tends_to_ideal(design):
             # Parts: scale them in place for this evaluation only
             mp.setitem(CAPACITORS, curve.name, curve)
             mp.setattr(model_module, "leakage_conductance_s",
-                       lambda *a, _leak=leak, _eps=eps: _eps * _leak(*a))
+                       lambda *a, _leak=leak, _eps=eps, **k: _eps * _leak(*a, **k))
             o = run(circuit, name, p, load, kw, timer=timer)
         err = max(abs(o[k] / ideal[k] - 1.0) for k in timing_keys(circuit))
         errors.append(err if math.isfinite(err) else math.inf)
@@ -222,12 +234,12 @@ def test_scaling_reaches_every_nonideality():
     timer, parts = TIMERS["bipolar"], Parts(capacitor="electrolytic", capacitor_voltage_v=16.0)
     t1, p1, curve1 = scaled_records(timer, parts, 1.0)
     assert t1 == timer and curve1 == parts.technology
-    assert replace(p1, dc_bias_loss=None) == parts
+    assert replace(p1, dc_bias_loss=None, diode_drop_v=None) == parts
     t0, p0, curve0 = scaled_records(timer, parts, 0.0)
     kw = dict(vcc=9.0, temperature=85.0, c=10e-6, ra=47e3, rb=100e3)
     with pytest.MonkeyPatch.context() as mp:
         mp.setitem(CAPACITORS, curve0.name, curve0)
-        mp.setattr(model_module, "leakage_conductance_s", lambda *a: 0.0)
+        mp.setattr(model_module, "leakage_conductance_s", lambda *a, **k: 0.0)
         o = evaluate("astable", t0, p0, Load(resistance_ohm=1e3), **kw)
     assert float(o["high_time_s"]) == pytest.approx(math.log(2) * 147e3 * 10e-6, rel=1e-12)
     real = evaluate("astable", timer, parts, Load(resistance_ohm=1e3), **kw)
