@@ -11,21 +11,27 @@ from __future__ import annotations
 
 import itertools
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from scipy.stats import norm, qmc
 
 from .engine import (TIMING, Variation, axis_values, evaluate_block, nominal_conditions,
                      spec_fail)
 from .physics import ASTABLES, CIRCUIT_PARTS, FLAG_BITS
 from .physics.model import flag_names
+from . import values as qv
 from .study import Study
 from .variables import AXES
 
 SPEC_BIT = np.uint32(FLAG_BITS["spec-miss"])
 LIMIT_BITS = np.uint32(sum(b for k, b in FLAG_BITS.items() if k != "spec-miss"))
+STALL_BIT = np.uint32(FLAG_BITS["timing-stalls"])
 SENS_STEP = 1e-4          # relative step of the central difference for elasticities [derived]
+Z95 = float(norm.ppf(0.975))   # two-sided 95 % normal quantile, 1.96 [book]
+YIELD_FLOOR = 0.95        # without [spec] yield, a yield interval below this is "low yield" [cp]
 
 
 def main_outputs(circuit: str) -> list[str]:
@@ -53,26 +59,60 @@ def tolerance_of(study: Study, part: str) -> float:
     return study.parts.capacitor_tolerance if part == "c" else study.parts.resistor_tolerance
 
 
-def timer_bands(study: Study) -> tuple[float, float, float]:
-    """(initial accuracy, drift per K, supply sensitivity per V) of the main timing [ds-bip]."""
+def timer_bands(study: Study, which: str = "typ") -> tuple[float, float, float]:
+    """(initial accuracy, drift per K, supply sensitivity per V) of the main timing, typical
+    (which="typ") or maximum (which="max"), from the timer-model file [ds-bip], [ds-cmos]."""
     t = study.timer
-    if study.circuit == "monostable":
-        return (t.accuracy_monostable, t.drift_monostable_ppm_per_k * 1e-6,
-                t.supply_sensitivity_monostable_per_v)
-    return t.accuracy_astable, t.drift_astable_ppm_per_k * 1e-6, t.supply_sensitivity_astable_per_v
+    kind = "monostable" if study.circuit == "monostable" else "astable"
+    m = "_max" if which == "max" else ""
+    return (getattr(t, f"accuracy_{kind}{m}"), getattr(t, f"drift_{kind}{m}_ppm_per_k") * 1e-6,
+            getattr(t, f"supply_sensitivity_{kind}{m}_per_v"))
+
+
+TIMER_TERMS = ("accuracy", "drift", "supply")
 
 
 def mc_draws(study: Study, n: int) -> dict[str, np.ndarray]:
-    """Common random numbers for n builds, standardised: each part and the timer's three error
-    terms. Normal with the tolerance as 3 sigma, or uniform over the tolerance (the caller
-    scales). Drawn only from the study's seed, so independent of how designs are split."""
-    rng = np.random.default_rng(study.seed)
-    names = varied_parts(study) + ["accuracy", "drift", "supply"]
-    if study.distribution == "uniform":
-        z = rng.uniform(-1.0, 1.0, size=(len(names), n))
-    else:
-        z = rng.standard_normal(size=(len(names), n)) / 3.0
-    return dict(zip(names, z))
+    """Common deviations of n builds from scrambled Sobol points (scipy.stats.qmc, seeded by the
+    study), one dimension per part and per timer error term, the same for every design and
+    independent of how designs are split into blocks.
+
+    Parts: normal with the tolerance as 3 sigma, clipped at the tolerance (returned in [-1, 1],
+    the caller multiplies by the tolerance), or uniform over the tolerance. The timer's three
+    terms: standard normal (the caller scales by its sigma and clips at the maximum)."""
+    names = varied_parts(study) + list(TIMER_TERMS)
+    if n <= 0:
+        return {k: np.zeros(0) for k in names}
+    with warnings.catch_warnings():        # a count that is not a power of two is fine here
+        warnings.simplefilter("ignore", UserWarning)
+        u = qmc.Sobol(d=len(names), scramble=True, seed=study.seed).random(n).T
+    u = np.clip(u, 1e-12, 1 - 1e-12)
+    z = norm.ppf(u)
+    out = {}
+    for i, k in enumerate(names):
+        if k in TIMER_TERMS:
+            out[k] = z[i]
+        elif study.distribution == "uniform":
+            out[k] = 2.0 * u[i] - 1.0
+        else:
+            out[k] = np.clip(z[i] / 3.0, -1.0, 1.0)
+    return out
+
+
+def timer_sigma(study: Study) -> tuple[float, float, float]:
+    """Sigma of each timer error term: the typical figure divided by [analysis] typical_sigma."""
+    return tuple(x / study.typical_sigma for x in timer_bands(study, "typ"))
+
+
+def spread_reading(study: Study) -> str:
+    """One line saying how the Monte Carlo and the worst case read the timer's spreads."""
+    k = study.typical_sigma
+    sig = "one sigma" if k == 1 else f"{k:g} sigma"
+    dist = ("normal with the tolerance as 3 sigma, clipped at the tolerance"
+            if study.distribution == "normal" else "uniform over the tolerance")
+    return (f"a typical datasheet figure of the timer is read as {sig} ([analysis] typical_sigma "
+            f"= {k:g}); Monte Carlo builds draw them normal and clip at the maximum, the worst case "
+            f"uses the maximum (3 x typical where none is published). Part tolerances: {dist}.")
 
 
 @dataclass(frozen=True)
@@ -153,8 +193,11 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     row["feasible"] = ~limits & ~nom_fail
     row["flag_mask"] = mask
     row["wc_margin"] = _wc_margin(study, row)
+    row["stalls_at"] = stall_text(study, cond, corners, parts, sweep["flag_mask"][:, 0, :],
+                                  wc["flag_mask"])
     df = pd.DataFrame(row)
     df["series_need"], df["distinct_values"] = plainness(study, df)
+    df["uncommon"] = uncommon_parts(study, df)
     df["flags"] = flag_text(mask)
     points = points_frame(study, d_idx, c_idx, design, cond, sweep) if opt.keep_points else None
     return df, points
@@ -192,10 +235,11 @@ def _reduce(v: np.ndarray, fn) -> np.ndarray:
 
 
 def _band(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> np.ndarray | float:
-    """Relative timing band at each condition: accuracy + drift |dT| + sensitivity |dV| [ds-bip]."""
+    """Relative timing band at each condition: accuracy + drift |dT| + sensitivity |dV|, each at
+    its maximum [ds-bip]."""
     if ideal:
         return 0.0
-    acc, drift, sens = timer_bands(study)
+    acc, drift, sens = timer_bands(study, "max")
     vnom = next((a.nominal for a in study.conditions if a.key == "vcc"), study.timer.typical_v)
     t = cond.get("temperature", np.array([25.0]))
     v = cond.get("vcc", np.array([vnom]))
@@ -205,11 +249,12 @@ def _band(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> np.ndarray 
 def mc_variation(study: Study, z: dict[str, np.ndarray], builds: slice) -> Variation:
     """The part multipliers and timer error terms of a slice of Monte Carlo builds, shaped to
     broadcast against (designs, builds, conditions)."""
-    acc, drift, sens = timer_bands(study)
+    sig = timer_sigma(study)
+    top = timer_bands(study, "max")
     b = {k: v[builds][None, :, None] for k, v in z.items()}
+    t = {k: np.clip(s * b[k], -m, m) for k, s, m in zip(TIMER_TERMS, sig, top)}
     return Variation({p: 1.0 + tolerance_of(study, p) * b[p] for p in varied_parts(study)},
-                     accuracy=acc * b["accuracy"], drift_per_k=drift * b["drift"],
-                     supply_per_v=sens * b["supply"])
+                     accuracy=t["accuracy"], drift_per_k=t["drift"], supply_per_v=t["supply"])
 
 
 def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
@@ -284,6 +329,126 @@ def flag_text(mask: np.ndarray) -> np.ndarray:
     return labels[inv.ravel()]
 
 
+def _condition_words(study: Study, cond: dict[str, np.ndarray], i: int) -> str:
+    words = []
+    for a in study.conditions:
+        v = float(cond[a.key][i])
+        words.append({"temperature": f"{v:g} °C", "vcc": f"{v:g} V"}.get(a.key, f"control pin {v:g} V"))
+    return ", ".join(words) or "the nominal condition"
+
+
+def stall_text(study: Study, cond: dict[str, np.ndarray], corners: np.ndarray, parts: list[str],
+               nominal_mask: np.ndarray, corner_mask: np.ndarray) -> np.ndarray:
+    """Where each design first stalls (its capacitor never reaches the threshold): with its
+    nominal parts at a condition, else at a tolerance corner; "" where it never stalls.
+    nominal_mask is (designs, conditions), corner_mask (designs, corners, conditions)."""
+    nd, nc = nominal_mask.shape
+    nom = (nominal_mask & STALL_BIT) != 0
+    cor = ((np.broadcast_to(corner_mask, (nd, corner_mask.shape[1], nc)) & STALL_BIT) != 0
+           ).reshape(nd, -1)
+    code = np.where(nom.any(1), np.argmax(nom, 1),
+                    np.where(cor.any(1), nc + np.argmax(cor, 1), -1))
+    uniq, inv = np.unique(code, return_inverse=True)
+    labels = []
+    for u in uniq.tolist():
+        if u < 0:
+            labels.append("")
+        elif u < nc:
+            labels.append(f"stalls at {_condition_words(study, cond, u)} with nominal parts")
+        else:
+            k, c = divmod(u - nc, nc)
+            at = ", ".join(f"{p.upper()} at {corners[j, k] * tolerance_of(study, p) * 100:+g} %"
+                           for j, p in enumerate(parts))
+            labels.append(f"stalls at {_condition_words(study, cond, c)} with {at}")
+    return np.array(labels, dtype=object)[inv.ravel()]
+
+
+#: uncommon or costly parts [cp: distributors' ranges]: technology -> (below, above) in farads
+UNCOMMON_C = {"C0G": (None, 100e-9), "polypropylene": (1e-9, 10e-6), "polyester": (1e-9, 10e-6),
+              "electrolytic": (1e-6, None), "tantalum": (1e-6, None), "X7R": (None, 100e-6),
+              "X5R": (None, 100e-6), "Y5V": (None, 100e-6)}
+UNCOMMON_R = (1.0, 10e6)      # timing resistors outside 1 ohm .. 10 Mohm are hard to buy [cp]
+
+
+def uncommon_parts(study: Study, designs: pd.DataFrame) -> np.ndarray:
+    """A note per design naming a part that is uncommon or costly in its technology, or ""."""
+    nd = len(designs)
+    note = np.full(nd, "", dtype=object)
+    tech = study.parts.technology
+    if "c_f" in designs:
+        lo, hi = UNCOMMON_C.get(tech.name, (None, None))
+        c = designs["c_f"].to_numpy(float)
+        if lo is not None:
+            note[c < lo] = f"{tech.label} below {qv.format_eng(lo, 'F')} is uncommon"
+        if hi is not None:
+            note[c > hi] = f"{tech.label} above {qv.format_eng(hi, 'F')} is uncommon and costly"
+    for col in ("ra_ohm", "rb_ohm", "r_ohm"):
+        if col in designs:
+            r = designs[col].to_numpy(float)
+            bad = ((r < UNCOMMON_R[0]) | (r > UNCOMMON_R[1])) & (note == "")
+            note[bad] = "a timing resistor outside 1 Ω to 10 MΩ is uncommon"
+    return note
+
+
+# ------------------------------------------------------------------ yield interval, verdict
+
+def wilson_interval(k: np.ndarray, n: int, z: float = Z95) -> tuple[np.ndarray, np.ndarray]:
+    """95 % Wilson score interval of k successes in n trials, vectorised
+    [book: E. B. Wilson (1927), "Probable inference, the law of succession, and statistical
+    inference"]. NaN where k is NaN or n is 0."""
+    k = np.asarray(k, dtype=float)
+    if n <= 0:
+        return np.full(k.shape, np.nan), np.full(k.shape, np.nan)
+    p = k / n
+    denom = 1 + z * z / n
+    centre = (p + z * z / (2 * n)) / denom
+    half = z * np.sqrt(np.maximum(p * (1 - p) / n + z * z / (4 * n * n), 0.0)) / denom
+    return np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
+
+
+def yield_bounds(yld: np.ndarray, n: int, reach: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Wilson interval of each yield over n builds; a design screened out (its worst case lies
+    wholly outside the spec, no build can meet it) has the exact interval [0, 0]."""
+    lo, hi = wilson_interval(np.round(np.asarray(yld, float) * n), n)
+    out = ~np.asarray(reach, dtype=bool)
+    return np.where(out, 0.0, lo), np.where(out, 0.0, hi)
+
+
+#: the verdict of a design, one word or two, and what it means (one legend for every output)
+VERDICTS = {
+    "pass": "within every limit and in spec at every condition with nominal parts, and the "
+            "yield's 95 % interval reaches the yield target",
+    "low yield": "within every limit and in spec with nominal parts, but the yield's 95 % "
+                 "interval stays below the yield target",
+    "not sampled": "within every limit and in spec with nominal parts; no Monte Carlo ran for it",
+    "spec miss": "with nominal parts it misses a spec limit at some condition",
+    "limit": "breaks a part or timer limit at some condition (see Flags)",
+    "stalls": "the timer stalls (its capacitor never reaches the threshold) at some condition "
+              "or tolerance corner (see Stalls at)",
+}
+
+
+def yield_target(study: Study) -> float:
+    """The yield a pass needs: [spec] yield, else YIELD_FLOOR."""
+    return study.yield_min if study.yield_min is not None else YIELD_FLOOR
+
+
+def verdicts(study: Study, d: pd.DataFrame, n_mc: int) -> np.ndarray:
+    """The verdict word of each design (keys of VERDICTS), from its flags, stall text and yield
+    interval: stalls, then limit, then spec miss, then the yield."""
+    mask = d["flag_mask"].to_numpy().astype(np.uint32)
+    stalls = d["stalls_at"].fillna("").astype(str).to_numpy() != ""
+    hi = d["yield_hi"].to_numpy(float)
+    out = np.full(len(d), "pass", dtype=object)
+    if study.spec and n_mc > 0:
+        out[np.isnan(hi)] = "not sampled"
+        out[hi < yield_target(study)] = "low yield"
+    out[((mask & SPEC_BIT) != 0) | ~d["feasible"].to_numpy(bool)] = "spec miss"
+    out[(mask & LIMIT_BITS & ~STALL_BIT) != 0] = "limit"
+    out[stalls] = "stalls"
+    return out
+
+
 # ------------------------------------------------------------------ ranking
 
 def plainness(study: Study, designs: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
@@ -307,22 +472,68 @@ def plainness(study: Study, designs: pd.DataFrame) -> tuple[np.ndarray, np.ndarr
 
 
 RANK_KEYS = ["design", "feasible", "yield", "wc_margin", "supply_current_a_max", "series_need",
-             "distinct_values"]
+             "distinct_values", "uncommon", "flag_mask", "stalls_at"]
 
 
-def rank_designs(designs: pd.DataFrame) -> np.ndarray:
-    """Rank of each row (1 = the pick): feasible first, then yield, worst-case margin, supply
-    current, plainer parts (coarser series, fewer distinct values), design number."""
+def ranks_by_current(study: Study) -> bool:
+    """Ties are broken by supply current in a battery study or one with a supply-current spec."""
+    return study.supply == "battery" or any(s.key == "supply_current" for s in study.spec)
+
+
+def rank_designs(designs: pd.DataFrame, by_current: bool = False,
+                 yield_min: float | None = None, eligible: np.ndarray | None = None) -> np.ndarray:
+    """Rank of each row (1 = the pick).
+
+    Feasible designs first. Among them, the leaders: with a yield target (yield_min), every
+    design whose yield interval reaches it; without one, every design whose yield interval
+    overlaps the best yield's (a tie within Monte Carlo noise). Leaders go by lower supply
+    current (by_current) or wider worst-case margin, then plainer parts (no uncommon part,
+    coarser series, fewer distinct values). The rest go by yield, worst-case margin, supply
+    current, plainer parts. Needs yield_lo/yield_hi columns for the ties (else: no ties).
+    `eligible` narrows the leaders (the pipeline passes the designs whose verdict is pass, when
+    any is), so a tie never hands the pick to a design with a worse verdict."""
+    n = len(designs)
+    feas = designs["feasible"].to_numpy(dtype=bool)
+    elig = feas if eligible is None else feas & np.asarray(eligible, dtype=bool)
+    y = designs["yield"].to_numpy(float)
+    lo = designs["yield_lo"].to_numpy(float) if "yield_lo" in designs else np.full(n, np.nan)
+    hi = designs["yield_hi"].to_numpy(float) if "yield_hi" in designs else np.full(n, np.nan)
+    current = designs["supply_current_a_max"].fillna(np.inf).to_numpy(float)
+    margin = designs["wc_margin"].to_numpy(float)
+    odd = (designs["uncommon"].fillna("").astype(str).to_numpy() != "").astype(float) \
+        if "uncommon" in designs else np.zeros(n)
+    series = designs["series_need"].to_numpy(float)
+    distinct = designs["distinct_values"].to_numpy(float)
+    if yield_min is not None:
+        lead = elig & (hi >= yield_min)
+        key = current
+    else:
+        ok = elig & np.isfinite(y) & np.isfinite(lo)
+        lead = np.zeros(n, dtype=bool)
+        if ok.any():
+            best_lo = lo[ok][np.argmax(y[ok])]
+            lead = ok & (hi >= best_lo)
+        key = current if by_current else -margin
+    tier = np.where(lead, 0, np.where(feas, 1, 2))
+    yy = -np.nan_to_num(y, nan=-1.0)
     order = np.lexsort((designs["design"].to_numpy(),
-                        designs["distinct_values"].to_numpy(),
-                        designs["series_need"].to_numpy(),
-                        designs["supply_current_a_max"].fillna(np.inf).to_numpy(),
-                        -designs["wc_margin"].to_numpy(),
-                        -designs["yield"].fillna(-1.0).to_numpy(),
-                        ~designs["feasible"].to_numpy(dtype=bool)))
-    rank = np.empty(len(designs), dtype=np.int64)
-    rank[order] = np.arange(1, len(designs) + 1)
+                        np.where(lead, 0.0, distinct), np.where(lead, 0.0, series),
+                        np.where(lead, distinct, odd), np.where(lead, series, current),
+                        np.where(lead, odd, -margin), np.where(lead, key, yy), tier))
+    rank = np.empty(n, dtype=np.int64)
+    rank[order] = np.arange(1, n + 1)
     return rank
+
+
+def finish_keys(study: Study, keys: pd.DataFrame, n_mc: int) -> pd.DataFrame:
+    """Add the yield interval, the verdict and the rank to the per-design keys (in place)."""
+    keys["yield_lo"], keys["yield_hi"] = yield_bounds(keys["yield"].to_numpy(float), n_mc,
+                                                      keys["reach"].to_numpy(bool))
+    keys["verdict"] = verdicts(study, keys, n_mc)
+    good = keys["verdict"].to_numpy() == "pass"
+    keys["rank"] = rank_designs(keys, ranks_by_current(study), study.yield_min,
+                                good if good.any() else None)
+    return keys
 
 
 def analyse_designs(study: Study, start: int, stop: int, opt: Options = Options()) -> pd.DataFrame:
@@ -339,4 +550,8 @@ def analyse_designs(study: Study, start: int, stop: int, opt: Options = Options(
         for c in mc_columns(study)[2:]:
             df[c] = np.nan
     tail = mc_columns(study)[1:]
-    return df[[c for c in df.columns if c not in tail] + tail]
+    df = df[[c for c in df.columns if c not in tail] + tail]
+    df["yield_lo"], df["yield_hi"] = yield_bounds(df["yield"].to_numpy(float), n_mc,
+                                                  df["reach"].to_numpy(bool))
+    df["verdict"] = verdicts(study, df, n_mc)
+    return df

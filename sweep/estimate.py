@@ -24,8 +24,9 @@ class Estimate:
     points: int
     evaluations: int          # sweep + worst-case corners + Monte Carlo (at most MC_DESIGNS designs)
     bytes: int                # peak memory, roughly
-    seconds: float            # one process
+    seconds: float            # one process: the analysis and writing every output
     rate: float               # evaluations per second measured here
+    write_seconds: float = 0.0   # of which writing the workbook, page and tables
 
 
 def estimate(study: Study, sample: int = 20_000) -> Estimate:
@@ -42,22 +43,62 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     k = max(1, min(nd, sample // max(nc, 1)))
     analyse_block(study, 0, 1, Options(monte_carlo=0))         # warm up
     t0 = time.perf_counter()
-    analyse_block(study, 0, k, Options(monte_carlo=0))
+    sample_rows, _ = analyse_block(study, 0, k, Options(monte_carlo=0))
+    reach = float(sample_rows["reach"].mean()) if len(sample_rows) else 1.0
     per_point = max(time.perf_counter() - t0, 1e-6) / (k * nc)
     cond = axis_values(study.conditions, np.arange(min(nc, sample)))
     design = axis_values(study.design, np.arange(k))
     t0 = time.perf_counter()
     evaluate_block(study, design, cond)
     rate = k * len(next(iter(cond.values()))) / max(time.perf_counter() - t0, 1e-6)
+    # the Monte Carlo runs only on designs whose worst case can still meet the spec: the share
+    # of the sample that can
+    write = write_seconds(study, k, full_nc)
     nc = full_nc
-    seconds = nd * nc * per_point + min(nd, MC_DESIGNS) * nc * study.monte_carlo / rate
+    seconds = nd * nc * per_point + min(nd * reach, MC_DESIGNS) * nc * study.monte_carlo / rate
+    seconds += write
     # memory: the libraries, a few blocks of arrays, the ranking keys of every design, and the
     # best designs' full rows kept for the workbook [measured: 685 MiB at 1e8 points]
     from .pipeline import WORKBOOK_DESIGNS
     ncol = 7 * len(summary_outputs(study)) + 20
     mem = (250 * 2**20 + max(DEFAULT_CHUNK, nc) * 16 * 80 * 8 + nd * 10 * 8 * 3
            + min(nd, WORKBOOK_DESIGNS) * ncol * 8 * 4)
-    return Estimate(nd * nc, evals, int(mem), seconds, rate)
+    return Estimate(nd * nc, evals, int(mem), seconds, rate, write)
+
+
+PAGE_SECONDS = 0.5      # the chart page: plotly's script and six charts [measured: 0.45-0.53 s
+                        # for the example studies]
+PAGE_DESIGN_SECONDS = 20e-6   # per design drawn on the page (up to its cap) [measured]
+
+
+def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> float:
+    """Time to write the outputs: the workbook's cells at the rate measured here on a sample of
+    this study's own point rows, plus the chart page and the parquet tables. n_conditions: the
+    full study's count when `study` is a thinned sample."""
+    import tempfile
+    from pathlib import Path
+
+    import xlsxwriter
+
+    from .pipeline import PARQUET_POINTS, WORKBOOK_DESIGNS, WORKBOOK_POINTS
+    from .writers.page import MAX_DESIGNS
+    from .writers.workbook import _columns, _Styles, _write_table
+    nd, nc = study.n_designs, n_conditions or study.n_conditions
+    _, pts = analyse_block(study, 0, max(1, min(k, 2000 // max(study.n_conditions, 1))), Options(monte_carlo=0,
+                                                                                keep_points=True))
+    with tempfile.TemporaryDirectory() as tmp:
+        wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
+        ws = wb.add_worksheet("Points")
+        t0 = time.perf_counter()
+        _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
+        wb.close()
+        cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
+    n_cols = pts.shape[1]
+    d_cols = 7 * len(summary_outputs(study)) + 25
+    cells = min(nd * nc, WORKBOOK_POINTS) * n_cols + min(nd, WORKBOOK_DESIGNS) * d_cols
+    parquet = (min(nd * nc, PARQUET_POINTS) * n_cols + nd * d_cols) * 0.05 * cell_s  # [measured:
+    # parquet takes about a twentieth of a workbook cell's time per value]
+    return cells * cell_s + parquet + PAGE_SECONDS + min(nd, MAX_DESIGNS) * PAGE_DESIGN_SECONDS
 
 
 def _thinned(study: Study, most: int) -> Study:

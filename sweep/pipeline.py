@@ -20,8 +20,8 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 from . import __version__
-from .analysis import (RANK_KEYS, Options, analyse_block, mc_columns, monte_carlo_block,
-                       points_frame, rank_designs)
+from .analysis import (RANK_KEYS, Options, analyse_block, finish_keys, mc_columns,
+                       monte_carlo_block, points_frame, spread_reading)
 from .engine import DEFAULT_CHUNK, axis_values, design_blocks, evaluate_block
 from .errors import InputError
 from .reporting import build_report
@@ -157,7 +157,7 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
             mc = pd.concat(frames, ignore_index=True)
         y = pd.Series(mc["yield"].to_numpy(), index=mc["design"].to_numpy())
         keys["yield"] = keys["design"].map(y).where(lambda v: v.notna(), keys["yield"])
-    keys["rank"] = rank_designs(keys)
+    finish_keys(study, keys, n_mc)
     return Analysis(keys, table, mc, streamed, {k: v for k, v in screened.items() if v})
 
 
@@ -171,7 +171,7 @@ def ranked_designs(study: Study, an: Analysis, limit: int = WORKBOOK_DESIGNS) ->
         df = pf.read_row_group(i).to_pandas()
         frames.append(df[df["design"].isin(wanted)])
     d = pd.concat(frames, ignore_index=True).drop(columns=["yield"])
-    d = d.merge(top, on="design").merge(an.keys[["design", "yield"]], on="design")
+    d = d.merge(top, on="design").merge(an.keys[["design", *DECIDED]], on="design")
     if len(an.mc):
         d = d.merge(an.mc.drop(columns=["yield"]), on="design", how="left")
     d["screened"] = np.where(d["screened"] != "", d["screened"],
@@ -181,17 +181,21 @@ def ranked_designs(study: Study, an: Analysis, limit: int = WORKBOOK_DESIGNS) ->
     return d[cols]
 
 
+#: per-design figures decided after the Monte Carlo: the yield, its interval and the verdict
+DECIDED = ["yield", "yield_lo", "yield_hi", "verdict"]
+
+
 def write_designs_table(study: Study, an: Analysis, path: Path) -> None:
     """Every design with its rank and Monte Carlo figures, in design order, batch by batch."""
     rank = pd.Series(an.keys["rank"].to_numpy(), index=an.keys["design"].to_numpy())
-    yld = pd.Series(an.keys["yield"].to_numpy(), index=an.keys["design"].to_numpy())
+    decided = an.keys.set_index("design")[DECIDED]
     mc = an.mc.drop(columns=["yield"]).set_index("design") if len(an.mc) else None
     pf = pq.ParquetFile(an.table)
     with TableWriter(path) as out:
         for i in range(pf.num_row_groups):
             df = pf.read_row_group(i).to_pandas()
             df.insert(0, "rank", df["design"].map(rank).to_numpy())
-            df["yield"] = df["design"].map(yld).to_numpy()
+            df = df.drop(columns=["yield"]).join(decided, on="design")
             if mc is not None:
                 df = df.join(mc, on="design")
             else:
@@ -385,6 +389,7 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         wb_pts = points_of(study, order, workbook_points, ideal)
         rank_of = dict(zip(order, ranked["rank"]))
         wb_pts.insert(0, "rank", wb_pts["design"].map(rank_of))
+        wb_pts.insert(2, "verdict", wb_pts["design"].map(dict(zip(order, ranked["verdict"]))))
         if len(wb_pts) < study.n_points:
             note = (f"This sheet holds {len(wb_pts):,} of {study.n_points:,} points, best-ranked designs "
                     f"first. {parquet_note}")
@@ -402,8 +407,9 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         report = build_report(study, ranked, wb_pts, note, ideal, info)
         write_workbook(tmp["workbook"], report)
         write_page(tmp["page"], report)
-        info["meets_spec"] = report.run_info["meets_spec"]
-        info["worst_case_in_spec"] = report.run_info["worst_case_in_spec"]
+        for k in ("verdict", "meets_spec", "worst_case_in_spec", "yield", "yield_lo", "yield_hi",
+                  "yield_target", "typical_sigma", "spreads"):
+            info[k] = report.run_info[k]
         info["seconds_total"] = round(time.perf_counter() - t0, 3)
         info["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
         info["sha256"] = {final[k].name: _sha256(tmp[k]) for k in ("points", "designs", "workbook", "page")}

@@ -3,7 +3,7 @@
 A writer (workbook, chart page) only lays out what is here. Column names of every DataFrame are
 machine names from sweep.variables (or the per-design names `<output>_nom`, `_min`, `_max`,
 `_wc_min`, `_wc_max`, `_mc_mean`, `_mc_std`, `yield`, `sn_db`, `sens_<part>`, `feasible`,
-`rank`, `flags`).
+`rank`, `flags`, `verdict`, `yield_lo`, `yield_hi`, `stalls_at`, `uncommon`).
 """
 from __future__ import annotations
 
@@ -48,3 +48,4 @@ class Report:
     mc_samples: pd.DataFrame | None = None        # the pick's Monte Carlo builds: main output per
                                                   # build and condition (column 'value')
     temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value
+    verdicts: dict[str, str] = field(default_factory=dict)  # verdict word -> what it means

@@ -6,7 +6,8 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .analysis import main_outputs, mc_draws, mc_variation, tolerance_of
+from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
+                       tolerance_of, yield_target)
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
@@ -33,37 +34,48 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
     lines: list[tuple[str, str]] = []
     best = designs.iloc[0]
     main = main_outputs(study.circuit)
-    y = best["yield"]
-    meets = bool(best["feasible"] and (not study.spec or not np.isfinite(y) or y > 0))
+    verdict = str(best.get("verdict", ""))
+    meets = verdict == "pass"
+    stalls = str(best.get("stalls_at", "") or "")
     lines.append(("Designs evaluated", f"{study.n_designs:,} x {study.n_conditions:,} conditions"
                   f" = {study.n_points:,} points"))
-    if not meets:
-        why = ("no design is free of limit flags with its nominal figures in spec"
-               if not designs["feasible"].any() else "no Monte Carlo build of any design meets every spec limit")
-        lines.append(("Verdict", f"NO DESIGN MEETS THE SPEC: {why}. The best candidate is shown; "
-                               "widen the ranges or relax the spec."))
-    else:
-        misses = worst_case_misses(study, best)
-        if misses:
-            y_text = f" Its Monte Carlo yield ({y * 100:.1f} %) says how often a build meets it." \
-                if np.isfinite(y) else ""
-            lines.append(("Verdict", "Design 1 in the ranking is the pick, but its worst case misses "
-                                     "the spec: " + "; ".join(misses) + "." + y_text))
-        else:
-            lines.append(("Verdict", "Design 1 in the ranking is the pick: it meets every spec limit "
-                                     "even in the worst case."))
+    v_text = f"{verdict}: {VERDICTS.get(verdict, '')}."
+    if not meets and not (designs["verdict"] == "pass").any():
+        v_text = (f"NO DESIGN MEETS THE SPEC. The best candidate's verdict is {v_text} Widen the "
+                  "ranges or relax the spec.")
+    if verdict == "low yield":
+        v_text += (f" Target {yield_target(study) * 100:g} %"
+                   + ("" if study.yield_min is not None else " (the default; set [spec] yield)") + ".")
+    misses = worst_case_misses(study, best)
+    if misses and verdict in ("pass", "low yield", "not sampled"):
+        v_text += " Its worst case misses the spec: " + "; ".join(misses) + "."
+    lines.append(("Verdict", v_text))
     lines.append(("Pick", f"design {int(best['design'])}: {design_text(study, best) or 'no timing parts'}"))
     for m in main:
-        lines.append((f"{VARIABLES[m].label} nominal", eng(best[f"{m}_nom"], m)))
+        lines.append((f"{VARIABLES[m].label} nominal", eng(best[f"{m}_nom"], m) if np.isfinite(best[f"{m}_nom"])
+                      else f"none: {stalls or 'no figure'}"))
+        lo, hi = best[f"{m}_wc_min"], best[f"{m}_wc_max"]
         lines.append((f"{VARIABLES[m].label} worst case",
-                      f"{eng(best[f'{m}_wc_min'], m)} to {eng(best[f'{m}_wc_max'], m)}"))
+                      f"{eng(lo, m)} to {eng(hi, m)}" if np.isfinite(lo) and np.isfinite(hi)
+                      else f"none: {stalls or 'no figure'}"))
     if study.spec:
         y = best["yield"]
-        lines.append(("Yield", f"{y * 100:.1f} % of {study.monte_carlo:,} Monte Carlo builds meet every "
-                               "spec limit at every condition" if np.isfinite(y) else
-                      "not sampled ([analysis] monte_carlo = 0)"))
-        lines.append(("Worst-case margin", f"{best['wc_margin'] * 100:+.1f} % to the nearest spec limit"
-                      if np.isfinite(best["wc_margin"]) else "-"))
+        if np.isfinite(y):
+            y_text = (f"{y * 100:.1f} % of {study.monte_carlo:,} Monte Carlo builds meet every spec "
+                      f"limit at every condition (95 % interval {best['yield_lo'] * 100:.1f} to "
+                      f"{best['yield_hi'] * 100:.1f} %; target {yield_target(study) * 100:g} %)")
+        else:
+            y_text = ("not sampled ([analysis] monte_carlo = 0)" if study.monte_carlo == 0
+                      else f"not sampled: {best.get('screened', '') or 'no Monte Carlo ran'}")
+        lines.append(("Yield", y_text))
+        margin = best["wc_margin"]
+        lines.append(("Worst-case margin", f"{margin * 100:+.1f} % to the nearest spec limit"
+                      if np.isfinite(margin) else
+                      f"none: the worst case {stalls}" if stalls else "none: no worst-case figure"))
+    if str(best.get("uncommon", "") or ""):
+        lines.append(("Uncommon part", f"{best['uncommon']}; check availability and price, or "
+                                       "widen the ranges for a plainer part"))
+    lines.append(("Timer spreads", spread_reading(study)))
     p, given = study.parts, study.raw.get("parts", {})
 
     def source(key: str, parts: tuple[str, ...]) -> str:
@@ -80,8 +92,13 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
                    f"({source('capacitor_tolerance', ('c',))}; {p.technology.label})")
     if tol:
         lines.append(("Tolerances assumed", ", ".join(tol)))
-    lines.append(("Supply current", f"{eng(best['supply_current_a_nom'], 'supply_current_a')} nominal, "
-                                    f"{eng(best['supply_current_a_max'], 'supply_current_a')} at most"))
+    stalls = str(best.get("stalls_at", "") or "")
+
+    def figure(col: str) -> str:
+        v = best[col]
+        return eng(v, "supply_current_a") if np.isfinite(v) else f"none ({stalls or 'no figure'})"
+    lines.append(("Supply current", f"{figure('supply_current_a_nom')} nominal, "
+                                    f"{figure('supply_current_a_max')} at most"))
     if "idle_current_a_nom" in best:
         lines.append(("Idle current", eng(best["idle_current_a_nom"], "idle_current_a")))
     lines.append(("Flags of the pick", best["flags"] or "none"))
@@ -190,19 +207,37 @@ NOTES = [
                         "checked against the timer file's limit [mem], and the Dump time column "
                         "says how long it lasts."),
     ("Worst case", "Every tolerance corner of every timing part at every condition point, with the "
-                   "timer's initial accuracy, drift (ppm/K) and supply sensitivity (%/V) as a band "
-                   "on the timing [ds-bip]."),
-    ("Monte Carlo", "Builds draw each part normal with the tolerance as 3 sigma (or uniform), the "
-                    "same builds for every design (common random numbers); each build is evaluated "
-                    "at every condition point. Yield = share of builds meeting every spec limit "
-                    "at every condition."),
+                   "timer's initial accuracy, drift (ppm/K) and supply sensitivity (%/V) at their "
+                   "maximum figures (3 x typical where the data gives none) as a band on the "
+                   "timing [ds-bip]."),
+    ("Monte Carlo", "Builds are scrambled Sobol points (scipy.stats.qmc, seeded by the study's "
+                    "seed), mapped through the normal or uniform inverse distribution; the same "
+                    "builds for every design, whatever the block split. Each part is normal with "
+                    "its tolerance as 3 sigma, clipped at the tolerance (or uniform over it); the "
+                    "timer's accuracy, drift and supply sensitivity are normal with sigma = the "
+                    "typical figure / [analysis] typical_sigma, clipped at the maximum. Each build "
+                    "is evaluated at every condition point. Yield = share of builds meeting every "
+                    "spec limit at every condition, with its 95 % Wilson score interval [book: "
+                    "E. B. Wilson, 1927]."),
     ("Signal-to-noise", "Taguchi nominal-the-best: 10 log10(mean^2 / variance) of the main output "
                         "over the Monte Carlo builds and conditions [book: Taguchi methods]."),
     ("Sensitivity", "Elasticity d ln y / d ln x of the main output to each part, by central "
                     "difference at the nominal condition."),
-    ("Ranking", "Feasible designs first (no limit flag at any condition, nominal in spec), then "
-                "yield, worst-case margin, supply current, and plainer parts (coarser series, "
-                "fewer distinct values)."),
+    ("Ranking", "Feasible designs first (no limit flag at any condition, nominal in spec). Yields "
+                "whose 95 % intervals overlap the best yield's are a tie (when any design passes, only "
+                "passing designs lead): those designs go by "
+                "lower supply current in a battery study or one with a supply-current spec, else "
+                "by wider worst-case margin, then plainer parts (no uncommon part, coarser "
+                "series, fewer distinct values). With [spec] yield = { min = ... } the leaders "
+                "are the designs whose interval reaches the target, lowest supply current first. "
+                "The rest go by yield, worst-case margin, supply current, plainer parts."),
+    ("Verdict", "One word per design, the same in every output: "
+                + "; ".join(f"{k} = {v}" for k, v in VERDICTS.items())
+                + ". Without [spec] yield the yield target is 95 %."),
+    ("Uncommon parts", "C0G/NP0 above 100 nF, film below 1 nF or above 10 µF, electrolytic or "
+                       "tantalum below 1 µF, class II ceramics above 100 µF and timing resistors "
+                       "outside 1 Ω to 10 MΩ are uncommon or costly [cp]; such designs carry a "
+                       "note and rank after plainer ties."),
     ("Source tags", "[std] published standard (IEC 60063, IEC 60062, EIA-198); [book] textbook; "
                     "[ds-bip]/[ds-cmos] typical datasheet figure, no maker named; [cp] common "
                     "practice; [mem] from memory, uncertain; [derived] worked out from the RC law."),
@@ -223,16 +258,25 @@ def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
             unit = "ohm" if a.key != "c" else "F"
             is_c = a.key == "c"
             rows.append({
-                "rank": int(d["rank"]), "design": int(d["design"]), "ref": REFS[a.key], "value": v,
+                "rank": int(d["rank"]), "design": int(d["design"]), "verdict": d.get("verdict", ""),
+                "ref": REFS[a.key], "value": v,
                 "unit": "Ω" if not is_c else "F", "value_text": qv.format_eng(v, unit),
                 "rkm": qv.rkm_code(v, unit), "series": qv.series_of(v) or "-",
                 "tolerance": tolerance_of(study, a.key),
                 "technology": tech.label if is_c else
                 f"resistor, {study.parts.resistor_tempco_per_k * 1e6:g} ppm/K",
                 "rating": (f"{study.parts.capacitor_voltage_v:g} V" if is_c
-                           else f"{study.parts.resistor_power_w:g} W")})
-    return pd.DataFrame(rows, columns=["rank", "design", "ref", "value", "unit", "value_text", "rkm",
-                                       "series", "tolerance", "technology", "rating"])
+                           else f"{study.parts.resistor_power_w:g} W"),
+                "note": _part_note(study, a.key, v)})
+    return pd.DataFrame(rows, columns=["rank", "design", "verdict", "ref", "value", "unit", "value_text", "rkm",
+                                       "series", "tolerance", "technology", "rating", "note"])
+
+
+def _part_note(study: Study, key: str, value: float) -> str:
+    """The uncommon-part note of one part value, or ""."""
+    from .analysis import uncommon_parts
+    col = AXES[key][0]
+    return str(uncommon_parts(study, pd.DataFrame({col: [value]}))[0])
 
 
 def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
@@ -243,6 +287,8 @@ def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     ideal = evaluate_block(study, design, nomc, ideal=True, with_spec=False)
     real = evaluate_block(study, design, nomc, ideal=False, with_spec=False)
     df = pd.DataFrame({"rank": top["rank"].to_numpy(), "design": top["design"].to_numpy()})
+    if "verdict" in top:
+        df["verdict"] = top["verdict"].to_numpy()
     for a in study.design:
         df[a.column] = top[a.column].to_numpy()
     for k in ("vcc", "control_voltage"):
@@ -310,12 +356,13 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     """The ranked designs with the columns a reviewer reads first on the left: rank, parts,
     verdict, yield and margins, then the main outputs, the spec outputs, the rest."""
     from .analysis import summary_outputs
-    first = ["rank", "design"] + [a.column for a in study.design] + ["feasible", "yield", "wc_margin", "sn_db"]
+    first = (["rank", "design"] + [a.column for a in study.design]
+             + ["verdict", "yield", "yield_lo", "yield_hi", "wc_margin", "stalls_at", "feasible", "sn_db"])
     outs = []
     for o in summary_outputs(study):
         outs += [f"{o}_{k}" for k in STATS]
     sens = [c for c in designs.columns if c.startswith("sens_")]
-    tail = ["series_need", "distinct_values", "screened", "flags"]
+    tail = ["series_need", "distinct_values", "uncommon", "screened", "flags"]
     cols = [c for c in first + outs + sens + tail if c in designs.columns]
     return designs[cols]
 
@@ -323,8 +370,16 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
     lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
-    run_info = dict(run_info, meets_spec=meets,
-                    worst_case_in_spec=meets and not worst_case_misses(study, designs.iloc[0]))
+    best = designs.iloc[0]
+
+    def num(x):
+        return round(float(x), 6) if np.isfinite(x) else None
+    run_info = dict(run_info, verdict=str(best["verdict"]), meets_spec=meets,
+                    worst_case_in_spec=meets and not worst_case_misses(study, best),
+                    **{"yield": num(best["yield"]), "yield_lo": num(best["yield_lo"]),
+                       "yield_hi": num(best["yield_hi"])},
+                    yield_target=yield_target(study), typical_sigma=study.typical_sigma,
+                    spreads=spread_reading(study))
     return Report(
         name=study.name, title=study.title, circuit=study.circuit, timer_name=study.timer.name,
         ideal=ideal, main_output=chart_output(study),
@@ -335,6 +390,8 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         designs=designs_for_people(study, designs),
         parts=parts_list(study, designs), check=check_table(study, designs),
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
-        study_rows=study_rows(study), notes=NOTES + ([("Notes from the study", study.notes)] if study.notes else []),
+        study_rows=study_rows(study),
+        notes=NOTES + [("Timer spreads", spread_reading(study))]
+        + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
-        temperature_curves=temperature_curves(study, designs, ideal))
+        temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS))

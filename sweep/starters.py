@@ -82,6 +82,6 @@ seed = 1
 def starter_text(circuit: str) -> str:
     if circuit not in CIRCUITS:
         raise InputError("", "circuit", f"unknown circuit {circuit!r}; known: {', '.join(CIRCUITS)}")
-    return (_HEAD.format(what=f"a {circuit} starter (edit every value)", title=f"My {circuit} timer",
+    return (_HEAD.format(what=f"{'an' if circuit[0] in 'aeiou' else 'a'} {circuit} starter (edit every value)", title=f"My {circuit} timer",
                          circuit=circuit)
             + _PARTS[circuit].format() + _TAIL.format(spec=_SPEC[circuit].format()))

@@ -55,10 +55,13 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
              "kind": ("text", "resistive | led | relay | inductive | mains-switching (sets the cautions)")},
     "spec": {"frequency": ("Hz", ""), "duty": ("", ""), "pulse_width": ("s", ""),
              "supply_current": ("A", ""), "idle_current": ("A", ""), "output_current": ("A", ""),
-             "power": ("W", "")},
+             "power": ("W", ""),
+             "yield": ("%", "{ min = 0.99 }: the pick is the lowest-current design whose yield "
+                            "interval reaches it")},
     "analysis": {"monte_carlo": ("int", "builds per design, default 1000"),
                  "seed": ("int", "random seed, default 1"),
                  "distribution": ("text", "normal (tolerance = 3 sigma) | uniform"),
+                 "typical_sigma": ("", "sigmas in a datasheet's typical spread, default 1"),
                  "top": ("int", "designs detailed in the parts list and checks, default 10")},
 }
 SPEC_COLUMNS = {"frequency": "frequency_hz", "duty": "duty", "pulse_width": "pulse_width_s",
@@ -123,6 +126,8 @@ class Study:
     distribution: str
     top: int
     raw: dict = field(repr=False, compare=False)
+    typical_sigma: float = 1.0           # a typical timer spread is this many sigma
+    yield_min: float | None = None       # [spec] yield = { min = ... }
 
     @property
     def axes(self) -> tuple[Axis, ...]:
@@ -337,10 +342,15 @@ class _Parser:
         top = self.quantity("analysis", "top", an.get("top", 10), "int")
         if not 1 <= top <= 1000:
             self.fail("analysis", "top", "must be between 1 and 1000")
+        ts = self.quantity("analysis", "typical_sigma", an.get("typical_sigma", 1.0), "")
+        if not 0.5 <= ts <= 6.0:
+            self.fail("analysis", "typical_sigma", "must be between 0.5 and 6 (how many sigma a "
+                      "datasheet's typical spread is; 1 reads it as one sigma)")
         return Study(path=self.fname, name=name, title=title, notes=st.get("notes", ""),
                      circuit=circuit, supply=supply, timer_spec=timer_spec, timer=timer, design=design,
                      conditions=conditions, parts=parts, load=load, spec=spec, monte_carlo=mc,
-                     seed=seed, distribution=dist, top=top, raw=d)
+                     seed=seed, distribution=dist, top=top, raw=d, typical_sigma=float(ts),
+                     yield_min=self.yield_spec())
 
     # -- ranges
     def axes(self, section: str, circuit: str) -> tuple[Axis, ...]:
@@ -550,9 +560,23 @@ class _Parser:
             self.fail("load", "forward_voltage", "must not be negative")
         return Load(resistance_ohm=r, to=to, forward_voltage_v=vf, kind=kind)
 
+    def yield_spec(self) -> float | None:
+        """[spec] yield = { min = ... }: the share of builds the pick must reach."""
+        value = self.data.get("spec", {}).get("yield")
+        if value is None:
+            return None
+        if not isinstance(value, dict) or set(value) != {"min"}:
+            self.fail("spec", "yield", "must be { min = ... }, e.g. { min = 0.99 } or { min = \"99%\" }")
+        y = self.quantity("spec", "yield.min", value["min"], "%")
+        if not 0 < y < 1:
+            self.fail("spec", "yield.min", "must lie between 0 and 1 (or 0 % and 100 %), exclusive")
+        return float(y)
+
     def spec(self, circuit) -> tuple[SpecLimit, ...]:
         out = []
         for key, value in self.data.get("spec", {}).items():
+            if key == "yield":
+                continue
             unit = SCHEMA["spec"][key][0]
             if key in SPEC_CIRCUITS and circuit not in SPEC_CIRCUITS[key]:
                 self.fail("spec", key, f"does not apply to circuit {circuit} (only to "

@@ -62,6 +62,11 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("series_need", "Series needed", "", "int", "Coarsest IEC 60063 series holding every part (0 = E3 ... 6 = E192, 7 = none)"),
     _V("distinct_values", "Distinct resistors", "", "int", "Different resistor values in the design"),
     _V("screened", "Screened out", "", "text", "Why the Monte Carlo was skipped (yield 0)"),
+    _V("yield_lo", "Yield 95 % low", "", "pct", "Lower end of the yield's 95 % Wilson score interval"),
+    _V("yield_hi", "Yield 95 % high", "", "pct", "Upper end of the yield's 95 % Wilson score interval"),
+    _V("verdict", "Verdict", "", "text", "One word per design: pass, low yield, not sampled, spec miss, limit, stalls"),
+    _V("stalls_at", "Stalls at", "", "text", "Where the timer first stalls: condition and tolerance corner"),
+    _V("uncommon", "Uncommon part", "", "text", "A part that is uncommon or costly in its technology"),
     _V("condition", "Condition", "", "int", "Condition number within the design"),
 ]}
 

@@ -51,6 +51,12 @@ def make_report(title: str = "Demo flasher (invented scenario)", n_designs: int 
     designs = designs.sort_values(["feasible", "yield"], ascending=False).reset_index(drop=True)
     designs["rank"] = np.arange(1, nd + 1)
     designs["flags"] = np.where(designs["feasible"], "", "spec-miss")
+    from sweep.analysis import VERDICTS, yield_bounds
+    designs["yield_lo"], designs["yield_hi"] = yield_bounds(designs["yield"], 500, np.ones(nd, bool))
+    designs["verdict"] = np.where(designs["feasible"],
+                                  np.where(designs["yield_hi"] >= 0.95, "pass", "low yield"), "spec miss")
+    designs["stalls_at"] = ""
+    designs["wc_margin"] = np.linspace(0.05, -0.3, nd)
     top = designs.head(5)
     check = pd.DataFrame({"rank": top["rank"], "design": top["design"], "ra_ohm": top["ra_ohm"],
                           "rb_ohm": top["rb_ohm"], "c_f": top["c_f"], "vcc_v": 9.0,
@@ -84,4 +90,4 @@ def make_report(title: str = "Demo flasher (invented scenario)", n_designs: int 
         notes=[("Model", "Realistic 555 model."), ("Sources", "[book] RC law.")],
         run_info={"version": "test", "seed": 1},
         mc_samples=pd.DataFrame({"value": rng.normal(2.0, 0.05, 500)}),
-        temperature_curves=temp_curves)
+        temperature_curves=temp_curves, verdicts=dict(VERDICTS))

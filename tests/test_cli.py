@@ -189,3 +189,30 @@ def test_summary_says_when_the_picks_worst_case_misses_the_spec(tmp_path, capsys
     assert rec["worst_case_in_spec"] == inside
     assert ("worst case misses the spec" in text) == (not inside)
     assert "Tolerances assumed" in text and "E12" in text
+
+
+def test_help_shows_no_type_after_flags_and_new_uses_the_right_article(tmp_path, capsys):
+    code, out, _ = cli(["run", "--help"], capsys)
+    assert code == 0 and "--ideal" in out and "<bool>" not in out
+    assert "<path>" in out or "PATH" in out.upper()           # options with a value keep it
+    code, out, _ = cli(["new", "astable-diode", "-o", str(tmp_path / "a.toml")], capsys)
+    assert code == 0
+    text = (tmp_path / "a.toml").read_text(encoding="utf-8")
+    assert "an astable-diode starter" in text and "a astable" not in text
+    cli(["new", "monostable", "-o", str(tmp_path / "m.toml")], capsys)
+    assert "a monostable starter" in (tmp_path / "m.toml").read_text(encoding="utf-8")
+
+
+def test_check_estimate_counts_writing_the_outputs(capsys):
+    from dataclasses import replace
+    from sweep.estimate import estimate, write_seconds
+    from sweep.study import load_study
+    s = load_study("studies/buzzer.toml")
+    est = estimate(s)
+    assert 0 < est.write_seconds < est.seconds
+    # the workbook's rows dominate: a sweep with a tenth of the designs writes less
+    small = replace(s, design=tuple(replace(a, values=a.values[:3]) if a.key == "ra" else a
+                                    for a in s.design))
+    assert write_seconds(small, 10) < write_seconds(s, 10)
+    code, out, _ = cli(["check", "studies/buzzer.toml"], capsys)
+    assert code == 0 and "writing the outputs included" in out

@@ -151,9 +151,10 @@ def test_map_draws_each_design_in_its_state_and_the_states_apart_without_colour(
     d = r.designs
     inside = (d["frequency_hz_nom"] >= 50.0) & (d["frequency_hz_nom"] <= 150.0)
     # the three states, written plainly from their definitions
-    want = {"meets": set(d.loc[d["feasible"], "design"].astype(str)),
-            "near": set(d.loc[inside & ~d["feasible"], "design"].astype(str)),
-            "breaks": set(d.loc[~inside & ~d["feasible"], "design"].astype(str))}
+    passes = d["verdict"] == "pass"          # the analysis's verdict, not the page's own reading
+    want = {"meets": set(d.loc[passes, "design"].astype(str)),
+            "near": set(d.loc[inside & ~passes, "design"].astype(str)),
+            "breaks": set(d.loc[~inside & ~passes, "design"].astype(str))}
     assert all(want.values()), "the example must have designs in every state"
     drawn = [t for t in fig.data if t.customdata is not None and t.legendgroup in want]
     got = {k: {row[0] for t in drawn if t.legendgroup == k for row in t.customdata}
@@ -182,11 +183,11 @@ def test_map_states_at_realistic_density():
     ds = page._designs(r)
     states = map_states(r, ds)
     assert set(states) <= {"meets", "near", "breaks", "blank"}
-    assert (states[ds.feasible] == "meets").all()
+    assert (states[ds.passes] == "meets").all()
     lo, hi = 1.8, 2.2                       # the fake report's frequency spec
     nominal = ds.table["frequency_hz_nom"].to_numpy()
     outside = (nominal < lo) | (nominal > hi)
-    assert (states[outside & ~ds.feasible] == "breaks").all()
+    assert (states[outside & ~ds.passes] == "breaks").all()
     # the marks shrink with the grid but stay visible
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
     sizes = [t.marker.size for t in fig.data if t.customdata is not None]

@@ -96,3 +96,34 @@ def test_a_key_in_design_and_conditions_is_refused():
     with pytest.raises(InputError) as e:
         parse_study(BASE + "[conditions]\nra = \"22k\"\n", "t.toml")
     assert "both" in e.value.problem and e.value.key == "conditions.ra"
+
+
+def test_typical_sigma_and_yield_target_parse_and_refuse_nonsense():
+    s = parse_study(BASE, "t.toml")
+    assert s.typical_sigma == 1.0 and s.yield_min is None          # the documented defaults
+    s = parse_study(BASE + '[spec]\nyield = { min = "99%" }\n[analysis]\ntypical_sigma = 3\n', "t.toml")
+    assert s.typical_sigma == 3.0 and s.yield_min == pytest.approx(0.99)
+    assert s.spec == ()                    # a yield target is no limit on a point's output
+    for bad, key in (('[analysis]\ntypical_sigma = 0\n', "typical_sigma"),
+                     ('[analysis]\ntypical_sigma = "x"\n', "typical_sigma"),
+                     ('[spec]\nyield = { min = 1.5 }\n', "yield.min"),
+                     ('[spec]\nyield = { max = 0.9 }\n', "yield"),
+                     ('[spec]\nyield = 0.99\n', "yield")):
+        with pytest.raises(InputError) as e:
+            parse_study(BASE + bad, "t.toml")
+        assert e.value.key.endswith(key), (bad, e.value.key)
+
+
+def test_a_timer_model_needs_maxima_at_least_typical(tmp_path):
+    from pathlib import Path
+    src = Path("sweep/models/bipolar.toml").read_text(encoding="utf-8")
+    bad = tmp_path / "t.toml"
+    bad.write_text(src.replace("accuracy_monostable_max = 0.03", "accuracy_monostable_max = 0.005"),
+                   encoding="utf-8")
+    with pytest.raises(InputError) as e:
+        parse_study(BASE.replace('circuit = "astable"', f'circuit = "astable"\ntimer = "{bad}"'), "t.toml")
+    assert e.value.key == "accuracy_monostable_max"
+    bad.write_text(src.replace("accuracy_monostable_max = 0.03", ""), encoding="utf-8")
+    with pytest.raises(InputError) as e:
+        parse_study(BASE.replace('circuit = "astable"', f'circuit = "astable"\ntimer = "{bad}"'), "t.toml")
+    assert e.value.key == "accuracy_monostable_max" and "missing" in e.value.problem

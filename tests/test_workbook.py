@@ -21,8 +21,8 @@ from scipy.integrate import solve_ivp
 
 from sweep.models import load_timer
 from sweep.physics import Load, Parts, evaluate
-from sweep.writers.workbook import (ENG_FORMAT, KM3_FORMAT, KM_FORMAT, PRINT_ROWS, SHEETS,
-                                    write_workbook)
+from sweep.writers.workbook import (CAP_FORMAT, ENG_FORMAT, KM3_FORMAT, KM_FORMAT, PRINT_ROWS,
+                                    SHEETS, write_workbook)
 from tests.fake_report import make_report
 
 HOSTILE_TITLE = '=HYPERLINK("http://x","y")'
@@ -60,14 +60,15 @@ def test_sheet_names_in_order(book):
 def test_headers_carry_units_and_registry_labels(book):
     _, _, wb = book
     points = _headers(wb["Points"], 2)
-    for h in ("RA [Ω]", "RB [Ω]", "C [F]", "Supply [V]", "Ambient [°C]", "Frequency [Hz]",
+    for h in ("RA [Ω]", "RB [Ω]", "C [pF]", "Supply [V]", "Ambient [°C]", "Frequency [Hz]",
               "Supply current [A]", "Junction [°C]", "Flags"):
         assert h in points
     designs = _headers(wb["Designs"], 1)
-    assert designs[:6] == ["Rank", "Design", "RA [Ω]", "RB [Ω]", "C [F]", "Result"]
+    assert designs[:6] == ["Rank", "Design", "RA [Ω]", "RB [Ω]", "C [pF]", "Verdict"]
     for h in ("Frequency [Hz] worst-case min", "Frequency [Hz] worst-case max",
               "Frequency [Hz] nominal", "Frequency [Hz] Monte Carlo std. dev.", "Yield",
-              "S/N [dB]", "Sensitivity to RA", "Sensitivity to C", "Feasible", "Flags"):
+              "S/N [dB]", "Sensitivity to RA", "Sensitivity to C", "Feasible", "Flags",
+              "Yield 95 % low", "Yield 95 % high", "Stalls at"):
         assert h in designs
     check = _headers(wb["Check"], 5)
     assert "Frequency [Hz] formula" in check and "Duty formula" in check
@@ -75,13 +76,13 @@ def test_headers_carry_units_and_registry_labels(book):
 
 def test_frozen_panes_and_filters(book):
     rep, _, wb = book
-    assert wb["Designs"].freeze_panes == "G2"     # rank, design, RA, RB, C, result
+    assert wb["Designs"].freeze_panes == "G2"     # rank, design, RA, RB, C, verdict
     assert wb["Points"].freeze_panes == "C3"      # note row + header; design, condition
     assert wb["Parts"].freeze_panes == "A2"
     assert wb["Check"].freeze_panes == "C6"
     assert wb["Study"].freeze_panes == "A3"
     n_d, n_p = len(rep.designs), len(rep.points)
-    d_last = openpyxl.utils.get_column_letter(rep.designs.shape[1] + 1)   # + the Result column
+    d_last = openpyxl.utils.get_column_letter(rep.designs.shape[1])
     assert wb["Designs"].auto_filter.ref == f"A1:{d_last}{n_d + 1}"
     last_col = openpyxl.utils.get_column_letter(rep.points.shape[1])
     assert wb["Points"].auto_filter.ref == f"A2:{last_col}{n_p + 2}"
@@ -93,8 +94,9 @@ def test_rows_follow_the_report(book):
     ws = wb["Designs"]
     d = rep.designs
     got = [[c.value for c in row] for row in ws.iter_rows(min_row=2, max_col=5)]
-    want = d[["rank", "design", "ra_ohm", "rb_ohm", "c_f"]].to_numpy().tolist()
-    assert got == want
+    want = d[["rank", "design", "ra_ohm", "rb_ohm", "c_f"]].to_numpy()
+    want[:, 4] *= 1e12                        # C is held in picofarads, shown with its prefix
+    np.testing.assert_allclose(np.array(got, dtype=float), want.astype(float), rtol=1e-15)
     ws = wb["Points"]
     col = _headers(ws, 2).index("Frequency [Hz]") + 1
     got = np.array([ws.cell(r, col).value for r in range(3, 3 + len(rep.points))], dtype=float)
@@ -102,65 +104,65 @@ def test_rows_follow_the_report(book):
     np.testing.assert_allclose(got, rep.points["frequency_hz"].to_numpy(), rtol=1e-15)
 
 
-def _with_every_result(rep):
-    """The demo report with designs of all four Result kinds: feasible and clean, feasible with
-    a spec miss at some condition, infeasible with only the spec missed, and a broken limit."""
+def _with_every_verdict(rep):
+    """The demo report with a design of every verdict word."""
     d = rep.designs.copy()
-    feas = d.index[d["feasible"]]
-    d.loc[feas[1::2], "flags"] = "spec-miss"                 # feasible, misses at some condition
-    bad = d.index[~d["feasible"]]
-    d.loc[bad[::2], "flags"] = "junction-too-hot spec-miss"  # a limit broken
+    words = ["pass", "low yield", "not sampled", "spec miss", "limit", "stalls"]
+    d["verdict"] = [words[i % len(words)] for i in range(len(d))]
+    d.loc[d["verdict"] == "stalls", "stalls_at"] = "stalls at 60 °C, 6 V with C at -10 %"
+    d.loc[d["verdict"] == "stalls", "wc_margin"] = -np.inf
+    d.loc[d["verdict"] == "pass", "wc_margin"] = np.inf      # a study without spec limits
     rep.designs = d
     return rep
 
 
-def test_result_words_agree_with_feasible_and_read_without_colour(tmp_path):
-    rep = _with_every_result(make_report())
-    path = tmp_path / "result.xlsx"
+def test_verdict_words_come_from_the_report_and_read_without_colour(tmp_path):
+    rep = _with_every_verdict(make_report())
+    path = tmp_path / "verdict.xlsx"
     write_workbook(path, rep)
     wb = openpyxl.load_workbook(path)
     ws = wb["Designs"]
     head = _headers(ws, 1)
-    rc, fc, yc = (head.index(h) + 1 for h in ("Result", "Feasible", "Yield"))
+    vc, yc, mc = (head.index(h) + 1 for h in ("Verdict", "Yield", "Worst-case margin"))
     seen = set()
     for i, (_, row) in enumerate(rep.designs.iterrows(), start=2):
-        result, feasible = ws.cell(i, rc).value, ws.cell(i, fc).value
-        codes = row["flags"].split()
-        # the review's contradiction: a feasible design must never read as a failure
-        if feasible:
-            assert result in ("pass", "spec miss"), (i, result, codes)
-        else:
-            assert result in ("off spec", "limit"), (i, result, codes)
-        assert (result == "pass") == (feasible and not codes)
-        assert (result == "limit") == any(c != "spec-miss" for c in codes)
-        seen.add(result)
+        word = ws.cell(i, vc).value
+        assert word == row["verdict"]                        # the analysis's word, not the writer's
+        seen.add(word)
+        failing = word in ("spec miss", "limit", "stalls")
         # grey-scale print: the kinds differ in type style, not only in hue
-        cell, yield_cell = ws.cell(i, rc), ws.cell(i, yc)
-        infeasible = result in ("off spec", "limit")
-        assert bool(yield_cell.font.italic) == infeasible
-        assert bool(cell.font.bold) == infeasible
-        assert bool(cell.font.italic) == (result != "pass")
+        cell, yield_cell = ws.cell(i, vc), ws.cell(i, yc)
+        assert bool(yield_cell.font.italic) == failing
+        assert bool(cell.font.bold) == failing
+        assert bool(cell.font.italic) == (word != "pass")
         assert cell.fill.fgColor.rgb != "00000000"
-    assert seen == {"pass", "spec miss", "off spec", "limit"}
+        # an empty margin cell says why
+        margin = ws.cell(i, mc).value
+        if word == "stalls":
+            assert margin == "stalls (see Stalls at)"
+        elif word == "pass":
+            assert margin == "no spec limit"
+        else:
+            assert isinstance(margin, float)
+    assert seen == set(rep.verdicts)
     # every word is defined where a reader looks: the header's note and the Notes sheet
-    comment = ws.cell(1, rc).comment
+    comment = ws.cell(1, vc).comment
     notes = {r[0]: r[1] for r in wb["Notes"].iter_rows(min_row=2, max_col=2, values_only=True)}
     for word in seen:
-        assert f"{word} = " in comment.text
-        assert f"{word} = " in notes["Result column"]
-    assert "spec miss = feasible" in notes["Result column"]
+        assert f"{word} = {rep.verdicts[word]}" in comment.text
+        assert f"{word} = {rep.verdicts[word]}" in notes["Verdict"]
 
 
 def test_number_formats_keep_true_numbers(book):
     # SI prefixes by thousands: common practice for engineering tables
-    _, _, wb = book
+    rep, _, wb = book
     ws = wb["Points"]
     h = _headers(ws, 2)
-    ra, c, duty = (ws.cell(3, h.index(x) + 1) for x in ("RA [Ω]", "C [F]", "Duty"))
+    ra, c, duty = (ws.cell(3, h.index(x) + 1) for x in ("RA [Ω]", "C [pF]", "Duty"))
     assert isinstance(ra.value, (int, float)) and ra.value >= 1000
     assert ra.number_format == KM_FORMAT.replace("0.00", "0.0#")
-    assert isinstance(c.value, float) and c.value < 1e-6
-    assert c.number_format == ENG_FORMAT.replace("0.00", "0.0#")
+    assert isinstance(c.value, (int, float)) and c.value == pytest.approx(rep.points["c_f"].iloc[0] * 1e12)
+    assert c.number_format == CAP_FORMAT
     assert duty.number_format.endswith("%")
     freq = ws.cell(3, h.index("Frequency [Hz]") + 1)
     assert freq.number_format == KM_FORMAT       # every frequency here is above 1 Hz
@@ -242,6 +244,11 @@ def _read_shown(text: str) -> tuple[float, float]:
     """(value, half of the last shown digit) of a number as displayed: '4.70 k', '1.2 M',
     '100.00E-9', '0.350'."""
     t = text.strip()
+    if t.endswith("F"):                 # a capacitor: 470.0 nF, 2.2 µF, 100.0 pF
+        t = t[:-1].strip()
+        unit = {"p": 1e-12, "n": 1e-9, "µ": 1e-6}[t[-1]]
+        mant = t[:-1].strip()
+        return float(mant) * unit, 0.5 * 10.0 ** -len(mant.partition(".")[2]) * unit
     scale = {"k": 1e3, "M": 1e6}.get(t[-1:], 1.0)
     if scale != 1.0:
         t = t[:-1].strip()
@@ -269,10 +276,11 @@ def test_numbers_render_as_plain_or_engineering_text(tmp_path):
     # the review's complaint: 1.91 Hz must not read "1.91E+0"
     assert all(re.fullmatch(r"\d+\.\d{3}", t) for t in freq), freq[:5]
     assert all(re.fullmatch(r"\d+\.\d+ k|\d+\.\d+( M)?", r[col["RA [Ω]"]]) for r in rows[2:])
-    assert all(re.fullmatch(r"\d+\.\d+E-\d+", r[col["C [F]"]]) for r in rows[2:])
+    # capacitors read like resistors, with a prefix: 470.0 nF, not 470.0E-9
+    assert all(re.fullmatch(r"\d+\.\d+ [pnµ]F", r[col["C [pF]"]]) for r in rows[2:])
     # every shown number reads back as the true value, sign included, to its last digit
     names = {"Frequency [Hz]": "frequency_hz", "RA [Ω]": "ra_ohm", "RB [Ω]": "rb_ohm",
-             "C [F]": "c_f", "Supply current [A]": "supply_current_a",
+             "C [pF]": "c_f", "Supply current [A]": "supply_current_a",
              "Output current [A]": "output_current_a", "Period [s]": "period_s"}
     for h, name in names.items():
         for k, r in enumerate(rows[2:]):
@@ -614,8 +622,10 @@ def test_print_setup_keeps_the_big_tables_short(big_book):
         assert ws.page_setup.orientation == "landscape", name
         assert ws.sheet_properties.pageSetUpPr.fitToPage, name
         assert ws.page_setup.fitToHeight == 0, name        # as many pages down as it takes
-        wide = 2 if name == "Points" else 1
+        # Points and the Check sheet (18 columns here) print two pages wide, keys repeated
+        wide = 2 if name in ("Points", "Check") else 1
         assert (ws.page_setup.fitToWidth or 1) == wide, name
+    assert wb["Check"].print_title_cols.replace("$", "") == "A:B"
     for name in ("Summary", "Parts", "Check", "Study", "Notes"):
         assert not wb[name].print_area, name               # the whole sheet, one page wide
     # Designs: the key columns (not all of them) and the first PRINT_ROWS rows
@@ -624,11 +634,11 @@ def test_print_setup_keeps_the_big_tables_short(big_book):
     assert rows == 1 + PRINT_ROWS and len(rep.designs) > PRINT_ROWS
     head = _headers(d, 1)
     assert 10 <= cols <= 16 < len(head)
-    for h in ("Rank", "RA [Ω]", "C [F]", "Result", "Yield", "Frequency [Hz] nominal"):
+    for h in ("Rank", "RA [Ω]", "C [pF]", "Verdict", "Yield", "Frequency [Hz] nominal"):
         assert head.index(h) < cols, h
     assert d.print_title_rows.replace("$", "") == "1:1"
     assert "designs.parquet" in d.oddHeader.left.text and f"{PRINT_ROWS} rows" in d.oddHeader.left.text
-    assert "spec miss" in d.oddFooter.left.text
+    assert "spec miss" in d.oddFooter.left.text and "low yield" in d.oddFooter.left.text
     # Points: every column, the first PRINT_ROWS rows, the key columns on every page
     p = wb["Points"]
     rows, cols = _area(p)
@@ -655,3 +665,36 @@ def test_big_workbook_prints_on_few_pages(big_book, tmp_path):
     # 200 designs at ~45 rows a page, 200 points rows twice (two pages wide) and a page or two
     # for each small sheet: about 25; the whole tables would take well over a hundred
     assert 8 <= pages <= 35, pages
+
+
+def test_readable_headers_times_notes_and_control_pin(tmp_path):
+    rep = make_report()
+    long_note = "A long note about the scenario. " * 12
+    rep.study_rows = rep.study_rows + [("study", "notes", f'"{long_note}"', "free text, copied")]
+    d = rep.designs.copy()
+    d["period_s_nom"] = 1 / d["frequency_hz_nom"]          # about 0.4 s: a plain format's range
+    d["high_time_s_nom"] = 0.002 + 0 * d["frequency_hz_nom"]  # milliseconds: engineering's
+    rep.designs = d
+    path = tmp_path / "readable.xlsx"
+    write_workbook(path, rep)
+    wb = openpyxl.load_workbook(path)
+    ws = wb["Designs"]
+    # the header row is at most three lines tall (it was five)
+    assert ws.row_dimensions[1].height <= 3 * 15
+    # seconds show one way on a sheet: engineering notation, whatever their size
+    fmts = {ws.cell(2, i).number_format for i in range(1, ws.max_column + 1)
+            if "[s]" in str(ws.cell(1, i).value)}
+    assert fmts == {ENG_FORMAT}
+    # the Study sheet wraps a long note in a row tall enough for it
+    st = wb["Study"]
+    row = next(r for r in st.iter_rows(min_row=3) if r[1].value == "notes")
+    assert row[2].alignment.wrap_text and st.row_dimensions[row[2].row].height > 15
+    # every Check formula reads the control-pin cell (blank: the internal divider), never a
+    # hard-coded 2/3 of the supply alone
+    ch = wb["Check"]
+    head = _headers(ch, 5)
+    vc = openpyxl.utils.get_column_letter(head.index("Control pin [V] (blank: divider)") + 1)
+    th = head.index("High time [s] formula") + 1
+    for r in range(6, 6 + len(rep.check)):
+        f = ch.cell(r, th).value
+        assert f"ISBLANK({vc}{r})" in f and f"{vc}{r})" in f.replace(f"ISBLANK({vc}{r})", ""), f

@@ -20,6 +20,23 @@ Ideal = Annotated[bool, typer.Option("--ideal", help="Drop every non-ideality: f
 Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar or table.")]
 
 
+def _no_type_on_flags() -> None:
+    """Help lists a flag (--ideal, --quiet, --help...) without a value type: it takes no value,
+    so the framework's "<bool>" beside it misleads. Options with a value keep their type."""
+    from typer.core import TyperOption
+    shown = TyperOption.display_type_rich
+    if getattr(shown, "_flags_plain", False):
+        return
+
+    def display_type_rich(self, ctx):
+        return None if getattr(self, "is_flag", False) else shown(self, ctx)
+    display_type_rich._flags_plain = True
+    TyperOption.display_type_rich = display_type_rich
+
+
+_no_type_on_flags()
+
+
 def _err(console_text: str) -> None:
     print(console_text, file=sys.stderr)
 

@@ -57,21 +57,34 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
                      justify="right")
     for m in main:
         t.add_column(f"{m.split('_')[0]} nom", justify="right")
-    t.add_column("yield", justify="right")
+    t.add_column("verdict")
+    t.add_column("yield (95 % interval)", justify="right")
     t.add_column("I supply max", justify="right")
     t.add_column("flags")
     for _, r in d.head(n if table else 0).iterrows():
         cells = [str(r["rank"])] + [eng(r[a.column], a.column) for a in st.design]
-        cells += [eng(r[f"{m}_nom"], m) for m in main]
-        cells.append(f"{r['yield'] * 100:.1f} %" if r["yield"] == r["yield"] else "-")
-        cells.append(eng(r["supply_current_a_max"], "supply_current_a"))
+        stalls = "stalls" if r.get("stalls_at") else "-"
+        cells += [eng(r[f"{m}_nom"], m) if r[f"{m}_nom"] == r[f"{m}_nom"] else stalls for m in main]
+        cells.append(str(r["verdict"]))
+        cells.append(f"{r['yield'] * 100:.1f} % ({r['yield_lo'] * 100:.1f}-{r['yield_hi'] * 100:.1f})"
+                     if r["yield"] == r["yield"] else "not sampled")
+        cells.append(eng(r["supply_current_a_max"], "supply_current_a")
+                     if r["supply_current_a_max"] == r["supply_current_a_max"] else stalls)
         cells.append(r["flags"] or "ok")
         t.add_row(*(escape(c) for c in cells))
     if table:
         out.print(t)
-    if not res.info.get("meets_spec", True):
+    from ..analysis import VERDICTS
+    shown = sorted(set(d.head(n if table else 1)["verdict"]) | {res.info.get("verdict", "pass")},
+                   key=list(VERDICTS).index)
+    out.print(escape("verdicts: " + "; ".join(f"{k} = {VERDICTS[k]}" for k in shown)))
+    if not (d["verdict"] == "pass").any():
         out.print("[bold]No design meets the spec.[/bold] The table shows the best candidates; widen "
                   "the ranges or relax the spec.")
+    elif not res.info.get("meets_spec", True):
+        out.print(escape(f"The pick's verdict is '{res.info.get('verdict')}', not a pass. "
+                         "See the Summary sheet."))
+    out.print(escape("Timer spreads: " + res.info.get("spreads", "")))
     out.print(escape(f"wrote {res.files['workbook']}, {res.files['page']}, {res.files['points'].name}, "
               f"{res.files['designs'].name}, {res.files['record'].name} in {res.out_dir}"))
 
@@ -84,7 +97,8 @@ def print_estimate(st, est) -> None:
     out.print(f"  points      {est.points:,}")
     out.print(f"  evaluations {est.evaluations:,} (sweep, worst-case corners, {st.monte_carlo:,} Monte Carlo builds)")
     out.print(f"  memory      about {est.bytes / 2**20:,.0f} MiB")
-    out.print(f"  time        {human_time(est.seconds)} on one process (measured {est.rate:,.0f} evaluations/s here)")
+    out.print(f"  time        {human_time(est.seconds)} on one process, writing the outputs included "
+              f"({human_time(est.write_seconds)}; measured {est.rate:,.0f} evaluations/s here)")
     from ..estimate import over_limits
     reasons = over_limits(est)
     if reasons:

@@ -15,6 +15,19 @@ from ..physics.timer import TimerModel
 HERE = Path(__file__).parent
 BUILTIN = {"bipolar": HERE / "bipolar.toml", "cmos": HERE / "cmos.toml"}
 SECTIONS = ("supply", "inputs", "discharge", "output", "timing", "thermal")
+#: timing spreads given as typical, each with its maximum (3 x typical where none is published)
+SPREADS = ("accuracy_astable", "accuracy_monostable", "drift_astable_ppm_per_k",
+           "drift_monostable_ppm_per_k", "supply_sensitivity_astable_per_v",
+           "supply_sensitivity_monostable_per_v")
+
+
+def spread_max_name(typical: str) -> str:
+    """The key of a spread's maximum: 'accuracy_astable' -> 'accuracy_astable_max',
+    'drift_astable_ppm_per_k' -> 'drift_astable_max_ppm_per_k'."""
+    for unit in ("_ppm_per_k", "_per_v"):
+        if typical.endswith(unit):
+            return typical[: -len(unit)] + "_max" + unit
+    return typical + "_max"
 
 
 def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") -> TimerModel:
@@ -63,7 +76,11 @@ def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") ->
     for k in flat:
         if k not in names:
             raise InputError(fname, k, "unknown key")
+    maxima = {spread_max_name(t): t for t in SPREADS}
     for k in names:
+        if k in maxima and k not in flat:
+            raise InputError(fname, k, f"missing key: the maximum of {maxima[k]} (where the data "
+                             "gives none, write 3 x the typical figure and say so)")
         if k not in flat:
             raise InputError(fname, k, "missing key")
         if k in ("name", "kind"):
@@ -138,11 +155,14 @@ def _check_physical(m: TimerModel, fname: str) -> None:
               "propagation_delay_s", "accuracy_astable", "accuracy_monostable",
               "drift_astable_ppm_per_k", "drift_monostable_ppm_per_k",
               "supply_sensitivity_astable_per_v", "supply_sensitivity_monostable_per_v",
-              "min_capacitance_f", "min_resistance_ohm", "reset_v"):
+              *map(spread_max_name, SPREADS), "min_capacitance_f", "min_resistance_ohm", "reset_v"):
         if getattr(m, k) < 0:
             bad(k, "must not be negative")
     if m.threshold_current_max_a < m.threshold_current_a:
         bad("threshold_current_max_a", "must be at least threshold_current_a")
+    for typ in SPREADS:
+        if getattr(m, spread_max_name(typ)) < getattr(m, typ):
+            bad(spread_max_name(typ), f"a maximum must be at least the typical {typ}")
     for k in ("divider_resistance_ohm", "discharge_max_a", "surge_current_a", "source_max_a", "sink_max_a",
               "max_frequency_hz", "theta_ja_c_per_w", "resistance_derating"):
         if getattr(m, k) <= 0:

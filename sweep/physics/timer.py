@@ -48,12 +48,19 @@ class TimerModel:
     propagation_delay_s: float
     max_frequency_hz: float
     min_capacitance_f: float
+    # timing spreads: typical (read as one sigma by default) and maximum (the worst case's bound)
     accuracy_astable: float
+    accuracy_astable_max: float
     accuracy_monostable: float
+    accuracy_monostable_max: float
     drift_astable_ppm_per_k: float
+    drift_astable_max_ppm_per_k: float
     drift_monostable_ppm_per_k: float
+    drift_monostable_max_ppm_per_k: float
     supply_sensitivity_astable_per_v: float
+    supply_sensitivity_astable_max_per_v: float
     supply_sensitivity_monostable_per_v: float
+    supply_sensitivity_monostable_max_per_v: float
     # thermal
     theta_ja_c_per_w: float
     tj_max_c: float

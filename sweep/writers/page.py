@@ -257,7 +257,7 @@ class _Designs:
     total: int
     custom: np.ndarray       # (rows, fields) hover text per design, already escaped
     template: str            # plotly hovertemplate that lays the fields out
-    feasible: np.ndarray
+    passes: np.ndarray       # the design's verdict is "pass" (the analysis decides, not the page)
     pick: np.ndarray         # True on the rank-1 row
 
     @property
@@ -293,8 +293,14 @@ def _designs(report: Report) -> _Designs:
     for col in ([f"{main}_nom"] if main else []) + ["duty_nom"]:
         if col in d.columns and (col != "duty_nom" or main != "duty"):
             add(f"{_var(_base(col)).label} (nominal)", _fmt_series(d[col], col))
+    if "verdict" in d.columns:
+        add("Verdict", d["verdict"].fillna("").astype(str).map(html.escape))
     if "yield" in d.columns:
-        add("Yield", _fmt_series(d["yield"], "duty"))
+        y = _fmt_series(d["yield"], "duty")
+        if {"yield_lo", "yield_hi"} <= set(d.columns):
+            lo, hi = _fmt_series(d["yield_lo"], "duty"), _fmt_series(d["yield_hi"], "duty")
+            y = y.where(d["yield"].isna(), y + " (95 %: " + lo + " to " + hi + ")")
+        add("Yield", y)
     cur = _current_column(d)
     if cur:
         add("Supply current" + (" (highest)" if cur.endswith("_max") else ""),
@@ -306,10 +312,10 @@ def _designs(report: Report) -> _Designs:
         fields.append(pd.Series(np.where(flags != "", "<br>Flags: " + flags, ""), index=d.index))
     custom = (np.column_stack([f.to_numpy(dtype=object) for f in fields]) if n
               else np.empty((0, len(fields)), dtype=object))
-    feasible = (d["feasible"].fillna(False).astype(bool).to_numpy() if "feasible" in d.columns
-                else np.ones(n, dtype=bool))
+    passes = (d["verdict"].to_numpy() == "pass" if "verdict" in d.columns
+              else np.ones(n, dtype=bool))
     pick = rank.to_numpy() == 1
-    return _Designs(d, len(report.designs), custom, template + "<extra></extra>", feasible, pick)
+    return _Designs(d, len(report.designs), custom, template + "<extra></extra>", passes, pick)
 
 
 def _current_column(d: pd.DataFrame) -> str | None:
@@ -365,10 +371,10 @@ MAP_BREAKS, MAP_NEAR, MAP_MEETS, MAP_BLANK = "breaks", "near", "meets", "blank"
 
 
 def map_states(report: Report, ds: _Designs) -> np.ndarray:
-    """The state each design of ``ds.table`` is drawn in on the design map: "meets" (every limit
-    met), "near" (its nominal main output is inside the spec, but it breaks another limit),
-    "breaks" (breaks a limit, nominal main output outside the spec or no spec on it) or "blank"
-    (no nominal value to place on the colour scale)."""
+    """The state each design of ``ds.table`` is drawn in on the design map: "meets" (its verdict
+    is pass), "near" (not a pass, but its nominal main output is inside the spec), "breaks" (not
+    a pass, nominal main output outside the spec or no spec on it) or "blank" (no nominal value
+    to place on the colour scale)."""
     d = ds.table
     main = report.main_output
     nomcol = f"{main}_nom" if main and f"{main}_nom" in d.columns else None
@@ -381,7 +387,7 @@ def map_states(report: Report, ds: _Designs) -> np.ndarray:
         in_spec = (nominal >= lo) & (nominal <= hi) if has_spec else np.zeros(len(d), dtype=bool)
     state = np.full(len(d), MAP_BREAKS, dtype=object)
     state[in_spec] = MAP_NEAR
-    state[ds.feasible] = MAP_MEETS
+    state[ds.passes] = MAP_MEETS
     state[~has_c] = MAP_BLANK
     return state
 
@@ -390,16 +396,16 @@ def _map_marks(size: float, main_label: str) -> dict:
     """Legend name and marker style of each map state; None as colour means the colour scale."""
     faded = max(3.0, round(size * 0.55, 1))
     return {
-        MAP_BREAKS: (f"Breaks a limit, {main_label} outside the spec (small, faded)" if main_label
-                     else "Breaks a limit (small, faded)",
+        MAP_BREAKS: (f"Not a pass, {main_label} outside the spec (small, faded)" if main_label
+                     else "Not a pass (small, faded)",
                      dict(symbol="circle", size=faded, opacity=0.55, line=dict(width=0)), None),
         MAP_BLANK: ("No nominal value (timing stalls)",
                     dict(symbol="diamond-open", size=max(4.0, size * 0.7),
                          line=dict(width=1, color=GREY)), GREY),
-        MAP_NEAR: (f"Nominal {main_label} in spec, another limit broken (ring)",
+        MAP_NEAR: (f"Not a pass, nominal {main_label} in spec (ring)",
                    dict(symbol="circle-open", size=size, line=dict(width=1.6, color="#1a1a1a")),
                    "#1a1a1a"),
-        MAP_MEETS: ("Meets every limit (filled, dark edge)",
+        MAP_MEETS: ("Verdict pass (filled, dark edge)",
                     dict(symbol="circle", size=size * 1.15, line=dict(width=1.6, color=BLACK)),
                     None),
     }
@@ -540,14 +546,16 @@ def _map_section(report: Report, ds: _Designs) -> Section:
     main_text = html.escape(main_label)
     text = [f"Each mark is one design, placed by its {html.escape(_var(xcol).label)} and "
             f"{html.escape(_var(ycol).label)} values (log scales){panels}{colour}",
-            "Filled marks with a dark edge meet every limit (the spec at the nominal point, "
-            "every operating limit of the timer and parts in every condition)."]
+            "Filled marks with a dark edge are designs whose verdict is pass (every limit kept, "
+            "in spec at every condition, the yield target reached; the verdicts are explained "
+            "at the top of the page)."]
     if has_spec:
-        text.append(f"Open rings have the nominal {main_text} in spec but break another limit.")
-        text.append(f"Small faded dots have the {main_text} outside the spec; their colour "
-                    "shows which way it runs.")
+        text.append(f"Open rings have the nominal {main_text} in spec but another verdict "
+                    "(hover for it).")
+        text.append(f"Small faded dots have the {main_text} outside the spec and are not a pass; "
+                    "their colour shows which way it runs.")
     else:
-        text.append("Small faded dots break at least one limit.")
+        text.append("Small faded dots are not a pass (hover for the verdict).")
     if (state == MAP_BLANK).any():
         text.append("Grey open diamonds have no nominal value (the timing stalls).")
     text.append("The star is the pick; hover over any mark for its values.")
@@ -591,8 +599,8 @@ MARKS_MEET = dict(symbol="circle", size=9, color=BLUE, line=dict(width=1.2, colo
 
 
 def _design_marks(fig: go.Figure, x: np.ndarray, y: np.ndarray, ds: _Designs) -> None:
-    for name, sel, marker in (("Breaks a limit (small, grey)", ~ds.feasible, MARKS_BREAK),
-                              ("Meets every limit (blue, dark edge)", ds.feasible, MARKS_MEET)):
+    for name, sel, marker in (("Not a pass (small, grey)", ~ds.passes, MARKS_BREAK),
+                              ("Verdict pass (blue, dark edge)", ds.passes, MARKS_MEET)):
         if sel.any():
             fig.add_trace(go.Scatter(x=x[sel], y=y[sel], mode="markers", name=name,
                                      marker=marker, **ds.hover(sel)))
@@ -602,9 +610,8 @@ def _duty_section(report: Report, ds: _Designs) -> Section:
     sec = Section("duty", HEADINGS["duty"], (
         "Each mark is one design at its nominal point: frequency across (log scale), duty cycle "
         "(the share of each period the output is high) up. The shaded box is what the spec "
-        "allows for the two together. Blue marks with a dark edge meet every limit (the spec "
-        "at the nominal point, and every operating limit in every condition); small grey dots "
-        "break at least one. Prefer marks well inside the box to marks near its edge: "
+        "allows for the two together. Blue marks with a dark edge are designs whose verdict is "
+        "pass; small grey dots have another verdict (hover for it). Prefer marks well inside the box to marks near its edge: "
         "tolerances, supply and temperature move every design around its mark."))
     d = ds.table
     if not report.circuit.startswith("astable"):
@@ -656,10 +663,11 @@ def _yield_section(report: Report, ds: _Designs) -> Section:
     worst = cur == "supply_current_a_max"
     sec = Section("yield", HEADINGS["yield"], (
         "Yield is the share of simulated builds, with every part drawn within its tolerance, "
-        "that meet the spec at every supply and temperature. Supply current is the average "
+        "that meet the spec at every supply and temperature (its 95 % interval is in the "
+        "hover text and the workbook). Supply current is the average "
         + ("draw in the condition that draws most. " if worst else "draw at the nominal point. ")
-        + "Blue marks with a dark edge meet every limit (the spec at the nominal point, and "
-          "every operating limit in every condition); small grey dots break at least one. The "
+        + "Blue marks with a dark edge are designs whose verdict is pass; small grey dots have "
+          "another verdict (hover for it). The "
           "stepped black line joins the designs that no other design beats on both counts: "
           "for a given current budget, the best yield on offer sits on the line. Walk along it "
           "from the left until the yield is high enough; further right only costs battery."))
@@ -1024,6 +1032,10 @@ def _header_html(report: Report, ds: _Designs) -> str:
         out += [f"<tr><th scope=\"row\">{esc(str(k))}</th><td>{esc(str(v))}</td></tr>"
                 for k, v in report.summary]
         out.append("</tbody></table>")
+    if report.verdicts:
+        out.append('<p class="capnote"><b>Verdicts</b> (one per design, the same in the workbook '
+                   'and run.json): ' + "; ".join(f"<b>{esc(k)}</b> = {esc(v)}"
+                                                 for k, v in report.verdicts.items()) + ".</p>")
     if report.cautions:
         out.append('<div class="cautions" role="note"><h2>Cautions</h2><ul>')
         out += [f"<li>{esc(str(c))}</li>" for c in report.cautions]

@@ -20,10 +20,16 @@ the same quantity reads the same way on every sheet and in every column:
   with a plain three-decimal branch below 1000: ``1.911``, ``0.350``, ``4.70 k``;
 * every value >= 0.01 (tens of milliamperes): ``KM4_FORMAT``, four decimals, so the smallest
   value still shows three figures: ``0.0134``;
-* any value below 0.01, or below zero (capacitances, µA currents, milliseconds): engineering
+* any value below 0.01, or below zero (µA currents, milliseconds): engineering
   notation ``ENG_FORMAT`` = ``##0.00E+0``, whose exponent is always a multiple of three, so it
   maps one-to-one on the SI prefix: ``100.00E-9`` = 100 n, ``2.20E-6`` = 2.2 µ. (Negative values
   cannot use the conditional formats: their last branch drops the minus sign.)
+
+Two exceptions. Seconds (every statistic of a time) always take ``ENG_FORMAT``, so one sheet
+never shows a time two ways. Capacitor values, the one part below one in SI units, are held in
+picofarads (header ``C [pF]``) so the thousands scaling can print their prefix like a
+resistor's: ``CAP_FORMAT`` shows ``470.0 nF``, ``2.2 µF``, ``100.0 pF``; the Check formulas
+multiply the C cell by 1E-12. The parquet files keep farads.
 
 A Monte Carlo standard deviation is a spread, often far smaller than its quantity, so its column
 takes the same rule from its own values. Part values (RA, RB, R, C: standard values of two or
@@ -71,8 +77,8 @@ from sweep.values import format_eng
 from sweep.variables import AXES, VARIABLES
 
 __all__ = ["write_workbook", "column_header", "column_format", "eng_number_format",
-           "result_labels", "SHEETS", "KM_FORMAT", "KM3_FORMAT", "KM4_FORMAT", "ENG_FORMAT",
-           "PRINT_ROWS", "RESULT_LABELS"]
+           "SHEETS", "KM_FORMAT", "KM3_FORMAT", "KM4_FORMAT", "ENG_FORMAT", "CAP_FORMAT",
+           "PRINT_ROWS"]
 
 SHEETS = ("Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes")
 
@@ -89,6 +95,10 @@ ENG_FORMAT = "##0.00E+0"       # anything smaller, or negative: 100.00E-9
 _PART_FORMAT = {KM_FORMAT: _km("0.0#", "0.0#"), KM3_FORMAT: _km("0.0##", "0.0#"),
                 KM4_FORMAT: _km("0.0###", "0.0#"), ENG_FORMAT: "##0.0#E+0"}
 _PLAIN_STEPS = ((1.0, KM_FORMAT), (0.1, KM3_FORMAT), (0.01, KM4_FORMAT))
+#: capacitances are held in picofarads so a number format can print the prefix: 470.0 nF
+CAP_SCALE = 1e12
+CAP_FORMAT = '[>=1000000]0.0#,," µF";[>=1000]0.0#," nF";0.0#" pF"'
+CAP_HEADER = "C [pF]"
 PRINT_ROWS = 200            # data rows of Designs and Points in the default print area
 _PART_COLUMNS = ("ra_ohm", "rb_ohm", "r_ohm", "c_f")
 _FIXED = {"pct": "0.0%", "fixed1": "0.0", "fixed2": "0.00", "fixed3": "0.000", "int": "0"}
@@ -111,7 +121,10 @@ _SAFETY_LINE = ("Mains-powered loads, relays and other inductive loads (fit a fl
                 "batteries and hot parts can hurt people and start fires. timer-sweep checks "
                 "timing and electrical limits only: follow local codes and licensed practice, "
                 "and have such designs reviewed by a qualified person.")
-_FORMAT_LINE = ("Cells hold plain SI values (ohm, farad, second, hertz, ampere, watt). Large values "
+_FORMAT_LINE = ("Cells hold plain SI values (ohm, second, hertz, ampere, watt), except capacitor "
+                "values, held in picofarads (C [pF]) so they print with a prefix like resistors: "
+                "470.0 nF, 2.2 µF; a formula using C multiplies by 1E-12. Times always show in "
+                "engineering notation. Large values "
                 "show as 4.7 k or 1.2 M, others as plain numbers (1.911) when every value of that "
                 "quantity is 0.01 or more; smaller ones in engineering notation whose exponent "
                 "names the prefix: E-3 = m (milli), E-6 = µ (micro), E-9 = n (nano), E-12 = p "
@@ -121,15 +134,16 @@ _PRINT_LINE = (f"Every sheet prints one page wide but Points (two, its key colum
                f"{PRINT_ROWS} rows; the full tables are "
                "on screen and in designs.parquet and points.parquet beside the workbook. To print "
                "more, change or clear the sheet's print area.")
-_CHECK_NOTE = ("Change a part value (blue cells) to see the formula move; the engine's figures "
-               "stay as computed")
+_CHECK_NOTE = ("Change a part value or the control pin (blue cells; C in pF, a blank control pin "
+               "is the internal divider, 2/3 of the supply) to see the formula move; the "
+               "engine's figures stay as computed")
 
 
 # --- headers and number formats ----------------------------------------------------------------
 _SUFFIXES = (("_wc_min", "worst-case min"), ("_wc_max", "worst-case max"),
              ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std. dev."),
              ("_nom", "nominal"), ("_min", "min"), ("_max", "max"))
-_SPECIAL = {"verdict": ("Result", "text")}
+_SPECIAL = {"verdict": ("Verdict", "text"), "c_f": (CAP_HEADER, "cap")}
 
 
 def _split(name: str):
@@ -185,6 +199,16 @@ def eng_number_format(values, part: bool = False) -> str:
     return _PART_FORMAT[fmt] if part else fmt
 
 
+def _seconds(name: str) -> bool:
+    """A column of seconds (any statistic of a time): every sheet shows them in engineering
+    notation, one way, whatever their size."""
+    for prefix in ("ideal_", "real_", "f:"):
+        if name.startswith(prefix):
+            name = name[len(prefix):]
+    var = VARIABLES.get(name) or _split(name)[0]
+    return var is not None and var.unit == "s"
+
+
 def _quantity(name: str) -> str | None:
     """The "eng" quantity a column shows ('frequency_hz_wc_min' -> 'frequency_hz'), or None for
     a column that takes its own format (a Monte Carlo spread, a non-eng column)."""
@@ -229,6 +253,10 @@ def _quantity_formats(report: Report) -> dict[str, str]:
 
 def _number_format(kind: str, values, name: str = "", plan: dict | None = None) -> str | None:
     """Format of a column of registry format ``kind``; ``plan`` maps quantities to formats."""
+    if kind == "cap":
+        return CAP_FORMAT
+    if kind == "eng" and _seconds(name):
+        return ENG_FORMAT
     if kind == "eng":
         q = _quantity(name)
         if plan and q in plan:
@@ -309,11 +337,16 @@ def _header_row(ws, st: _Styles, row: int, headers: list[str], widths: list[floa
 
 
 def _width(header: str, kind: str, texts=None) -> float:
+    """Column width: room for the values, and for the header in at most three lines."""
     longest_word = max((len(w) for w in header.split()), default=4)
     if kind == "text":
         n = max((len(t) for t in texts), default=0) if texts is not None else 12
-        return float(min(48, max(10, longest_word + 2, n + 2)))
-    return float(min(18, max(10, longest_word + 2)))
+        w = float(min(48, max(10, longest_word + 2, n + 2)))
+    else:
+        w = float(min(18, max(10, longest_word + 2)))
+    while _lines(header, w) > 3 and w < 40:
+        w += 1.0
+    return w
 
 
 def _note_row(ws, st: _Styles, row: int, text: str) -> None:
@@ -333,6 +366,7 @@ class _Col:
     text_props: dict | None = None   # style of a non-empty text cell
     value_props: dict | None = None  # style of a text cell by its text, in place of text_props
     fail_extra: dict | None = None   # added to the row's fail style in this column
+    empty_text: np.ndarray | None = None  # text written where a number is missing: why
 
     def cell_props(self) -> dict:
         """Format of a number or boolean cell of this column."""
@@ -355,6 +389,8 @@ def _columns(frame: pd.DataFrame, names: list[str], header=column_header,
                 v = s.to_numpy(np.int64)
             else:
                 v = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+            if kind_fmt == "cap":
+                v = v * CAP_SCALE
             cols.append(_Col(name, header(name), "num", v, _number_format(kind_fmt, v, name, plan),
                              _width(header(name), "num")))
         else:
@@ -387,6 +423,7 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
     n = len(cols[0].values) if cols else 0
     n = min(n, _MAX_ROWS - first_row - 1)
     text_idx = [i for i, c in enumerate(cols) if c.kind == "text"]
+    why_idx = [i for i, c in enumerate(cols) if c.empty_text is not None]
     runs, start = [], None
     for i, c in enumerate(cols + [None]):
         if c is not None and c.kind != "text":
@@ -418,6 +455,11 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
                     if s:
                         props = (cols[i].value_props or {}).get(s, cols[i].text_props)
                         _text(ws, st, r, i, s, **(props or {}))
+            for i in why_idx:
+                if row[i] is None and cols[i].empty_text[lo + k]:
+                    extra = {**fail_props, **(cols[i].fail_extra or {})} if fails and fails[k] else {}
+                    _text(ws, st, r, i, cols[i].empty_text[lo + k],
+                          **{"italic": True, "align": "right", **extra})
             r += 1
     return first_row + n
 
@@ -545,48 +587,42 @@ def _spec_text(s, var) -> str:
     return ", ".join(parts)
 
 
-RESULT_LABELS = {
-    "pass": "the nominal parts keep every limit and meet the spec at every condition point "
-            "(for tolerance builds see Yield)",
-    "spec miss": "feasible (no limit broken, in spec at the nominal condition), but the spec is "
-                 "missed at some other condition point: see Flags and Yield",
-    "off spec": "not feasible: no limit broken, but the design misses the spec at the nominal "
-                "condition",
-    "limit": "not feasible: a part or timer limit is broken at some condition point (see Flags)",
-}
-_RESULT_NOTE = "Result: " + "; ".join(f"{k} = {v}" for k, v in RESULT_LABELS.items()) + "."
-_RESULT_SHORT = ("Result: pass = in spec and within limits at every condition (builds: see Yield); "
-                 "spec miss = feasible, but some condition misses the spec; off spec = misses the "
-                 "spec at the nominal condition; limit = a limit is broken (see Flags).")
+def _verdict_note(report: Report) -> str:
+    return "Verdict: " + "; ".join(f"{k} = {v}" for k, v in report.verdicts.items()) + "."
 
 
-def result_labels(designs: pd.DataFrame) -> np.ndarray:
-    """The Designs sheet's Result word of each design (keys of RESULT_LABELS), from its
-    ``feasible`` and ``flags`` columns: a limit flag wins, then infeasible, then spec-miss."""
-    n = len(designs)
-    flags = (designs["flags"].fillna("").astype(str) if "flags" in designs.columns
-             else pd.Series("", index=designs.index))
-    feasible = (designs["feasible"].fillna(False).astype(bool).to_numpy()
-                if "feasible" in designs.columns else np.ones(n, dtype=bool))
-    codes = flags.str.split()
-    limit = codes.map(lambda c: any(x != "spec-miss" for x in c)).to_numpy(dtype=bool)
-    miss = codes.map(lambda c: "spec-miss" in c).to_numpy(dtype=bool)
-    out = np.full(n, "pass", dtype=object)
-    out[miss] = "spec miss"
-    out[~feasible] = "off spec"
-    out[limit] = "limit"
-    return out
+def _verdict_short(report: Report) -> str:
+    return ("Verdict (one word per design, the same in every output): "
+            + ", ".join(report.verdicts) + "; the Notes sheet says what each means.")
+
+
+#: verdicts that fail outright (bold on the fail fill) and those that pass with a reservation
+_FAILING = ("spec miss", "limit", "stalls")
+_RESERVED = ("low yield", "not sampled")
+
+
+def _margin_why(df: pd.DataFrame) -> np.ndarray:
+    """Why a design's worst-case margin cell is empty: it stalls, or there is no spec limit."""
+    n = len(df)
+    stalls = (df["stalls_at"].fillna("").astype(str).to_numpy() if "stalls_at" in df
+              else np.full(n, "", dtype=object))
+    m = df["wc_margin"].to_numpy(float)
+    return np.where(stalls != "", "stalls (see Stalls at)",
+                    np.where(m == np.inf, "no spec limit",
+                             np.where(np.isfinite(m), "", "no worst case"))).astype(object)
 
 
 def _designs(ws, st: _Styles, report: Report) -> None:
     df = report.designs.copy()
     keys = [c for c in ["rank", "design", *report.part_columns] if c in df.columns]
-    df["verdict"] = result_labels(df)
-    fail = np.isin(df["verdict"].to_numpy(), ["off spec", "limit"])
+    if "verdict" not in df:
+        df["verdict"] = ""
+    fail = np.isin(df["verdict"].to_numpy(), _FAILING)
     # the columns a reviewer reads first (and the printed ones): keys, result, the verdict
     # figures and the main output's nominal, min and max; then the rest as the report orders it
     main = report.main_output
-    lead = [c for c in ("feasible", "yield", "wc_margin", "sn_db",
+    lead = [c for c in ("yield", "yield_lo", "yield_hi", "wc_margin", "stalls_at", "feasible",
+                        "sn_db",
                         *((f"{main}_nom", f"{main}_min", f"{main}_max") if main else ()))
             if c in df.columns]
     rest = [c for c in df.columns if c not in keys + lead and c not in ("verdict", "flags")]
@@ -596,12 +632,15 @@ def _designs(ws, st: _Styles, report: Report) -> None:
         if c.name == "verdict":
             # words first (they read in grey-scale print); then type style: "pass" plain,
             # "spec miss" italic, the infeasible ones bold on the fail fill in an italic row
-            c.width, c.fail_extra = 10.0, {"bold": True, "align": "center"}
+            c.width, c.fail_extra = 11.0, {"bold": True, "align": "center"}
             c.text_props = {"bg_color": _PASS_FILL, "align": "center"}
-            c.value_props = {"spec miss": {"bg_color": _FLAG_FILL, "italic": True,
-                                           "align": "center"}}
-    # the Result header's note (before row 0 is written: constant_memory keeps no past rows)
-    ws.write_comment(0, len(keys), _RESULT_NOTE, {"x_scale": 3, "y_scale": 3})
+            c.value_props = {w: {"bg_color": _FLAG_FILL, "italic": True, "align": "center"}
+                             for w in _RESERVED}
+        elif c.name == "wc_margin":
+            c.empty_text = _margin_why(df)
+            c.width = max(c.width, 14.0)
+    # the Verdict header's note (before row 0 is written: constant_memory keeps no past rows)
+    ws.write_comment(0, len(keys), _verdict_note(report), {"x_scale": 3, "y_scale": 3})
     last = _write_table(ws, st, cols, 0, fail=fail,
                         fail_props={"italic": True, "bg_color": _FAIL_FILL})
     ws.freeze_panes(1, len(keys) + 1)
@@ -612,7 +651,7 @@ def _designs(ws, st: _Styles, report: Report) -> None:
                         + (f" and {PRINT_ROWS} rows" if len(df) > PRINT_ROWS else "")
                         + f". The full table ({len(df):,} design{'' if len(df) == 1 else 's'}, "
                         f"{len(cols)} columns) is on screen and in designs.parquet."),
-                footer=_RESULT_SHORT)
+                footer=_verdict_short(report))
 
 
 def _points(ws, st: _Styles, report: Report) -> None:
@@ -644,9 +683,9 @@ def _points(ws, st: _Styles, report: Report) -> None:
 
 
 def _parts(ws, st: _Styles, report: Report) -> None:
-    heads = {"rank": "Rank", "design": "Design", "ref": "Ref.", "value_text": "Value",
+    heads = {"rank": "Rank", "design": "Design", "verdict": "Verdict", "ref": "Ref.", "value_text": "Value",
              "rkm": "RKM code", "series": "Series", "tolerance": "Tolerance",
-             "technology": "Technology", "rating": "Rating"}
+             "technology": "Technology", "rating": "Rating", "note": "Note"}
     df = report.parts
     names = [n for n in heads if n in df.columns]
     if "tolerance" in names:
@@ -664,29 +703,24 @@ def _parts(ws, st: _Styles, report: Report) -> None:
     _page_setup(ws, 0)
 
 
-# Check-sheet formulas [book: DOMAIN.md section 2; any circuits text]
-def _check_formulas(circuit: str, ref: dict, vc_given: bool, helpers: bool) -> dict[str, str]:
-    """Live formulas (without '=') for one Check row. ref maps ra/rb/r/c/vcc/vc/vd to cells."""
-    RA, RB, R, C, VCC, VD = (ref.get(k) for k in ("ra", "rb", "r", "c", "vcc", "vd"))
-    VC = ref["vc"] if vc_given else f"(2/3*{VCC})"
+# Check-sheet formulas [book: any circuits text; the RC law]
+def _check_formulas(circuit: str, ref: dict) -> dict[str, str]:
+    """Live formulas (without '=') for one Check row. ref maps ra/rb/r/c/vcc/vc/vd/th/tl to
+    cells; the C cell holds picofarads. Every formula reads the control-pin cell: blank means
+    the internal divider, 2/3 of the supply."""
+    RA, RB, R, VCC, VD = (ref.get(k) for k in ("ra", "rb", "r", "vcc", "vd"))
+    C = f"({ref['c']}*1E-12)"
+    VC = f"IF(ISBLANK({ref['vc']}),2/3*{VCC},{ref['vc']})"
     if circuit == "monostable":
-        if vc_given:
-            return {"pulse_width_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
-        return {"pulse_width_s": f"LN(3)*{R}*{C}"}
-    if circuit == "astable" and not helpers:
-        return {"frequency_hz": f"1/(LN(2)*({RA}+2*{RB})*{C})",
-                "duty": f"({RA}+{RB})/({RA}+2*{RB})"}
-    if circuit == "astable-symmetric" and not helpers:
-        return {"frequency_hz": f"1/(2*LN(2)*{R}*{C})", "duty": "1/2"}
+        return {"pulse_width_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
     if circuit == "astable":
-        th = (f"({RA}+{RB})*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))" if vc_given
-              else f"LN(2)*({RA}+{RB})*{C}")
+        th = f"({RA}+{RB})*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))"
         tl = f"LN(2)*{RB}*{C}"
     elif circuit == "astable-diode":
         th = f"{RA}*{C}*LN(({VCC}-{VD}-{VC}/2)/({VCC}-{VD}-{VC}))"
         tl = f"LN(2)*{RB}*{C}"
     elif circuit == "astable-symmetric":
-        th = f"{R}*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))" if vc_given else f"LN(2)*{R}*{C}"
+        th = f"{R}*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))"
         tl = f"LN(2)*{R}*{C}"
     else:
         return {}
@@ -750,13 +784,12 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
             return np.full(n, default, float)
         return pd.to_numeric(chk[name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
 
-    vc_given = np.isfinite(col("control_voltage_v"))
-    helpers = circuit == "astable-diode" or (circuit in ("astable", "astable-symmetric")
-                                            and bool(vc_given.any()))
+    helpers = circuit != "monostable"
     # layout: inputs, then (helpers), then per output: formula, ideal, realistic, difference
     layout = [("rank", "Rank", "int", "key"), ("design", "Design", "int", "key")]
-    layout += [(p, column_header(p), VARIABLES[p].fmt if p in VARIABLES else "general", "input")
-               for p in parts]
+    if "verdict" in chk.columns:
+        layout.append(("verdict", "Verdict", "text", "key"))
+    layout += [(p, column_header(p), column_format(p), "input") for p in parts]
     layout += [("vcc_v", column_header("vcc_v"), "fixed2", "input"),
                ("control_voltage_v", column_header("control_voltage_v") + " (blank: divider)",
                 "fixed2", "input")]
@@ -776,6 +809,10 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
     ideal = {o: col(f"ideal_{o}") for o in outputs}
     values = {name: col(name, 0.0 if name == "diode_drop_v" else np.nan) for name, *_r in layout
               if not name.startswith(("f:", "d:"))}
+    if "c_f" in values:
+        values["c_f"] = values["c_f"] * CAP_SCALE
+    if "verdict" in values:
+        values["verdict"] = chk["verdict"].fillna("").astype(str).to_numpy(dtype=object)
     if "frequency_hz" in ideal:   # engine's own high/low times, as cached helper results
         f, d = ideal["frequency_hz"], ideal.get("duty", np.full(n, np.nan))
         ideal["high_time_s"], ideal["low_time_s"] = d / f, (1 - d) / f
@@ -792,8 +829,9 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
             props.update(bold=True)
         fmts[name] = props
     # narrow key columns and headers wrapped by word keep the sheet readable printed one page wide
-    widths = [8.0 if role == "key" else max(11.0, min(15.0, max(len(w) for w in h.split()) + 2))
-              for _, h, _k, role in layout]
+    widths = [(10.0 if name == "verdict" else 8.0) if role == "key"
+              else max(11.0, min(15.0, max(len(w) for w in h.split()) + 2))
+              for name, h, _k, role in layout]
     for i, w in enumerate(widths):
         ws.set_column(i, i, w)
     # the notes wrap within the table's width, so they do not widen the printed page
@@ -808,16 +846,12 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
                "c": cell.get("c_f"), "vcc": cell["vcc_v"], "vc": cell["control_voltage_v"],
                "vd": cell.get("diode_drop_v"), "th": cell.get("f:high_time_s"),
                "tl": cell.get("f:low_time_s")}
-        formulas = _check_formulas(circuit, ref, bool(vc_given[k]), helpers)
+        formulas = _check_formulas(circuit, ref)
         for name, head, kind, role in layout:
             c = pos[name]
             if role in ("key", "input", "engine"):
                 v = values[name][k]
-                if name == "control_voltage_v" and not vc_given[k]:
-                    _value(ws, st, r, c, None, **{**fmts[name], "bg_color": _HEADER_FILL,
-                                                  "font_color": None})
-                else:
-                    _value(ws, st, r, c, v, **fmts[name])
+                _value(ws, st, r, c, v, **fmts[name])
             elif role == "formula":
                 out = name[2:]
                 cached_v = _finite(ideal[out][k]) if cached else 0
@@ -828,7 +862,10 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
                 fc, ic = cell[f"f:{out}"], cell[f"ideal_{out}"]
                 ws.write_formula(r, c, f"={fc}/{ic}-1", st.get(**fmts[name]), 0)
     ws.freeze_panes(hr + 1, 2)
-    _page_setup(ws, hr)
+    # more than ten columns print two pages wide, rank and design repeated, so the type stays
+    # readable (18 columns on one landscape page print too small)
+    wide = len(layout) > 10
+    _page_setup(ws, hr, pages_wide=2 if wide else 1, repeat_cols=2 if wide else 0)
 
 
 def _study(ws, st: _Styles, report: Report, file_name: str) -> None:
@@ -843,10 +880,11 @@ def _study(ws, st: _Styles, report: Report, file_name: str) -> None:
         _text(ws, st, 1, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1)
     for i, (section, key, value, meaning) in enumerate(report.study_rows):
         r = 2 + i
-        _text(ws, st, r, 0, section)
-        _text(ws, st, r, 1, key)
-        _text(ws, st, r, 2, value, num_format="@")
-        _text(ws, st, r, 3, meaning)
+        ws.set_row(r, 15 * max(_lines(value, 40), _lines(meaning, 70)))
+        _text(ws, st, r, 0, section, valign="top")
+        _text(ws, st, r, 1, key, valign="top")
+        _text(ws, st, r, 2, value, num_format="@", text_wrap=True, valign="top")
+        _text(ws, st, r, 3, meaning, text_wrap=True, valign="top")
     ws.freeze_panes(2, 0)
     _page_setup(ws, 1)
 
@@ -859,7 +897,7 @@ def _notes(ws, st: _Styles, report: Report) -> None:
     rows = [(t, x, {}) for t, x in report.notes]
     rows += [("Caution", x, {"bold": True}) for x in report.cautions]
     rows += [("Number formats", _FORMAT_LINE, {}),
-             ("Result column", _RESULT_NOTE[len("Result: "):], {}),
+             ("Verdict", _verdict_note(report)[len("Verdict: "):], {}),
              ("Printing", _PRINT_LINE, {}), ("Safety", _SAFETY_LINE, {"bold": True})]
     for i, (topic, text, props) in enumerate(rows):
         r = 1 + i
