@@ -57,6 +57,9 @@ class Variation:
     drift_per_k: np.ndarray | float = 0.0
     supply_per_v: np.ndarray | float = 0.0
     leak: np.ndarray | float = 1.0       # capacitor leakage relative to its typical figure
+    dc_bias: np.ndarray | float = 1.0    # class II DC-bias loss relative to its typical curve
+    diode_is: np.ndarray | float = 1.0   # diode saturation current relative to its typical figure
+    iq: np.ndarray | float = 1.0         # timer quiescent current relative to its typical figure
 
 
 def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
@@ -73,9 +76,10 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
         for k, m in variation.part.items():
             if k in kw:
                 kw[k] = kw[k] * m
-    leak = 1.0 if variation is None else variation.leak
-    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal,
-                   leak_factor=leak, **kw)
+    spreads = {} if variation is None else dict(
+        leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
+        diode_is_factor=variation.diode_is, iq_factor=variation.iq)
+    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
         vnom = next((a.nominal for a in study.conditions if a.key == "vcc"), study.timer.typical_v)

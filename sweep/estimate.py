@@ -9,6 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .analysis import Options, analyse_block, summary_outputs, varied_parts
+from .spreads import extra_spreads
 from .engine import DEFAULT_CHUNK, axis_values, evaluate_block
 from .errors import InputError
 from .study import Study
@@ -31,7 +32,7 @@ class Estimate:
 
 def estimate(study: Study, sample: int = 20_000) -> Estimate:
     nd, nc = study.n_designs, study.n_conditions
-    corners = 2 ** len(varied_parts(study))
+    corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, False)))
     from .pipeline import MC_DESIGNS
     evals = (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
              + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
@@ -66,6 +67,7 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     return Estimate(nd * nc, evals, int(mem), seconds, rate, write)
 
 
+CELL_SECONDS = 10e-6    # a workbook cell when the sample cannot be timed [measured: 6-12 us]
 PAGE_SECONDS = 0.5      # the chart page: plotly's script and six charts [measured: 0.45-0.53 s
                         # for the example studies]
 PAGE_DESIGN_SECONDS = 20e-6   # per design drawn on the page (up to its cap) [measured]
@@ -86,13 +88,16 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
     nd, nc = study.n_designs, n_conditions or study.n_conditions
     _, pts = analyse_block(study, 0, max(1, min(k, 2000 // max(study.n_conditions, 1))), Options(monte_carlo=0,
                                                                                 keep_points=True))
-    with tempfile.TemporaryDirectory() as tmp:
-        wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
-        ws = wb.add_worksheet("Points")
-        t0 = time.perf_counter()
-        _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
-        wb.close()
-        cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
+    try:
+        with tempfile.TemporaryDirectory() as tmp:
+            wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
+            ws = wb.add_worksheet("Points")
+            t0 = time.perf_counter()
+            _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
+            wb.close()
+            cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
+    except Exception:       # a measurement only: a full temporary disk must not stop the run
+        cell_s = CELL_SECONDS
     n_cols = pts.shape[1]
     d_cols = 7 * len(summary_outputs(study)) + 25
     cells = min(nd * nc, WORKBOOK_POINTS) * n_cols + min(nd, WORKBOOK_DESIGNS) * d_cols

@@ -7,7 +7,7 @@ import pandas as pd
 
 from . import values as qv
 from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
-                       tolerance_of, yield_target)
+                       timer_bands, tolerance_of, yield_target)
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
@@ -206,16 +206,24 @@ NOTES = [
                         "transistor's surge current; the dump's energy in the transistor is "
                         "checked against the timer file's limit [mem], and the Dump time column "
                         "says how long it lasts."),
-    ("Worst case", "Every tolerance corner of every timing part at every condition point, with the "
-                   "timer's initial accuracy, drift (ppm/K) and supply sensitivity (%/V) at their "
-                   "maximum figures (3 x typical where the data gives none) as a band on the "
-                   "timing [ds-bip]."),
+    ("Worst case", "Every corner of every spread at every condition point: each timing part at "
+                   "its tolerance together with the resistor tempco of either sign or the "
+                   "capacitor at the edge of its temperature envelope (zero at 25 °C, widening "
+                   "linearly to the EIA-198 band at the code's limits, never inside the typical "
+                   "curve [std; derived]) and a class II DC-bias loss 1/1.6 to 1.6 x typical "
+                   "[cp]; electrolytic leakage from typical to the specification maximum [cp]; "
+                   "the diode's saturation current /3 to x3 [mem]; quiescent current to its "
+                   "maximum [ds-bip]. The timer's initial accuracy, drift (ppm/K) and supply "
+                   "sensitivity (%/V) at their maximum figures (3 x typical where the data gives "
+                   "none) are a band on the timing [ds-bip]."),
     ("Monte Carlo", "Builds are scrambled Sobol points (scipy.stats.qmc, seeded by the study's "
                     "seed), mapped through the normal or uniform inverse distribution; the same "
                     "builds for every design, whatever the block split. Each part is normal with "
                     "its tolerance as 3 sigma, clipped at the tolerance (or uniform over it); the "
                     "timer's accuracy, drift and supply sensitivity are normal with sigma = the "
-                    "typical figure / [analysis] typical_sigma, clipped at the maximum. Each build "
+                    "typical figure / [analysis] typical_sigma, clipped at the maximum; the other "
+                    "spreads of the worst case are drawn with their bound as 3 sigma, clipped at "
+                    "it, one draw per build across every condition. Each build "
                     "is evaluated at every condition point. Yield = share of builds meeting every "
                     "spec limit at every condition, with its 95 % Wilson score interval [book: "
                     "E. B. Wilson, 1927]."),
@@ -310,10 +318,10 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     design = {a.key: np.array([best[a.column]]) for a in study.design}
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     n = study.monte_carlo
-    var = mc_variation(study, mc_draws(study, n), slice(None))
     nc = study.n_conditions
     if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
         cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
+    var = mc_variation(study, mc_draws(study, n), slice(None), cond, ideal)
     v = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]]
     v = np.broadcast_to(v, (1, n, len(next(iter(cond.values()))))).ravel()
     if len(v) > cap:
@@ -338,14 +346,23 @@ def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.D
     v_axis = next(a for a in study.conditions + study.design if a.key == "vcc")
     vccs = np.unique([v_axis.values.min(), v_axis.nominal or np.median(v_axis.values), v_axis.values.max()])
     design = {a.key: top[a.column].to_numpy() for a in study.design}
+    v_nom = float(v_axis.nominal) if v_axis.nominal is not None else float(np.median(v_axis.values))
     rows = []
     for v in vccs:
         cond = {"vcc": np.full(len(temps), v), "temperature": temps}
         for k, val in nominal_conditions(study).items():
             cond.setdefault(k, np.full(len(temps), val))
         out = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)[main[0]][:, 0, :]
+        # the chip's own drift and supply sensitivity, of unknown sign: a band around each line,
+        # typical (one sigma as read) and maximum [ds-bip], [ds-cmos]
+        bands = {}
+        for which in ("typ", "max"):
+            _acc, drift, sens = (0.0, 0.0, 0.0) if ideal else timer_bands(study, which)
+            scale = 1.0 / study.typical_sigma if which == "typ" else 1.0
+            bands[which] = scale * (drift * np.abs(temps - 25.0) + sens * abs(v - v_nom))
         for i, r in enumerate(top["rank"].to_numpy()):
-            rows.append(pd.DataFrame({"rank": int(r), "vcc_v": v, "temperature_c": temps, "value": out[i]}))
+            rows.append(pd.DataFrame({"rank": int(r), "vcc_v": v, "temperature_c": temps, "value": out[i],
+                                      "drift_typ": bands["typ"], "drift_max": bands["max"]}))
     return pd.concat(rows, ignore_index=True)
 
 

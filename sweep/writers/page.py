@@ -807,14 +807,17 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
         + ("Colour and marker shape tell the designs apart, the dash pattern tells the supply. "
            if len(ranks) > 1 else "The dash pattern tells the supply. ")
         + "Flat lines that stay close together mean the design shrugs off heat and supply "
-          "changes; a steep or fanning line shows where its margin goes. Click a legend entry "
-          "to hide a line.")
+          "changes; a steep or fanning line shows where its margin goes. The grey band around "
+          "the best design's middle-supply line is the chip's own drift and supply "
+          "sensitivity, whose sign no datasheet gives: darker its typical spread, lighter its "
+          "maximum. Click a legend entry to hide a line.")
     vccs = sorted(pd.unique(tc["vcc_v"]))
     design_of = {}
     if "rank" in ds.table.columns and "design" in ds.table.columns:
         design_of = dict(zip(ds.table["rank"], ds.table["design"]))
     unit = _fmt_unit(main)
     fig = go.Figure()
+    _drift_band(fig, tc, ranks[0], vccs, unit)
     for i, r in enumerate(ranks):
         colour, symbol = PALETTE[i % len(PALETTE)], SYMBOLS[i % len(SYMBOLS)]
         group = f"Rank {r}" + (f" (design {design_of[r]})" if r in design_of else "")
@@ -845,6 +848,26 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
                       margin=dict(r=20, t=20))
     sec.figure = fig
     return sec
+
+
+def _drift_band(fig, tc: pd.DataFrame, rank, vccs, unit: str) -> None:
+    """Shaded bands around the best design's line at the middle supply: the chip's drift and
+    supply sensitivity at their maximum (light) and typical (darker) figures."""
+    if not {"drift_typ", "drift_max"} <= set(tc.columns):
+        return
+    v = vccs[len(vccs) // 2]
+    sub = tc[(tc["rank"] == rank) & (tc["vcc_v"] == v)]
+    if sub.empty or not np.any(sub["drift_max"].to_numpy(float) > 0):
+        return
+    t = sub["temperature_c"].to_numpy(float)
+    y = sub["value"].to_numpy(float)
+    for col, shade, name in (("drift_max", "rgba(120,120,120,0.16)", "chip drift, maximum"),
+                             ("drift_typ", "rgba(120,120,120,0.30)", "chip drift, typical")):
+        w = sub[col].to_numpy(float)
+        fig.add_trace(go.Scatter(
+            x=np.r_[t, t[::-1]], y=np.r_[y * (1 + w), (y * (1 - w))[::-1]], fill="toself",
+            fillcolor=shade, line=dict(width=0), mode="lines", name=name, legendgroup="drift",
+            hoverinfo="skip"))
 
 
 # --- 6. parallel coordinates -------------------------------------------------------------------
