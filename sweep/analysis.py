@@ -420,8 +420,9 @@ VERDICTS = {
     "not sampled": "within every limit and in spec with nominal parts; no Monte Carlo ran for it",
     "spec miss": "with nominal parts it misses a spec limit at some condition",
     "limit": "breaks a part or timer limit at some condition (see Flags)",
-    "stalls": "the timer stalls (its capacitor never reaches the threshold) at some condition "
-              "or tolerance corner (see Stalls at)",
+    "stalls": "with nominal parts the timer stalls (its capacitor never reaches the threshold) "
+              "at some condition (see Stalls at); a stall only at a worst-case corner shows in "
+              "Stalls at and counts against the yield",
 }
 
 
@@ -434,7 +435,7 @@ def verdicts(study: Study, d: pd.DataFrame, n_mc: int) -> np.ndarray:
     """The verdict word of each design (keys of VERDICTS), from its flags, stall text and yield
     interval: stalls, then limit, then spec miss, then the yield."""
     mask = d["flag_mask"].to_numpy().astype(np.uint32)
-    stalls = d["stalls_at"].fillna("").astype(str).to_numpy() != ""
+    stalls = (mask & STALL_BIT) != 0            # with nominal parts at some condition
     hi = d["yield_hi"].to_numpy(float)
     out = np.full(len(d), "pass", dtype=object)
     if study.spec and n_mc > 0:

@@ -170,7 +170,8 @@ def discharge_surge_caution(study: Study, top: pd.DataFrame) -> str:
     return (f"Discharge surge: when the pulse ends, the timing capacitor (at {v_top:.2g} V) dumps "
             "straight into the discharge transistor, more energy than it is taken to survive "
             f"(flag discharge-current-over-limit). Put about {eng(r, 'ra_ohm')} in series between "
-            "the discharge pin and the capacitor (the threshold pin stays on the capacitor): "
+            "the discharge pin and the capacitor (the threshold pin stays on the capacitor; "
+            f"study key [parts] discharge_resistor = \"{eng(r, 'ra_ohm').replace(' ', '').rstrip('Ω')}\"): "
             f"that keeps the peak near {timer.discharge_max_a * 1e3:.0f} mA and leaves the pulse "
             "width as it is.")
 

@@ -48,7 +48,9 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
               "diode_saturation_current": ("A", "the diode's saturation current at 25 °C"),
               "diode_ideality": ("", "the diode's ideality factor"),
               "diode_drop": ("V", "a fixed forward drop instead of the Shockley diode"),
-              "dc_bias_loss": ("", "fractional capacitance loss at rated voltage (class II ceramics)")},
+              "dc_bias_loss": ("", "fractional capacitance loss at rated voltage (class II ceramics)"),
+              "discharge_resistor": ("ohm", "monostable: a resistor between the discharge pin and "
+                                            "C that limits the capacitor's dump, default none")},
     "load": {"resistance": ("ohm", "load on the output; absent: no load"),
              "to": ("text", "ground (output sources current) | supply (output sinks it)"),
              "forward_voltage": ("V", "drop of an LED or diode in series with the load"),
@@ -484,7 +486,8 @@ class _Parser:
                           ("diode_drop", "diode_drop_v"),
                           ("diode_saturation_current", "diode_saturation_current_a"),
                           ("diode_ideality", "diode_ideality"),
-                          ("dc_bias_loss", "dc_bias_loss")):
+                          ("dc_bias_loss", "dc_bias_loss"),
+                          ("discharge_resistor", "discharge_resistor_ohm")):
             if key in p:
                 kw[attr] = self.quantity("parts", key, p[key], units[key][0],
                                          allow_negative=key == "resistor_tempco")
@@ -496,6 +499,12 @@ class _Parser:
             if attr in kw and kw[attr] <= 0:
                 self.fail("parts", key, "must be greater than zero")
         self._diode(p, kw)
+        if "discharge_resistor_ohm" in kw:
+            if self.data.get("study", {}).get("circuit") != "monostable":
+                self.fail("parts", "discharge_resistor", "applies to the monostable only (in an "
+                          "astable RB already sits between the discharge pin and C)")
+            if not 0 <= kw["discharge_resistor_ohm"] <= 10e3:
+                self.fail("parts", "discharge_resistor", "must be from 0 to 10 kΩ")
         if "resistor_tempco_per_k" in kw and abs(kw["resistor_tempco_per_k"]) > 0.01:
             self.fail("parts", "resistor_tempco", "beyond +-10 000 ppm/K: check the unit (ppm)")
         if "capacitor" in p:

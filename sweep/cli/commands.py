@@ -142,6 +142,7 @@ def point(
     diode_ideality: Annotated[Optional[str], typer.Option(help="Ideality factor, e.g. 1.75")] = None,
     diode_drop: Annotated[Optional[str], typer.Option(help="A fixed drop instead of the Shockley diode, e.g. 0.7V")] = None,
     dc_bias_loss: Annotated[Optional[str], typer.Option()] = None,
+    discharge_resistor: Annotated[Optional[str], typer.Option(help="Monostable: resistor between the discharge pin and C (default: none)")] = None,
     load: Annotated[Optional[str], typer.Option(help="Load resistance, e.g. 1k (default: none)")] = None,
     load_to: Annotated[Optional[str], typer.Option(help="ground | supply")] = None,
     load_forward_voltage: Annotated[Optional[str], typer.Option(help="LED drop in series with the load")] = None,

@@ -262,7 +262,10 @@ def _monostable(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, v_u
     tpd = timer.propagation_delay_s
     # at rest the discharge transistor holds C: R from VCC, V_sat0 + R_sat, leakage and the
     # threshold input current [derived: Kirchhoff's current law]
-    r_sat = timer.saturation_ohm
+    # threshold input current; a resistor R_s between the discharge pin and C is in series with
+    # the saturation resistance [derived: Kirchhoff's current law]
+    r_s = parts.discharge_resistor_ohm
+    r_sat = timer.saturation_ohm + r_s
     if r_sat > 0:
         v0 = ((vcc / r_t + timer.saturation_v / r_sat - i_draw)
               / (1.0 / r_t + 1.0 / r_sat + g_leak))
@@ -281,14 +284,15 @@ def _monostable(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, v_u
                         vcc * iq[False] + stage.v_low * stage.i_low
                         + v0 * i_idle_r)
     v_top = ph.v_end_v
-    # at the pulse's end the capacitor dumps straight into the transistor [derived]
+    # at the pulse's end the capacitor dumps into the transistor, through R_s if there is one
+    # [derived]
     with np.errstate(all="ignore"):
         dump = np.minimum((v_top - timer.saturation_v) / max(r_sat, 1e-12), timer.surge_current_a)
     nan = np.full_like(pw, np.nan)
     out = dict(high_time_s=pw, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
                pulse_width_s=pw, supply_current_a=supply, idle_current_a=idle,
                discharge_peak_a=dump + i_idle_r, ra_power_w=(vcc - v0) ** 2 / r_t)
-    return out, stalls, p_chip, _surge(timer, curve, v_top, v0, 0.0), i_idle_r
+    return out, stalls, p_chip, _surge(timer, curve, v_top, v0, r_s), i_idle_r
 
 
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,

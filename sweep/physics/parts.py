@@ -89,6 +89,7 @@ class Parts:
     diode_ideality: float | None = None               # None: the diode's figure
     diode_drop_v: float | None = None      # a fixed forward drop instead of the Shockley law
     dc_bias_loss: float | None = None      # None: the technology's default
+    discharge_resistor_ohm: float = 0.0    # monostable: in series between discharge pin and C
 
     @property
     def technology(self) -> Capacitor:
