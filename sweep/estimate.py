@@ -30,12 +30,29 @@ class Estimate:
     write_seconds: float = 0.0   # of which writing the workbook, page and tables
 
 
-def estimate(study: Study, sample: int = 20_000) -> Estimate:
+def evaluations(study: Study) -> int:
+    """Model evaluations of a run: the sweep, every worst-case corner, the elasticities and the
+    Monte Carlo of at most MC_DESIGNS designs (exact integers: no overflow)."""
     nd, nc = study.n_designs, study.n_conditions
     corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, False)))
     from .pipeline import MC_DESIGNS
-    evals = (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
-             + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
+    return (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
+            + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
+
+
+#: a study this small cannot reach any limit of the size guard, so `run` does not time it
+#: (under 1e6 points and 2e8 evaluations: minutes at the slowest rate measured, 5e5 per second)
+SMALL_POINTS, SMALL_EVALUATIONS = 1_000_000, 200_000_000
+
+
+def clearly_small(study: Study) -> bool:
+    """True when the study is far inside every limit of the size guard, without timing it."""
+    return study.n_points <= SMALL_POINTS and evaluations(study) <= SMALL_EVALUATIONS
+
+
+def estimate(study: Study, sample: int = 20_000) -> Estimate:
+    nd, nc = study.n_designs, study.n_conditions
+    evals = evaluations(study)
     # measure this machine on a slice of the study itself: one block of the first pass (sweep,
     # corners, elasticities) and one Monte Carlo evaluation of the same size. The slice has at
     # most `sample` conditions, so nothing here grows with the sweep before the guard speaks.
@@ -56,6 +73,7 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     # of the sample that can
     write = write_seconds(study, k, full_nc)
     nc = full_nc
+    from .pipeline import MC_DESIGNS
     seconds = nd * nc * per_point + min(nd * reach, MC_DESIGNS) * nc * study.monte_carlo / rate
     seconds += write
     # memory: the libraries, a few blocks of arrays, the ranking keys of every design, and the

@@ -57,7 +57,7 @@ def run(study: StudyArg,
         quiet: Quiet = False):
     """Sweep a study and write the workbook, chart page, parquet tables and run record."""
     from ..study import load_study
-    from ..estimate import estimate, guard
+    from ..estimate import clearly_small, estimate, guard
     from ..pipeline import run_study
     from .show import progress_bar, top_table
 
@@ -70,9 +70,8 @@ def run(study: StudyArg,
         check_address(scheduler)
     st = load_study(study)
     out_dir = Path(out) if out is not None else Path("outputs") / st.name
-    est = estimate(st)
-    if not yes:
-        guard(st, est)
+    if not yes and not clearly_small(st):
+        guard(st, estimate(st))
     mapper = None
     if scheduler:
         from ..parallel import dask_mapper
@@ -81,7 +80,7 @@ def run(study: StudyArg,
         from ..parallel import process_mapper
         mapper = process_mapper(workers)
     try:
-        with progress_bar(st.n_points, quiet or not sys.stderr.isatty(), est) as advance:
+        with progress_bar(st.n_points, quiet or not sys.stderr.isatty()) as advance:
             res = run_study(st, out_dir, ideal=ideal, all_points=all_points, progress=advance,
                             mapper=mapper, on_commit=lambda: STOPPED.update(written=True))
     finally:
