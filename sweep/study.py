@@ -321,7 +321,7 @@ class _Parser:
                 sec = "design" if k in {a.key for a in design} else "conditions"
                 self.fail(sec, k, f"not used by circuit {circuit} (it uses "
                           f"{', '.join(needed) or 'no timing parts'})")
-        # defaults: the timer's typical supply and 25 °C, as single conditions [PRODUCT.md]
+        # defaults: the timer's typical supply and 25 °C, as single conditions [the study-file contract in README.md]
         if "vcc" not in given:
             conditions = conditions + (Axis("vcc", "vcc_v", np.array([timer.typical_v]), "condition",
                                             nominal=timer.typical_v),)

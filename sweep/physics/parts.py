@@ -83,7 +83,7 @@ class Parts:
     capacitor: str = "X7R"
     capacitor_tolerance: float = 0.10      # [cp]
     capacitor_voltage_v: float = 50.0      # rating [cp]
-    stray_capacitance_f: float = 5e-12     # board and pins [cp: DOMAIN.md section 3]
+    stray_capacitance_f: float = 5e-12     # board and pins [cp: a few pF on a board, more on a plug-in breadboard]
     diode: str = "silicon"                 # diode of astable-diode: a DIODES entry
     diode_saturation_current_a: float | None = None   # at 25 °C; None: the diode's figure
     diode_ideality: float | None = None               # None: the diode's figure
@@ -122,7 +122,7 @@ class Load:
 
 
 def resistor_at(r_ohm, temperature_c, tempco_per_k):
-    """R(T) = R25 (1 + alpha (T - 25 °C)) [cp: DOMAIN.md section 4]. Returns ohms."""
+    """R(T) = R25 (1 + alpha (T - 25 °C)) [cp: resistor datasheets state the tempco this way]. Returns ohms."""
     return r_ohm * (1.0 + tempco_per_k * (temperature_c - 25.0))
 
 
@@ -159,7 +159,7 @@ def temperature_envelope(cap: Capacitor, temperature_c):
 
 
 def dc_bias_factor(cap: Capacitor, v_mean_v, v_rated_v, loss: float | None = None):
-    """Multiplier for DC-bias loss: 1 - k (V/Vrated)^1.3 [mem: DOMAIN.md section 3]; >= 0.05."""
+    """Multiplier for DC-bias loss: 1 - k (V/Vrated)^1.3 [mem]; >= 0.05."""
     k = cap.dc_bias_loss if loss is None else loss
     if k == 0.0:
         return 1.0
