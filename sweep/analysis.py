@@ -15,12 +15,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy.stats import norm, qmc
 
-from .engine import (TIMING, Variation, axis_values, evaluate_block, nominal_conditions,
+from .engine import (TIMING, Variation, axis_values, evaluate_block, flag_text, nominal_conditions,
                      spec_fail)
 from .physics import ASTABLES, FLAG_BITS
-from .physics.model import flag_names
 from . import values as qv
 from .spreads import (build_spreads, draw_names, tolerance_of, varied_parts,
                       worst_case_corners)
@@ -31,7 +29,7 @@ SPEC_BIT = np.uint32(FLAG_BITS["spec-miss"])
 LIMIT_BITS = np.uint32(sum(b for k, b in FLAG_BITS.items() if k != "spec-miss"))
 STALL_BIT = np.uint32(FLAG_BITS["timing-stalls"])
 SENS_STEP = 1e-4          # relative step of the central difference for elasticities [derived]
-Z95 = float(norm.ppf(0.975))   # two-sided 95 % normal quantile, 1.96 [book]
+Z95 = 1.959963984540054       # two-sided 95 % normal quantile [book: normal tables]
 YIELD_FLOOR = 0.95        # without [spec] yield, a yield interval below this is "low yield" [cp]
 
 
@@ -77,9 +75,11 @@ def mc_draws(study: Study, n: int) -> dict[str, np.ndarray]:
         return {k: np.zeros(0) for k in names}
     with warnings.catch_warnings():        # a count that is not a power of two is fine here
         warnings.simplefilter("ignore", UserWarning)
+        from scipy.stats import qmc     # imported here: scipy.stats costs ~1 s to import
         u = qmc.Sobol(d=len(names), scramble=True, seed=study.seed).random(n).T
     u = np.clip(u, 1e-12, 1 - 1e-12)
-    z = norm.ppf(u)
+    from scipy.special import ndtri     # the standard normal's inverse distribution function
+    z = ndtri(u)
     out = {}
     for i, k in enumerate(names):
         if k not in varied_parts(study):     # timer terms and the other spreads: the caller scales
@@ -318,13 +318,6 @@ def points_frame(study: Study, d_idx, c_idx, design, cond, out) -> pd.DataFrame:
     cols["flags"] = flag_text(mask)
     cols["ok"] = mask == 0
     return pd.DataFrame(cols)
-
-
-def flag_text(mask: np.ndarray) -> np.ndarray:
-    """Space-separated flag codes for each mask value (vectorised over unique masks)."""
-    uniq, inv = np.unique(mask, return_inverse=True)
-    labels = np.array([" ".join(flag_names(int(u))) for u in uniq], dtype=object)
-    return labels[inv.ravel()]
 
 
 def _condition_words(study: Study, cond: dict[str, np.ndarray], i: int) -> str:

@@ -14,7 +14,7 @@ from typing import Iterator
 
 import numpy as np
 
-from .physics import FLAG_BITS, evaluate
+from .physics import FLAG_BITS, evaluate, flag_names
 from .study import Axis, Study
 
 def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> bool:
@@ -101,6 +101,13 @@ def spec_fail(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
         v = out[s.column]
         fail |= ~((v >= s.lo) & (v <= s.hi))
     return fail
+
+
+def flag_text(mask: np.ndarray) -> np.ndarray:
+    """Space-separated flag codes for each mask value (vectorised over unique masks)."""
+    uniq, inv = np.unique(mask, return_inverse=True)
+    labels = np.array([" ".join(flag_names(int(u))) for u in uniq], dtype=object)
+    return labels[inv.ravel()]
 
 
 def design_blocks(study: Study, chunk_points: int = DEFAULT_CHUNK, per_design: int | None = None

@@ -11,18 +11,10 @@ from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_re
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
-from .variables import AXES, VARIABLES
+from .variables import AXES, VARIABLES, eng
 
 REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C"}
 UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
-
-
-def eng(value: float, column: str) -> str:
-    v = VARIABLES.get(column)
-    unit = v.unit if v else ""
-    if column == "duty":
-        return f"{value * 100:.1f} %" if np.isfinite(value) else "-"
-    return qv.format_eng(value, unit) if np.isfinite(value) else "-"
 
 
 def design_text(study: Study, row) -> str:

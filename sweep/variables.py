@@ -114,3 +114,17 @@ def header(name: str) -> str:
     """Header text for a machine column name, falling back to the name itself."""
     v = VARIABLES.get(name)
     return v.header if v else name
+
+
+def eng(value: float, column: str) -> str:
+    """A value of a machine column as a person reads it: engineering notation with the
+    column's unit, or a percentage for the duty; "-" where it is not a number."""
+    import math
+
+    from .values import format_eng
+    v = VARIABLES.get(column)
+    unit = v.unit if v else ""
+    finite = value is not None and math.isfinite(value)
+    if column == "duty":
+        return f"{value * 100:.1f} %" if finite else "-"
+    return format_eng(value, unit) if finite else "-"

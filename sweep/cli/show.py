@@ -9,7 +9,7 @@ from rich.markup import escape as _markup_escape
 from rich.table import Table
 
 from ..errors import printable
-from ..reporting import eng
+from ..variables import eng
 
 
 def escape(text: str) -> str:
