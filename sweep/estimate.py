@@ -38,9 +38,9 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     # measure this machine on a slice of the study itself: one block of the first pass (sweep,
     # corners, elasticities) and one Monte Carlo evaluation of the same size. The slice has at
     # most `sample` conditions, so nothing here grows with the sweep before the guard speaks.
-    full_nc, study = nc, _thinned(study, sample)
+    full_nc, study = nc, _thinned(study.grade_plan[0].study if study.grade_plan else study, sample)
     nc = study.n_conditions
-    k = max(1, min(nd, sample // max(nc, 1)))
+    k = max(1, min(nd, study.n_designs, sample // max(nc, 1)))
     analyse_block(study, 0, 1, Options(monte_carlo=0))         # warm up
     t0 = time.perf_counter()
     sample_rows, _ = analyse_block(study, 0, k, Options(monte_carlo=0))

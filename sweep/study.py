@@ -12,7 +12,7 @@ import json
 import math
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -33,7 +33,12 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
               "notes": ("text", "free text, copied to the workbook"),
               "supply": ("text", "regulated | battery | mains-derived: what powers the circuit "
                                  "(sets the cautions)")},
-    "design": {k: (u, "a range of choices") for k, (_, u) in AXES.items()},
+    "design": {**{k: (u, "a range of choices") for k, (_, u) in AXES.items()},
+               "resistor_tolerance": ("%", "grades to compare, e.g. [\"1%\", \"5%\"]"),
+               "resistor_series": ("text", "series of the timing resistors to compare, e.g. "
+                                           "[\"E12\", \"E96\"]"),
+               "capacitor": ("text", "capacitor technologies to compare, e.g. [\"C0G\", \"X7R\"]"),
+               "capacitor_tolerance": ("%", "grades to compare, e.g. [\"5%\", \"10%\"]")},
     "conditions": {k: (u, "a range every design must survive") for k, (_, u) in AXES.items()},
     "parts": {"resistor_tolerance": ("%", "default: implied by the resistor series, else 5 %"),
               "resistor_tempco": ("ppm/K", "default 100 ppm/K"),
@@ -128,6 +133,7 @@ class Study:
     raw: dict = field(repr=False, compare=False)
     typical_sigma: float = 1.0           # a typical timer spread is this many sigma
     yield_min: float | None = None       # [spec] yield = { min = ... }
+    grade_plan: tuple = ()               # part grades as design axes (sweep.grades), else ()
 
     @property
     def axes(self) -> tuple[Axis, ...]:
@@ -135,6 +141,8 @@ class Study:
 
     @property
     def n_designs(self) -> int:
+        if self.grade_plan:
+            return sum(g.n_designs for g in self.grade_plan)
         return math.prod(len(a.values) for a in self.design)      # exact: no int64 overflow
 
     @property
@@ -346,11 +354,17 @@ class _Parser:
         if not 0.5 <= ts <= 6.0:
             self.fail("analysis", "typical_sigma", "must be between 0.5 and 6 (how many sigma a "
                       "datasheet's typical spread is; 1 reads it as one sigma)")
-        return Study(path=self.fname, name=name, title=title, notes=st.get("notes", ""),
+        base = Study(path=self.fname, name=name, title=title, notes=st.get("notes", ""),
                      circuit=circuit, supply=supply, timer_spec=timer_spec, timer=timer, design=design,
                      conditions=conditions, parts=parts, load=load, spec=spec, monte_carlo=mc,
                      seed=seed, distribution=dist, top=top, raw=d, typical_sigma=float(ts),
                      yield_min=self.yield_spec())
+        from .grades import build_plan, grade_axis, parse_grades
+        grades = parse_grades(d.get("design", {}), lambda k, why: self.fail("design", k, why))
+        if not grades:
+            return base
+        plan = build_plan(base, grades, d.get("parts", {}), lambda k, why: self.fail("design", k, why))
+        return replace(base, design=plan[0].study.design + (grade_axis(plan),), grade_plan=plan)
 
     # -- ranges
     def from_spec(self, circuit: str, timer: TimerModel) -> dict[str, tuple[np.ndarray, str]]:
@@ -425,6 +439,8 @@ class _Parser:
         for k in (proposed or {}):
             items.setdefault(k, None)
         for key, value in items.items():
+            if key not in AXES:          # a part grade (sweep.grades), not a value axis
+                continue
             column, unit = AXES[key]
             if proposed and key in proposed:
                 vals, series = proposed[key]
