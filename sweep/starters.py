@@ -227,14 +227,20 @@ def spec_study_text(circuit: str, *, frequency: str | None = None, tolerance: st
             unit = "F" if k == "c" else "Ω"
             lines.append(f'{k} = {{ series = "{p.series[k]}", min = {q(lo, unit)}, '
                          f'max = {q(hi, unit)} }}   # {len(p.values[k])} values')
+    lines += ["# part grades to compare: every grade is a candidate, and with [spec] yield the pick",
+              "# is the cheapest grade that reaches it (costs: sweep/models/grades.toml, rough [cp])",
+              '# resistor_tolerance = ["1%", "5%"]',
+              '# capacitor_tolerance = ["5%", "10%"]']
     lines += ["", "[conditions]                # what every design must survive",
               f"vcc = {{ min = {v_lo:g}, max = {v_hi:g}, steps = {3 if v_hi > v_lo else 1} }}",
               f"temperature = {{ min = {t_lo:g}, max = {t_hi:g}, steps = {3 if t_hi > t_lo else 1}"
               + (", nominal = 25 }" if t_lo <= 25 <= t_hi else " }"),
               "", "[parts]", f'capacitor = "{tech.name}"',
               f'capacitor_voltage = "{v_rated:g}V"        # about twice the supply [cp]',
-              "# resistor_tolerance, capacitor_tolerance: implied by the series "
-              "(IEC 60063) unless given", "",
+              'capacitor_tolerance = "10%"     # the everyday grade of X7R and film [cp]'
+              if tech.name not in ("electrolytic",) else
+              'capacitor_tolerance = "20%"     # the usual grade of electrolytics [cp]',
+              "# resistor_tolerance: implied by the resistor series (IEC 60063) unless given", "",
               "[spec]                      # filled in from the options"]
     if f:
         lines.append(f'frequency = {{ target = {json.dumps(qv.format_eng(f, "Hz").replace(" ", ""))}, '

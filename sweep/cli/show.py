@@ -62,7 +62,8 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
     t.add_column("I supply max", justify="right")
     t.add_column("flags")
     for _, r in d.head(n if table else 0).iterrows():
-        cells = [str(r["rank"])] + [eng(r[a.column], a.column) for a in st.design]
+        cells = [str(r["rank"])] + [str(r.get("grade_label", "")) if a.key == "grade"
+                                    else eng(r[a.column], a.column) for a in st.design]
         stalls = "stalls" if r.get("stalls_at") else "-"
         cells += [eng(r[f"{m}_nom"], m) if r[f"{m}_nom"] == r[f"{m}_nom"] else stalls for m in main]
         cells.append(str(r["verdict"]))
