@@ -25,6 +25,9 @@ from . import values as qv
 from .errors import InputError
 
 GRADE_KEYS = ("resistor_tolerance", "resistor_series", "capacitor", "capacitor_tolerance")
+#: most grade combinations one study may compare: each is a sub-sweep of its own [cp: a
+#: handful of grades answers the question; hundreds only multiply the run]
+MAX_GRADES = 64
 TABLE = Path(__file__).parent / "models" / "grades.toml"
 R_KEYS = ("ra", "rb", "r")
 #: the grade columns every design of a graded study carries
@@ -260,6 +263,8 @@ def parse_grades(raw_design: dict, fail) -> list[tuple[str, list]]:
         if key not in GRADE_KEYS:
             continue
         vals = value if isinstance(value, list) else [value]
+        if len(vals) > MAX_GRADES:
+            fail(key, f"a list of {len(vals):,} grades; the limit is {MAX_GRADES}")
         if not vals:
             fail(key, "empty list")
         parsed = []
@@ -285,6 +290,9 @@ def parse_grades(raw_design: dict, fail) -> list[tuple[str, list]]:
         if len(set(parsed)) != len(parsed):
             fail(key, "the list repeats a grade")
         out.append((key, parsed))
+        if math.prod(len(v) for _, v in out) > MAX_GRADES:
+            fail(key, f"{math.prod(len(v) for _, v in out):,} combinations of part grades; the "
+                 f"limit is {MAX_GRADES}: compare fewer grades at once")
     return out
 
 

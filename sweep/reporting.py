@@ -378,6 +378,17 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     return designs[cols]
 
 
+GRADE_NOTE = ("Each combination of the part grades listed in [design] is swept with its own parts "
+              "(tolerances, technology, resistor series). Cost index: the timing parts' grade "
+              "costs added up, each against the commonest grade (1.0): a timing resistor costs "
+              "the larger of its tolerance's and its series' figures, the capacitor its "
+              "technology's figure times its tolerance's. The figures and the availability notes "
+              "are rough common-practice figures [cp] from the editable table "
+              "sweep/models/grades.toml, not quotes. With [spec] yield the pick is the cheapest "
+              "grade whose design's 95 % yield interval reaches the target, then the lowest "
+              "supply current.")
+
+
 def grade_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame | None:
     """For a study with part grades: the best design of each grade (its lowest rank) with the
     grade's cost index, its yield and interval, whether it reaches the yield target, and the
@@ -445,6 +456,7 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
         study_rows=study_rows(study),
         notes=NOTES + [("Timer spreads", spread_reading(study))]
+        + ([("Part grades", GRADE_NOTE)] if study.grade_plan else [])
         + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
         temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS),

@@ -193,3 +193,31 @@ c = ["1u"]
 """)
     code, _, err = cli(["check", str(p)], capsys)
     assert code == 2 and words in err and "bad.toml" in err and "Traceback" not in err
+
+
+def test_grades_in_two_processes_equal_serial(tmp_path):
+    from sweep.parallel import process_mapper
+    text = grade_study("resistor_tolerance", ["1%", "5%", "10%"], "capacitor_tolerance", 0.95, 256)
+    text = text.replace('r = ["100k"]', 'r = { series = "E24", min = "82k", max = "120k" }')
+    text = text.replace('c = ["1u"]', 'c = ["1u", "1.5u"]')
+    st = parse_study(text, str(tmp_path / "g.toml"))
+    run_study(st, tmp_path / "serial", chunk=5)
+    run_study(st, tmp_path / "two", chunk=7, mapper=process_mapper(2))
+    for name in ("designs.parquet", "points.parquet"):
+        pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "serial" / name),
+                                      pd.read_parquet(tmp_path / "two" / name))
+
+
+def test_too_many_grade_combinations_are_refused(tmp_path, capsys):
+    p = tmp_path / "many.toml"
+    tols = [f"{x / 10:g}%" for x in range(1, 100)]
+    p.write_text(f"""
+[study]
+circuit = "monostable"
+[design]
+r = ["100k"]
+c = ["1u"]
+resistor_tolerance = {tols!r}
+""".replace("'", '"'))
+    code, _, err = cli(["check", str(p)], capsys)
+    assert code == 2 and "limit is 64" in err and "design.resistor_tolerance" in err
