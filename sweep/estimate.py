@@ -86,19 +86,30 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
     nd, nc = study.n_designs, n_conditions or study.n_conditions
     _, pts = analyse_block(study, 0, max(1, min(k, 2000 // max(study.n_conditions, 1))), Options(monte_carlo=0,
                                                                                 keep_points=True))
-    with tempfile.TemporaryDirectory() as tmp:
-        wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
-        ws = wb.add_worksheet("Points")
-        t0 = time.perf_counter()
-        _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
-        wb.close()
-        cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
+    from xlsxwriter.exceptions import XlsxWriterException
+    try:
+        with tempfile.TemporaryDirectory() as tmp:
+            wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
+            ws = wb.add_worksheet("Points")
+            t0 = time.perf_counter()
+            _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
+            wb.close()
+            cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
+    except (OSError, XlsxWriterException):
+        # the sample could not be written (a full disk, say): estimate with a typical rate and
+        # let the run itself report the disk against the output folder
+        cell_s = FALLBACK_CELL_SECONDS
     n_cols = pts.shape[1]
     d_cols = 7 * len(summary_outputs(study)) + 25
     cells = min(nd * nc, WORKBOOK_POINTS) * n_cols + min(nd, WORKBOOK_DESIGNS) * d_cols
     parquet = (min(nd * nc, PARQUET_POINTS) * n_cols + nd * d_cols) * 0.05 * cell_s  # [measured:
     # parquet takes about a twentieth of a workbook cell's time per value]
     return cells * cell_s + parquet + PAGE_SECONDS + min(nd, MAX_DESIGNS) * PAGE_DESIGN_SECONDS
+
+
+#: seconds per workbook cell when no sample can be written [measured: about 2 us on a current
+#: laptop core]
+FALLBACK_CELL_SECONDS = 2e-6
 
 
 def _thinned(study: Study, most: int) -> Study:
