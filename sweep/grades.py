@@ -113,7 +113,7 @@ def cost_index(table, circuit_parts: tuple[str, ...], parts, r_series: str | Non
         if g is not None and g.notes:
             notes.append(g.notes)
     has_c = "c" in circuit_parts
-    return n_r * r_cost + (c_cost if has_c else 0.0), "; ".join(notes)
+    return n_r * r_cost + (c_cost if has_c else 0.0), "; ".join(dict.fromkeys(notes))
 
 
 def grade_of(study, design_numbers) -> np.ndarray:
