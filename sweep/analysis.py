@@ -472,7 +472,8 @@ def ranks_by_current(study: Study) -> bool:
 
 
 def rank_designs(designs: pd.DataFrame, by_current: bool = False,
-                 yield_min: float | None = None, eligible: np.ndarray | None = None) -> np.ndarray:
+                 yield_min: float | None = None, eligible: np.ndarray | None = None,
+                 cost: np.ndarray | None = None) -> np.ndarray:
     """Rank of each row (1 = the pick).
 
     Feasible designs first. Among them, the leaders: with a yield target (yield_min), every
@@ -510,7 +511,8 @@ def rank_designs(designs: pd.DataFrame, by_current: bool = False,
     order = np.lexsort((designs["design"].to_numpy(),
                         np.where(lead, 0.0, distinct), np.where(lead, 0.0, series),
                         np.where(lead, distinct, odd), np.where(lead, series, current),
-                        np.where(lead, odd, -margin), np.where(lead, key, yy), tier))
+                        np.where(lead, odd, -margin), np.where(lead, key, yy),
+                        np.where(lead, 0.0 if cost is None else np.asarray(cost, float), 0.0), tier))
     rank = np.empty(n, dtype=np.int64)
     rank[order] = np.arange(1, n + 1)
     return rank
@@ -523,7 +525,8 @@ def finish_keys(study: Study, keys: pd.DataFrame, n_mc: int) -> pd.DataFrame:
     keys["verdict"] = verdicts(study, keys, n_mc)
     good = keys["verdict"].to_numpy() == "pass"
     keys["rank"] = rank_designs(keys, ranks_by_current(study), study.yield_min,
-                                good if good.any() else None)
+                                good if good.any() else None,
+                                keys["cost_index"].to_numpy(float) if "cost_index" in keys else None)
     return keys
 
 

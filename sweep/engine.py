@@ -67,6 +67,10 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
                    with_spec: bool = True) -> dict[str, np.ndarray]:
     """Evaluate designs x [builds x] conditions. Inputs are 1-D arrays per study key; the result
     arrays have shape (designs, builds, conditions) (builds = 1 without a variation)."""
+    if study.grade_plan and "grade" in design:      # part grades: each with its own parts
+        from .grades import evaluate_graded
+        return evaluate_graded(study, design, conditions, ideal=ideal, variation=variation,
+                               with_spec=with_spec)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
         kw[k] = np.asarray(v, dtype=float)[:, None, None]

@@ -56,9 +56,9 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     # measure this machine on a slice of the study itself: one block of the first pass (sweep,
     # corners, elasticities) and one Monte Carlo evaluation of the same size. The slice has at
     # most `sample` conditions, so nothing here grows with the sweep before the guard speaks.
-    full_nc, study = nc, _thinned(study, sample)
+    full_nc, study = nc, _thinned(study.grade_plan[0].study if study.grade_plan else study, sample)
     nc = study.n_conditions
-    k = max(1, min(nd, sample // max(nc, 1)))
+    k = max(1, min(nd, study.n_designs, sample // max(nc, 1)))
     analyse_block(study, 0, 1, Options(monte_carlo=0))         # warm up
     t0 = time.perf_counter()
     sample_rows, _ = analyse_block(study, 0, k, Options(monte_carlo=0))
@@ -85,7 +85,6 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     return Estimate(nd * nc, evals, int(mem), seconds, rate, write)
 
 
-CELL_SECONDS = 10e-6    # a workbook cell when the sample cannot be timed [measured: 6-12 us]
 PAGE_SECONDS = 0.5      # the chart page: plotly's script and six charts [measured: 0.45-0.53 s
                         # for the example studies]
 PAGE_DESIGN_SECONDS = 20e-6   # per design drawn on the page (up to its cap) [measured]
@@ -106,6 +105,7 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
     nd, nc = study.n_designs, n_conditions or study.n_conditions
     _, pts = analyse_block(study, 0, max(1, min(k, 2000 // max(study.n_conditions, 1))), Options(monte_carlo=0,
                                                                                 keep_points=True))
+    from xlsxwriter.exceptions import XlsxWriterException
     try:
         with tempfile.TemporaryDirectory() as tmp:
             wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
@@ -114,8 +114,10 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
             _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
             wb.close()
             cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
-    except Exception:       # a measurement only: a full temporary disk must not stop the run
-        cell_s = CELL_SECONDS
+    except (OSError, XlsxWriterException):
+        # the sample could not be written (a full disk, say): estimate with a typical rate and
+        # let the run itself report the disk against the output folder
+        cell_s = FALLBACK_CELL_SECONDS
     n_cols = pts.shape[1]
     d_cols = 7 * len(summary_outputs(study)) + 25
     cells = (min(min(nd, max(1, study.top)) * nc, WORKBOOK_POINTS) * n_cols
@@ -123,6 +125,11 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
     parquet = (min(nd * nc, PARQUET_POINTS) * n_cols + nd * d_cols) * 0.05 * cell_s  # [measured:
     # parquet takes about a twentieth of a workbook cell's time per value]
     return cells * cell_s + parquet + PAGE_SECONDS + min(nd, MAX_DESIGNS) * PAGE_DESIGN_SECONDS
+
+
+#: seconds per workbook cell when no sample can be written [measured: about 2 us on a current
+#: laptop core]
+FALLBACK_CELL_SECONDS = 2e-6
 
 
 def _thinned(study: Study, most: int) -> Study:

@@ -24,6 +24,7 @@ from .analysis import (RANK_KEYS, Options, analyse_block, finish_keys, mc_column
                        monte_carlo_block, points_frame)
 from .engine import DEFAULT_CHUNK, axis_values, design_blocks, evaluate_block
 from .errors import InputError
+from . import grades
 from .reporting import build_report
 from .spreads import extra_spreads, varied_parts
 from .study import Study
@@ -124,11 +125,12 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
     o = Options(**{**opt.__dict__, "keep_points": stream})
     table = tmp_dir / f".designs-pass1-{os.getpid()}.parquet"
     keys = []
-    results = (mapper(analyse_block, study, o, blocks) if mapper else
-               (analyse_block(study, a, b, o) for a, b in blocks))
+    block_fn = grades.analyse_block if study.grade_plan else analyse_block
+    results = (mapper(block_fn, study, o, blocks) if mapper else
+               (block_fn(study, a, b, o) for a, b in blocks))
     with TableWriter(table, 1 << 16) as designs, TableWriter(points_path, 1 << 18) as points:
         for (a, b), (df, pts) in zip(blocks, results):
-            keys.append(df[RANK_KEYS + ["reach"]])
+            keys.append(df[RANK_KEYS + ["reach"] + (["cost_index"] if study.grade_plan else [])])
             designs.add(df.drop(columns=["reach"]))
             if pts is not None:
                 points.add(pts)
@@ -150,8 +152,9 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
         numbers = np.sort(cand["design"].to_numpy())
         per = max(1, (1 << 20) // max(1, n_mc * study.n_conditions))
         jobs = [numbers[i:i + per] for i in range(0, len(numbers), per)]
-        parts = (mapper(monte_carlo_block, study, opt, jobs) if mapper and jobs else
-                 (monte_carlo_block(study, j, opt) for j in jobs))
+        mc_fn = grades.monte_carlo_block if study.grade_plan else monte_carlo_block
+        parts = (mapper(mc_fn, study, opt, jobs) if mapper and jobs else
+                 (mc_fn(study, j, opt) for j in jobs))
         frames = []
         for job, part in zip(jobs, parts):
             frames.append(part)
@@ -219,7 +222,7 @@ def iter_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: boo
     left = limit
     for s in range(0, len(keep), step):
         d_idx = keep[s:s + step] - 1
-        dd = axis_values(study.design, d_idx)
+        dd = grades.design_values(study, d_idx)
         out = evaluate_block(study, dd, cond, ideal=ideal)
         df = points_frame(study, d_idx, c_idx, dd, cond, out).head(left)
         left -= len(df)

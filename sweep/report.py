@@ -49,3 +49,5 @@ class Report:
                                                   # build and condition (column 'value')
     temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value
     verdicts: dict[str, str] = field(default_factory=dict)  # verdict word -> what it means
+    grades: pd.DataFrame | None = None   # part grades as design axes: the best design of each
+                                         # grade, cheapest first (reporting.grade_table), else None

@@ -11,6 +11,7 @@ from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_re
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
+from .grades import TABLE as GRADE_TABLE, grade_values, study_for
 from .variables import AXES, VARIABLES, eng
 
 REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C"}
@@ -18,7 +19,9 @@ UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
 
 
 def design_text(study: Study, row) -> str:
-    return ", ".join(f"{REFS.get(a.key, a.key)} = {eng(row[a.column], a.column)}" for a in study.design)
+    return ", ".join(f"grade {study.grade_plan[int(row['grade']) - 1].label}" if a.key == "grade"
+                     else f"{REFS.get(a.key, a.key)} = {eng(row[a.column], a.column)}"
+                     for a in study.design)
 
 
 def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int]) -> tuple[list[tuple[str, str]], bool]:
@@ -68,10 +71,13 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
         lines.append(("Uncommon part", f"{best['uncommon']}; check availability and price, or "
                                        "widen the ranges for a plainer part"))
     lines.append(("Timer spreads", spread_reading(study)))
-    p, given = study.parts, study.raw.get("parts", {})
+    pick_study = study_for(study, int(best["design"]))
+    p, given = pick_study.parts, study.raw.get("parts", {})
 
     def source(key: str, parts: tuple[str, ...]) -> str:
-        series = sorted({a.series for a in study.design if a.key in parts and a.series})
+        series = sorted({a.series for a in pick_study.design if a.key in parts and a.series})
+        if key in dict(grade_values(study, int(best["design"]))):
+            return "the pick's grade"
         if key in given:
             return "from [parts]"
         return f"implied by {', '.join(series)}" if series else "default"
@@ -131,7 +137,8 @@ def cautions(study: Study, designs: pd.DataFrame) -> list[str]:
     if study.supply == "mains-derived":
         out.append("Mains-derived supply: use a certified, isolated power supply; never derive the "
                    "timer's supply from mains without isolation.")
-    if study.parts.technology.polarised:
+    if any(g.study.parts.technology.polarised for g in study.grade_plan) or \
+            study_for(study, int(designs.iloc[0]["design"])).parts.technology.polarised:
         out.append("Polarised timing capacitor: observe polarity; its leakage drifts with age and "
                    "temperature, so check the timing on the bench.")
     hot = designs.head(study.top)
@@ -250,8 +257,10 @@ NOTES = [
 
 def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     rows = []
-    tech = study.parts.technology
-    for _, d in designs.head(study.top).iterrows():
+    top_study = study
+    for _, d in designs.head(top_study.top).iterrows():
+        study = study_for(top_study, int(d["design"]))
+        tech = study.parts.technology
         for a in study.design:
             if a.key not in REFS:
                 continue
@@ -308,6 +317,7 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     if study.monte_carlo == 0:
         return None
     best = designs.iloc[0]
+    study = study_for(study, int(best["design"]))       # its grade's parts and tolerances
     design = {a.key: np.array([best[a.column]]) for a in study.design}
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     n = study.monte_carlo
@@ -367,6 +377,7 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     verdict, yield and margins, then the main outputs, the spec outputs, the rest."""
     from .analysis import summary_outputs
     first = (["rank", "design"] + [a.column for a in study.design]
+             + (["grade_label", "cost_index"] if study.grade_plan else [])
              + ["verdict", "yield", "yield_lo", "yield_hi", "wc_margin", "stalls_at", "feasible", "sn_db"])
     outs = []
     for o in summary_outputs(study):
@@ -377,9 +388,62 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     return designs[cols]
 
 
+GRADE_NOTE = ("Each combination of the part grades listed in [design] is swept with its own parts "
+              "(tolerances, technology, resistor series). Cost index: the timing parts' grade "
+              "costs added up, each against the commonest grade (1.0): a timing resistor costs "
+              "the larger of its tolerance's and its series' figures, the capacitor its "
+              "technology's figure times its tolerance's. The figures and the availability notes "
+              "are rough common-practice figures [cp] from the editable table "
+              "sweep/models/grades.toml, not quotes. With [spec] yield the pick is the cheapest "
+              "grade whose design's 95 % yield interval reaches the target, then the lowest "
+              "supply current.")
+
+
+def grade_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame | None:
+    """For a study with part grades: the best design of each grade (its lowest rank) with the
+    grade's cost index, its yield and interval, whether it reaches the yield target, and the
+    grade table's availability notes; cheapest first. None without grades."""
+    if not study.grade_plan or "grade" not in designs:
+        return None
+    best = designs.sort_values("rank", kind="stable").groupby("grade", sort=False).head(1)
+    target = yield_target(study)
+    rows = []
+    for _, d in best.iterrows():
+        g = study.grade_plan[int(d["grade"]) - 1]
+        hi = float(d.get("yield_hi", np.nan))
+        rows.append({"grade": g.index + 1, "grade_label": g.label, "cost_index": g.cost,
+                     "design": int(d["design"]), "rank": int(d["rank"]),
+                     "verdict": str(d.get("verdict", "")), "yield": float(d.get("yield", np.nan)),
+                     "yield_lo": float(d.get("yield_lo", np.nan)), "yield_hi": hi,
+                     "reaches": bool(str(d.get("verdict", "")) == "pass" and np.isfinite(hi)
+                                     and hi >= target),
+                     "notes": g.notes})
+    out = pd.DataFrame(rows).sort_values(["cost_index", "rank"], kind="stable")
+    return out.reset_index(drop=True)
+
+
+def grade_lines(study: Study, grades: pd.DataFrame) -> list[tuple[str, str]]:
+    """The Summary's answer: the cheapest grade whose best design reaches the yield target."""
+    target = yield_target(study)
+    ok = grades[grades["reaches"]]
+    where = f"the grade table {GRADE_TABLE.name}, rough common-practice figures [cp], not quotes"
+    if len(ok):
+        g = ok.iloc[0]
+        text = (f"{g['grade_label']} (cost index {g['cost_index']:.2f}, from {where}): design "
+                f"{g['design']} reaches {target * 100:g} % (yield {g['yield'] * 100:.1f} %, 95 % "
+                f"interval {g['yield_lo'] * 100:.1f} to {g['yield_hi'] * 100:.1f} %)")
+    else:
+        text = (f"none of the {len(grades)} grades has a design whose yield interval reaches "
+                f"{target * 100:g} %; widen the ranges, relax the spec or add a finer grade")
+    return [("Cheapest grade reaching the yield target", text)]
+
+
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
     lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
+    grades = grade_table(study, designs)
+    if grades is not None:
+        lines[2:2] = grade_lines(study, grades)
     best = designs.iloc[0]
 
     def num(x):
@@ -402,6 +466,8 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
         study_rows=study_rows(study),
         notes=NOTES + [("Timer spreads", spread_reading(study))]
+        + ([("Part grades", GRADE_NOTE)] if study.grade_plan else [])
         + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
-        temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS))
+        temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS),
+        grades=grades)

@@ -68,6 +68,14 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("stalls_at", "Stalls at", "", "text", "Where the timer first stalls: condition and tolerance corner"),
     _V("uncommon", "Uncommon part", "", "text", "A part that is uncommon or costly in its technology"),
     _V("condition", "Condition", "", "int", "Condition number within the design"),
+    # part grades as design axes
+    _V("grade", "Grade", "", "int", "Number of the part-grade combination (Grades table)"),
+    _V("grade_label", "Grade name", "", "text", "The part grades of the design, in words"),
+    _V("resistor_tolerance", "R tolerance", "", "text", "Tolerance of the timing resistors"),
+    _V("resistor_series", "R series", "", "text", "IEC 60063 series of the timing resistors"),
+    _V("capacitor", "C technology", "", "text", "Technology of the timing capacitor"),
+    _V("capacitor_tolerance", "C tolerance", "", "text", "Tolerance of the timing capacitor"),
+    _V("cost_index", "Cost index", "", "fixed2", "Relative cost of the timing parts' grades: rough common-practice figures [cp] from the grade table, not quotes"),
 ]}
 
 #: study keys that can be swept, with the column that carries them and the SI unit they parse to

@@ -105,15 +105,44 @@ def new(circuit: Annotated[str, typer.Argument(help="astable | astable-diode | a
                                                     "monostable | bistable")],
         out: Annotated[Optional[Path], typer.Option("--out", "-o", help="File to write "
                                                     "(default: <circuit>.toml)")] = None,
-        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False):
-    """Write a commented starter study for a circuit."""
-    from ..starters import starter_text
+        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False,
+        frequency: Annotated[Optional[str], typer.Option(help="Target frequency, e.g. 2Hz: the "
+                             "[design] ranges are worked out from the spec")] = None,
+        pulse_width: Annotated[Optional[str], typer.Option(help="Target pulse (monostable), "
+                               "e.g. 30s")] = None,
+        tolerance: Annotated[str, typer.Option(help="Tolerance of the target, e.g. 5%")] = "10%",
+        duty_min: Annotated[Optional[str], typer.Option(help="Lowest duty, e.g. 0.15")] = None,
+        duty_max: Annotated[Optional[str], typer.Option(help="Highest duty, e.g. 0.35")] = None,
+        vcc: Annotated[Optional[str], typer.Option(help="Supply range, e.g. 6..8.4 (default: "
+                       "the timer's typical supply +-10 %)")] = None,
+        temperature: Annotated[Optional[str], typer.Option(help="Ambient range, e.g. -10..40 "
+                               "(default 0..50)")] = None,
+        series: Annotated[str, typer.Option(help="IEC 60063 series of the timing resistors")] = "E24",
+        capacitor_series: Annotated[str, typer.Option(help="IEC 60063 series of the capacitor")] = "E6",
+        capacitor: Annotated[str, typer.Option(help="Capacitor technology: C0G | X7R | X5R | Y5V | "
+                             "polypropylene | polyester | electrolytic | tantalum")] = "X7R",
+        timer: Annotated[str, typer.Option(help="bipolar | cmos | path to a timer-model TOML "
+                         "file")] = "cmos",
+        supply: Annotated[str, typer.Option(help="regulated | battery | mains-derived")] = "regulated",
+        capacitors: Annotated[Optional[int], typer.Option(help="Capacitor values to keep (those "
+                              "whose resistors sit nearest the middle of the usable range; default "
+                              "2 for astable and astable-diode, else 1)")] = None):
+    """Write a commented study for a circuit: a starter to edit, or, with --frequency or
+    --pulse-width, [design] ranges worked out from the spec."""
+    from ..starters import spec_study_text, starter_text
     from ..writers.atomic import write_text_atomic
 
-    text = starter_text(circuit)
     path = out or Path(f"{circuit}.toml")
     if path.exists() and not force:
         raise InputError(str(path), "--out", "already exists; use --force to overwrite it")
+    if frequency is None and pulse_width is None:
+        text = starter_text(circuit)
+    else:
+        text = spec_study_text(circuit, frequency=frequency, pulse_width=pulse_width,
+                               tolerance=tolerance, duty_min=duty_min, duty_max=duty_max, vcc=vcc,
+                               temperature=temperature, series=series,
+                               capacitor_series=capacitor_series, capacitor=capacitor, timer=timer,
+                               supply=supply, capacitors=capacitors)
     write_text_atomic(path, text)
     typer.echo(f"wrote {path}; edit it, then: timer-sweep check {path} && timer-sweep run {path}")
 
