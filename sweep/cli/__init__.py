@@ -47,7 +47,11 @@ def _stop(signum, frame):
         raise KeyboardInterrupt
 
 
-def _stopped_exit() -> None:
+def _stopped_exit(hard: bool = False) -> None:
+    """Say the run was stopped and exit 128 + the signal. hard (the console command): leave
+    with os._exit once the outputs are settled, so nothing at interpreter shutdown (a library's
+    exit hook meeting the pending interrupt) can turn the code into a death by SIGINT, as seen
+    under heavy load; in-process callers get SystemExit."""
     import signal
     after_write = STOPPED["written"]
     signum = STOPPED["signal"] or signal.SIGINT
@@ -58,6 +62,10 @@ def _stopped_exit() -> None:
     else:
         print(f"timer-sweep: stopped by {name}; the run did not finish and the previous outputs "
               "were kept", file=sys.stderr)
+    if hard:
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(128 + signum)
     sys.exit(128 + signum)
 
 
@@ -79,10 +87,10 @@ def main(argv: list[str] | None = None) -> int:
     except SystemExit:
         raise
     except KeyboardInterrupt:
-        _stopped_exit()
+        _stopped_exit(hard=argv is None)
     except Exception as e:  # noqa: BLE001
         if type(e).__name__ == "Abort":
-            _stopped_exit()
+            _stopped_exit(hard=argv is None)
         if hasattr(e, "show") and hasattr(e, "exit_code"):   # a usage error of the CLI framework
             import io
             text = io.StringIO()
@@ -96,7 +104,7 @@ def main(argv: list[str] | None = None) -> int:
         sys.exit(1)
     # the CLI framework turns an interrupt into the return value 130
     if rv == 130 or STOPPED["signal"] is not None:
-        _stopped_exit()
+        _stopped_exit(hard=argv is None)
     if isinstance(rv, int) and rv:
         sys.exit(rv)
     return 0
