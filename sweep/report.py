@@ -37,8 +37,9 @@ class Report:
     points_total: int                # rows in the full sweep
     points_note: str                 # what Points holds and where the rest is
     designs: pd.DataFrame            # one row per design, ranked (rank 1 first)
-    parts: pd.DataFrame              # parts list of the top designs: rank, design, ref, value_text,
-                                     # value (SI), unit, rkm, series, tolerance, technology, rating
+    parts: pd.DataFrame              # bill of materials of the top designs: rank, design, ref, value_text,
+                                     # value (SI), unit, rkm, series, tolerance, technology, rating,
+                                     # note, role, quantity (sweep.bom.PARTS_COLUMNS)
     check: pd.DataFrame              # top designs: rank, design, part columns, vcc_v, control_voltage_v,
                                      # diode_drop_v, ideal_<main>, real_<main> (see writers.workbook)
     spec: list[SpecRow]
@@ -49,3 +50,4 @@ class Report:
                                                   # build and condition (column 'value')
     temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value
     verdicts: dict[str, str] = field(default_factory=dict)  # verdict word -> what it means
+    waveform: object | None = None   # sweep.waveform.Trace of the pick, or None (a latch)

@@ -86,7 +86,8 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
                          "See the Summary sheet."))
     out.print(escape("Timer spreads: " + res.info.get("spreads", "")))
     out.print(escape(f"wrote {res.files['workbook']}, {res.files['page']}, {res.files['points'].name}, "
-              f"{res.files['designs'].name}, {res.files['record'].name} in {res.out_dir}"))
+              f"{res.files['designs'].name}, {res.files['bom'].name}, {res.files['waveform'].name}, "
+              f"{res.files['record'].name} in {res.out_dir}"))
 
 
 def print_estimate(st, est) -> None:
