@@ -127,6 +127,14 @@ def trace_of(study: Study, p: dict[str, float], input_period_s: float = np.nan, 
     return np.concatenate(ts), np.concatenate(vs), np.concatenate(os_)
 
 
+def _condition_word(key: str, value: float) -> str:
+    from .values import format_eng
+    return {"vcc": format_eng(value, "V") + " supply", "temperature": f"{value:g} °C",
+            "input_period": "input every " + format_eng(value, "s"),
+            "control_voltage": "control pin " + format_eng(value, "V"),
+            "load_resistance": "load " + format_eng(value, "ohm")}.get(key, f"{key} = {value:g}")
+
+
 def pick_waveform(study: Study, designs: pd.DataFrame, ideal: bool = False) -> Trace | None:
     """The pick's traces at the nominal condition and at the worst-case condition (where its
     main timing lies farthest from nominal). None for a latch or a pick that never times."""
@@ -147,7 +155,7 @@ def pick_waveform(study: Study, designs: pd.DataFrame, ideal: bool = False) -> T
         t, vc, vo = trace_of(study, p, float(cond["input_period"][0]) if "input_period" in cond else np.nan)
         frames.append(pd.DataFrame({"condition": label, "time_s": t, "capacitor_v": vc, "output_v": vo}))
         thresholds[label] = _thresholds(study, cond)
-        described[label] = ", ".join(f"{k} = {float(v[0]):g}" for k, v in cond.items())
+        described[label] = ", ".join(_condition_word(k, float(v[0])) for k, v in cond.items())
     if not frames:
         return None
     return Trace(pd.concat(frames, ignore_index=True)[WAVEFORM_COLUMNS], thresholds, described)

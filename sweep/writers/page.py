@@ -1015,10 +1015,11 @@ def _waveform_section(report: Report) -> Section:
                                  name=f"output, {name}", line=dict(color=colour, width=1.5, dash="dash")))
         for v in tr.thresholds.get(label, ()):
             fig.add_hline(y=v, line=dict(color=colour, width=1, dash="dot"))
-    fig.update_layout(template=_TEMPLATE, height=460,
+    fig.update_layout(template=_TEMPLATE, height=560,
                       xaxis=dict(title=dict(text="Time [s]"), exponentformat="SI", ticksuffix="s"),
                       yaxis=dict(title=dict(text="Voltage [V]"), ticksuffix=" V"),
-                      margin=dict(r=20, t=20))
+                      legend=dict(orientation="h", yanchor="top", y=-0.22, x=0),
+                      margin=dict(r=20, t=20, b=140))
     sec.figure = fig
     return sec
 
