@@ -14,7 +14,7 @@ from .study import Study, study_rows
 from .variables import AXES, VARIABLES
 from .waveform import pick_waveform
 
-REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C"}
+REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C", "load_resistance": "RL"}
 UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
 
 
