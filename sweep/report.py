@@ -25,10 +25,10 @@ class SpecRow:
 class Report:
     name: str                        # file-name stem, e.g. "bike-light"
     title: str                       # user text: escape it in HTML, never a formula in XLSX
-    circuit: str                     # astable | astable-diode | astable-symmetric | monostable | bistable
+    circuit: str                     # a name of sweep.physics.CIRCUITS
     timer_name: str                  # e.g. "generic bipolar 555"
     ideal: bool                      # --ideal run
-    main_output: str | None          # "frequency_hz", "pulse_width_s"; "supply_current_a" for a latch
+    main_output: str | None          # "frequency_hz", "pulse_width_s", "timeout_s"; "supply_current_a" for a latch
     part_columns: list[str]          # design part columns, e.g. ["ra_ohm", "rb_ohm", "c_f"]
     condition_columns: list[str]     # e.g. ["vcc_v", "temperature_c"]
     summary: list[tuple[str, str]]   # (label, text) lines: the pick, margins, yield, verdict
