@@ -1,6 +1,7 @@
 """The bill of materials of the top designs: every part a board needs, not only the timing parts.
 
-Per design: the timing resistors and capacitor, the diode of astable-diode, the load resistor
+Per design: the timing resistors and capacitor, the diode of astable-diode, the transistor that
+empties the capacitor of the missing-pulse detector, the load resistor
 (and the LED, or a flyback diode across a coil), the decoupling capacitors (100 nF across the
 supply at the timer, 10 nF from the control pin to ground [cp]) and the timer itself. Each part
 has its value, IEC 60062 RKM code, IEC 60063 series, tolerance, technology, a rating with its
@@ -112,6 +113,12 @@ def bill_of_materials(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
             v_rev = next_rating(vcc_max * DERATE, VOLTAGE_RATINGS)
             add("diode", "D1", f"{kind} diode", "", f"{kind} diode across RB (anode at the "
                 "discharge pin)", f"reverse voltage at least {v_rev:g} V (supply up to {vcc_max:g} V)")
+        if study.circuit == "missing-pulse":
+            # the transistor across C that each input pulse turns on to empty it [book]
+            add("discharge", "Q1", "small-signal PNP transistor", "", "emitter to C, collector to "
+                "ground, base driven by the input pulse (with the trigger pin)",
+                f"collector-emitter voltage at least {next_rating(vcc_max * DERATE, VOLTAGE_RATINGS):g} V "
+                f"(supply up to {vcc_max:g} V)")
         i_load = float(worst["output_current_a"][i])
         r_load = float(d["load_resistance_ohm"]) if "load_resistance_ohm" in d else load.resistance_ohm
         coil = load.kind in ("relay", "inductive", "mains-switching")

@@ -115,14 +115,14 @@ def trace_of(study: Study, p: dict[str, float], input_period_s: float = np.nan, 
         period = input_period_s if np.isfinite(input_period_s) and input_period_s < to else 0.5 * to
         vinf = p["wave_vinf_high_v"]
         t = 0.0
-        for _ in range(3):                   # each input pulse discharges C and retriggers
+        for _ in range(2):                   # each input pulse discharges C and retriggers
             tt, vv = rc_segment(v0, v1, vinf, to, n)
             keep = tt <= period
             ts.append(t + np.append(tt[keep], period))
             vs.append(np.append(vv[keep], np.interp(period, tt, vv)))
             os_.append(np.full(keep.sum() + 1, hi))
             t += period
-        t = seg(t, v0, v1, vinf, to, hi)                                  # the pulse that never came
+        t = seg(t, v0, v1, vinf, to, hi)          # the third pulse, then the one that never comes
         t = seg(t, v0, v0, np.nan, 0.5 * to, lo)                          # alarm: C held, output low
     return np.concatenate(ts), np.concatenate(vs), np.concatenate(os_)
 
