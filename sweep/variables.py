@@ -53,7 +53,7 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("ra_power_w", "Resistor power", "W", "eng", "Largest dissipation in the resistor from the supply (RA, or R)"),
     _V("timeout_s", "Timeout", "s", "eng", "Missing-pulse detector: time from the last input pulse to the alarm", True),
     _V("timeout_margin_s", "Timeout margin", "s", "eng", "Timeout less the input period: how late a pulse may come before a false alarm (negative: false alarm)"),
-    _V("battery_life_h", "Battery life", "h", "eng", "Usable battery capacity / mean current (the idle current for a monostable waiting for triggers)", True),
+    _V("battery_life_h", "Battery life", "h", "fixed1", "Usable battery capacity / mean current (the idle current for a monostable waiting for triggers)"),
     _V("junction_temp_c", "Junction", "°C", "fixed1", "Chip junction temperature, worst phase"),
     _V("flags", "Flags", "", "text", "Limits broken at this point (space-separated codes)"),
     _V("ok", "OK", "", "bool", "No flag at this point"),
