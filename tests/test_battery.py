@@ -126,18 +126,22 @@ def test_battery_life_spec_needs_a_capacity_and_a_time_unit():
     assert parse_study(base.format('battery_capacity = "1Ah"\n', "100")).spec[0].lo == 100
 
 
-def test_a_swept_load_resistor_broadcasts_like_separate_loads():
+@pytest.mark.parametrize("circuit", ["astable-diode", "astable-symmetric", "missing-pulse", "bistable"])
+@pytest.mark.parametrize("timer_name,to", [("cmos", "ground"), ("bipolar", "ground"), ("bipolar", "supply")])
+def test_a_swept_load_resistor_broadcasts_like_separate_loads(circuit, timer_name, to):
     # one evaluation over an axis of load resistors equals one evaluation per resistor
-    timer, parts = load_timer("cmos"), Parts()
+    timer, parts = load_timer(timer_name), Parts()
     rl = np.array([220.0, 470.0, 1000.0])[:, None]
-    kw = dict(vcc=np.array([2.7, 3.0, 3.3])[None, :], temperature=25.0, ra=47e3, rb=1e6, c=1e-6)
-    swept = evaluate("astable-diode", timer, parts, Load(forward_voltage_v=1.9, kind="led"),
-                     load_resistance=rl, **kw)
+    kw = dict(vcc=np.array([4.5, 5.0, 5.5])[None, :], temperature=25.0, ra=47e3, rb=1e6, r=100e3,
+              c=1e-6, input_period=0.05)
+    vf = 1.9 if to == "ground" else 0.0
+    swept = evaluate(circuit, timer, parts, Load(forward_voltage_v=vf, to=to), load_resistance=rl, **kw)
     for i, r in enumerate(rl[:, 0]):
-        one = evaluate("astable-diode", timer, parts, Load(r, forward_voltage_v=1.9, kind="led"), **kw)
-        for k in ("output_current_a", "supply_current_a", "output_high_v", "period_s"):
+        one = evaluate(circuit, timer, parts, Load(r, forward_voltage_v=vf, to=to), **kw)
+        for k in ("output_current_a", "supply_current_a", "output_high_v", "output_low_v", "period_s",
+                  "timeout_s", "junction_temp_c"):
             np.testing.assert_allclose(np.broadcast_to(swept[k], (3, 3))[i], np.broadcast_to(one[k], (1, 3))[0],
-                                       rtol=1e-13, err_msg=k)
+                                       rtol=1e-13, equal_nan=True, err_msg=k)
 
 
 def test_led_current_in_ideal_mode_is_ohms_law():
