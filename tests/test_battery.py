@@ -180,3 +180,17 @@ def test_the_summary_states_battery_life_and_the_cautions(tmp_path, capsys):
     assert any("children" in c and "primary cell" in c for c in cautions)
     rec = json.loads((tmp_path / "out" / "run.json").read_text())
     assert {"bom.csv", "waveform.csv"} <= set(rec["sha256"])
+
+
+@pytest.mark.parametrize("load,key,words", [
+    ('[load]\nkind = "led"\nresistance = "330"\n', "load.forward_voltage", "LED"),
+    ('[load]\nresistance = "330"\n', "load.resistance", "swept"),
+])
+def test_bad_load_keys_name_the_key(load, key, words):
+    text = ('[study]\ncircuit = "astable"\n[design]\nra = "1k"\nrb = "10k"\nc = "1u"\n'
+            'load_resistance = ["220", "330"]\n' + load)
+    if key == "load.forward_voltage":
+        text = text.replace('load_resistance = ["220", "330"]\n', "")
+    with pytest.raises(InputError) as e:
+        parse_study(text, "s.toml")
+    assert e.value.key == key and words in e.value.problem
