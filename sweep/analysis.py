@@ -9,20 +9,19 @@ designs were split into blocks.
 """
 from __future__ import annotations
 
-import itertools
 import math
 import warnings
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy.stats import norm, qmc
 
-from .engine import (TIMING, Variation, axis_values, evaluate_block, nominal_conditions,
+from .engine import (TIMING, Variation, axis_values, evaluate_block, flag_text, nominal_conditions,
                      spec_fail)
-from .physics import ASTABLES, CIRCUIT_PARTS, FLAG_BITS
-from .physics.model import flag_names
+from .physics import ASTABLES, FLAG_BITS
 from . import values as qv
+from .spreads import (build_spreads, draw_names, tolerance_of, varied_parts,
+                      worst_case_corners)
 from .study import Study
 from .variables import AXES
 
@@ -30,7 +29,7 @@ SPEC_BIT = np.uint32(FLAG_BITS["spec-miss"])
 LIMIT_BITS = np.uint32(sum(b for k, b in FLAG_BITS.items() if k != "spec-miss"))
 STALL_BIT = np.uint32(FLAG_BITS["timing-stalls"])
 SENS_STEP = 1e-4          # relative step of the central difference for elasticities [derived]
-Z95 = float(norm.ppf(0.975))   # two-sided 95 % normal quantile, 1.96 [book]
+Z95 = 1.959963984540054       # two-sided 95 % normal quantile [book: normal tables]
 YIELD_FLOOR = 0.95        # without [spec] yield, a yield interval below this is "low yield" [cp]
 
 
@@ -56,15 +55,6 @@ def summary_outputs(study: Study) -> list[str]:
     return list(dict.fromkeys(cols))
 
 
-def varied_parts(study: Study) -> list[str]:
-    """Parts that carry a tolerance in this circuit."""
-    return list(CIRCUIT_PARTS[study.circuit])
-
-
-def tolerance_of(study: Study, part: str) -> float:
-    return study.parts.capacitor_tolerance if part == "c" else study.parts.resistor_tolerance
-
-
 def timer_bands(study: Study, which: str = "typ") -> tuple[float, float, float]:
     """(initial accuracy, drift per K, supply sensitivity per V) of the main timing, typical
     (which="typ") or maximum (which="max"), from the timer-model file [ds-bip], [ds-cmos]."""
@@ -86,17 +76,19 @@ def mc_draws(study: Study, n: int) -> dict[str, np.ndarray]:
     Parts: normal with the tolerance as 3 sigma, clipped at the tolerance (returned in [-1, 1],
     the caller multiplies by the tolerance), or uniform over the tolerance. The timer's three
     terms: standard normal (the caller scales by its sigma and clips at the maximum)."""
-    names = varied_parts(study) + list(TIMER_TERMS)
+    names = varied_parts(study) + list(TIMER_TERMS) + draw_names(study)
     if n <= 0:
         return {k: np.zeros(0) for k in names}
     with warnings.catch_warnings():        # a count that is not a power of two is fine here
         warnings.simplefilter("ignore", UserWarning)
+        from scipy.stats import qmc     # imported here: scipy.stats costs ~1 s to import
         u = qmc.Sobol(d=len(names), scramble=True, seed=study.seed).random(n).T
     u = np.clip(u, 1e-12, 1 - 1e-12)
-    z = norm.ppf(u)
+    from scipy.special import ndtri     # the standard normal's inverse distribution function
+    z = ndtri(u)
     out = {}
     for i, k in enumerate(names):
-        if k in TIMER_TERMS:
+        if k not in varied_parts(study):     # timer terms and the other spreads: the caller scales
             out[k] = z[i]
         elif study.distribution == "uniform":
             out[k] = 2.0 * u[i] - 1.0
@@ -155,12 +147,11 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
         with np.errstate(all="ignore"):
             row[f"{o}_min"] = np.where(np.isnan(v).any(1), np.nan, np.nanmin(np.where(np.isnan(v), np.inf, v), 1))
             row[f"{o}_max"] = np.where(np.isnan(v).any(1), np.nan, np.nanmax(np.where(np.isnan(v), -np.inf, v), 1))
-    # 3. worst case: every tolerance corner x every condition, plus the timer's drift band
+    # 3. worst case: every corner of every spread (spreads.py) x every condition, plus the
+    # timer's drift band
     parts = varied_parts(study)
-    corners = np.array(list(itertools.product((-1.0, 1.0), repeat=len(parts)))).T if parts else np.zeros((0, 1))
-    var = Variation({p: (1.0 + tolerance_of(study, p) * corners[i])[None, :, None]
-                     for i, p in enumerate(parts)})
-    wc = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)
+    corners = worst_case_corners(study, cond, ideal)
+    wc = evaluate_block(study, design, cond, ideal=ideal, variation=corners.variation, with_spec=False)
     band = _band(study, cond, ideal)
     for o in outs:
         v = wc[o]
@@ -201,8 +192,7 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     row["feasible"] = ~limits & ~nom_fail
     row["flag_mask"] = mask
     row["wc_margin"] = _wc_margin(study, row)
-    row["stalls_at"] = stall_text(study, cond, corners, parts, sweep["flag_mask"][:, 0, :],
-                                  wc["flag_mask"])
+    row["stalls_at"] = stall_text(study, cond, corners, sweep["flag_mask"][:, 0, :], wc["flag_mask"])
     df = pd.DataFrame(row)
     df["series_need"], df["distinct_values"] = plainness(study, df)
     df["uncommon"] = uncommon_parts(study, df)
@@ -254,15 +244,23 @@ def _band(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> np.ndarray 
     return (acc + drift * np.abs(t - 25.0) + sens * np.abs(v - vnom))[None, None, :]
 
 
-def mc_variation(study: Study, z: dict[str, np.ndarray], builds: slice) -> Variation:
-    """The part multipliers and timer error terms of a slice of Monte Carlo builds, shaped to
-    broadcast against (designs, builds, conditions)."""
+def mc_variation(study: Study, z: dict[str, np.ndarray], builds: slice,
+                 cond: dict[str, np.ndarray] | None = None, ideal: bool = False) -> Variation:
+    """The part multipliers, timer error terms and other spreads (spreads.py) of a slice of
+    Monte Carlo builds at the conditions `cond`, shaped to broadcast against (designs, builds,
+    conditions)."""
     sig = timer_sigma(study)
     top = timer_bands(study, "max")
     b = {k: v[builds][None, :, None] for k, v in z.items()}
     t = {k: np.clip(s * b[k], -m, m) for k, s, m in zip(TIMER_TERMS, sig, top)}
-    return Variation({p: 1.0 + tolerance_of(study, p) * b[p] for p in varied_parts(study)},
-                     accuracy=t["accuracy"], drift_per_k=t["drift"], supply_per_v=t["supply"])
+    part = {p: 1.0 + tolerance_of(study, p) * b[p] for p in varied_parts(study)}
+    kw = {}
+    if not ideal and cond is not None:
+        extra, kw = build_spreads(study, z, builds, cond)
+        for p, m in extra.items():
+            part[p] = part[p] * m
+    return Variation(part, accuracy=t["accuracy"], drift_per_k=t["drift"], supply_per_v=t["supply"],
+                     **kw)
 
 
 def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
@@ -277,8 +275,8 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
     shift = {o: None for o in outs}
     for b0 in range(0, n_mc, b_step):
         sl = slice(b0, min(n_mc, b0 + b_step))
-        out = evaluate_block(study, design, cond, ideal=ideal, variation=mc_variation(study, z, sl),
-                             with_spec=False)
+        out = evaluate_block(study, design, cond, ideal=ideal,
+                             variation=mc_variation(study, z, sl, cond, ideal), with_spec=False)
         full = (nd, sl.stop - sl.start, nc)       # an output may not vary along every axis
         out = {k: np.broadcast_to(v, full) for k, v in out.items()}
         if study.spec:
@@ -330,13 +328,6 @@ def points_frame(study: Study, d_idx, c_idx, design, cond, out) -> pd.DataFrame:
     return pd.DataFrame(cols)
 
 
-def flag_text(mask: np.ndarray) -> np.ndarray:
-    """Space-separated flag codes for each mask value (vectorised over unique masks)."""
-    uniq, inv = np.unique(mask, return_inverse=True)
-    labels = np.array([" ".join(flag_names(int(u))) for u in uniq], dtype=object)
-    return labels[inv.ravel()]
-
-
 def _condition_words(study: Study, cond: dict[str, np.ndarray], i: int) -> str:
     words = []
     for a in study.conditions:
@@ -345,11 +336,12 @@ def _condition_words(study: Study, cond: dict[str, np.ndarray], i: int) -> str:
     return ", ".join(words) or "the nominal condition"
 
 
-def stall_text(study: Study, cond: dict[str, np.ndarray], corners: np.ndarray, parts: list[str],
-               nominal_mask: np.ndarray, corner_mask: np.ndarray) -> np.ndarray:
+def stall_text(study: Study, cond: dict[str, np.ndarray], corners, nominal_mask: np.ndarray,
+               corner_mask: np.ndarray) -> np.ndarray:
     """Where each design first stalls (its capacitor never reaches the threshold): with its
-    nominal parts at a condition, else at a tolerance corner; "" where it never stalls.
-    nominal_mask is (designs, conditions), corner_mask (designs, corners, conditions)."""
+    nominal parts at a condition, else at a worst-case corner (spreads.Corners); "" where it
+    never stalls. nominal_mask is (designs, conditions), corner_mask (designs, corners,
+    conditions)."""
     nd, nc = nominal_mask.shape
     nom = (nominal_mask & STALL_BIT) != 0
     cor = ((np.broadcast_to(corner_mask, (nd, corner_mask.shape[1], nc)) & STALL_BIT) != 0
@@ -365,9 +357,7 @@ def stall_text(study: Study, cond: dict[str, np.ndarray], corners: np.ndarray, p
             labels.append(f"stalls at {_condition_words(study, cond, u)} with nominal parts")
         else:
             k, c = divmod(u - nc, nc)
-            at = ", ".join(f"{p.upper()} at {corners[j, k] * tolerance_of(study, p) * 100:+g} %"
-                           for j, p in enumerate(parts))
-            labels.append(f"stalls at {_condition_words(study, cond, c)} with {at}")
+            labels.append(f"stalls at {_condition_words(study, cond, c)} with {corners.words(study, k)}")
     return np.array(labels, dtype=object)[inv.ravel()]
 
 
@@ -431,8 +421,9 @@ VERDICTS = {
     "not sampled": "within every limit and in spec with nominal parts; no Monte Carlo ran for it",
     "spec miss": "with nominal parts it misses a spec limit at some condition",
     "limit": "breaks a part or timer limit at some condition (see Flags)",
-    "stalls": "the timer stalls (its capacitor never reaches the threshold) at some condition "
-              "or tolerance corner (see Stalls at)",
+    "stalls": "with nominal parts the timer stalls (its capacitor never reaches the threshold) "
+              "at some condition (see Stalls at); a stall only at a worst-case corner shows in "
+              "Stalls at and counts against the yield",
 }
 
 
@@ -445,7 +436,7 @@ def verdicts(study: Study, d: pd.DataFrame, n_mc: int) -> np.ndarray:
     """The verdict word of each design (keys of VERDICTS), from its flags, stall text and yield
     interval: stalls, then limit, then spec miss, then the yield."""
     mask = d["flag_mask"].to_numpy().astype(np.uint32)
-    stalls = d["stalls_at"].fillna("").astype(str).to_numpy() != ""
+    stalls = (mask & STALL_BIT) != 0            # with nominal parts at some condition
     hi = d["yield_hi"].to_numpy(float)
     out = np.full(len(d), "pass", dtype=object)
     if study.spec and n_mc > 0:
@@ -489,7 +480,8 @@ def ranks_by_current(study: Study) -> bool:
 
 
 def rank_designs(designs: pd.DataFrame, by_current: bool = False,
-                 yield_min: float | None = None, eligible: np.ndarray | None = None) -> np.ndarray:
+                 yield_min: float | None = None, eligible: np.ndarray | None = None,
+                 cost: np.ndarray | None = None) -> np.ndarray:
     """Rank of each row (1 = the pick).
 
     Feasible designs first. Among them, the leaders: with a yield target (yield_min), every
@@ -527,7 +519,8 @@ def rank_designs(designs: pd.DataFrame, by_current: bool = False,
     order = np.lexsort((designs["design"].to_numpy(),
                         np.where(lead, 0.0, distinct), np.where(lead, 0.0, series),
                         np.where(lead, distinct, odd), np.where(lead, series, current),
-                        np.where(lead, odd, -margin), np.where(lead, key, yy), tier))
+                        np.where(lead, odd, -margin), np.where(lead, key, yy),
+                        np.where(lead, 0.0 if cost is None else np.asarray(cost, float), 0.0), tier))
     rank = np.empty(n, dtype=np.int64)
     rank[order] = np.arange(1, n + 1)
     return rank
@@ -540,7 +533,8 @@ def finish_keys(study: Study, keys: pd.DataFrame, n_mc: int) -> pd.DataFrame:
     keys["verdict"] = verdicts(study, keys, n_mc)
     good = keys["verdict"].to_numpy() == "pass"
     keys["rank"] = rank_designs(keys, ranks_by_current(study), study.yield_min,
-                                good if good.any() else None)
+                                good if good.any() else None,
+                                keys["cost_index"].to_numpy(float) if "cost_index" in keys else None)
     return keys
 
 

@@ -63,14 +63,17 @@ def bill_of_materials(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     top = designs.head(study.top)
     if top.empty:
         return pd.DataFrame(columns=PARTS_COLUMNS)
-    p, timer, load = study.parts, study.timer, study.load
-    tech = p.technology
+    from .grades import study_for
+    timer, load = study.timer, study.load
     vcc_axis = next((a for a in study.axes if a.key == "vcc"), None)
     vcc_max = float(np.max(vcc_axis.values)) if vcc_axis is not None else timer.typical_v
     worst = worst_figures(study, top)
     forced_cv = any(a.key == "control_voltage" for a in study.axes)
     rows = []
     for i, (_, d) in enumerate(top.iterrows()):
+        own = study_for(study, int(d["design"]))          # its part grade's parts, if graded
+        p = own.parts
+        tech = p.technology
         base = {"rank": int(d["rank"]), "design": int(d["design"]), "verdict": d.get("verdict", "")}
 
         def add(role, ref, value, unit, technology, rating, tolerance=np.nan, note=""):
@@ -100,13 +103,13 @@ def bill_of_materials(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
                     "; a polarised capacitor leaks far less worked well below its rating [cp]"
                 add("timing", "C", v, "F", tech.label,
                     f"{rated:g} V (supply up to {vcc_max:g} V, {_pct(vcc_max / rated)} of rating{warn})",
-                    p.capacitor_tolerance, _note(study, a.key, v))
+                    p.capacitor_tolerance, _note(own, a.key, v))
             else:
                 # RA (or R) carries the worst dissipation the model reports; RB at most VCC^2/RB
                 need = worst["ra_power_w"][i] if a.key in ("ra", "r") else vcc_max ** 2 / v
                 add("timing", REFS[a.key], v, "ohm",
                     f"resistor, {p.resistor_tempco_per_k * 1e6:g} ppm/K", resistor_rating(need),
-                    p.resistor_tolerance, _note(study, a.key, v))
+                    p.resistor_tolerance, _note(own, a.key, v))
         if study.circuit == "astable-diode":
             kind = ("fixed drop " + f"{p.diode_drop_v:g} V" if p.diode_drop_v is not None
                     else "Schottky" if p.diode == "schottky" else "small-signal silicon")

@@ -14,7 +14,7 @@ from typing import Iterator
 
 import numpy as np
 
-from .physics import FLAG_BITS, evaluate
+from .physics import FLAG_BITS, evaluate, flag_names
 from .study import Axis, Study
 
 def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> bool:
@@ -57,6 +57,9 @@ class Variation:
     drift_per_k: np.ndarray | float = 0.0
     supply_per_v: np.ndarray | float = 0.0
     leak: np.ndarray | float = 1.0       # capacitor leakage relative to its typical figure
+    dc_bias: np.ndarray | float = 1.0    # class II DC-bias loss relative to its typical curve
+    diode_is: np.ndarray | float = 1.0   # diode saturation current relative to its typical figure
+    iq: np.ndarray | float = 1.0         # timer quiescent current relative to its typical figure
 
 
 def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
@@ -64,6 +67,10 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
                    with_spec: bool = True) -> dict[str, np.ndarray]:
     """Evaluate designs x [builds x] conditions. Inputs are 1-D arrays per study key; the result
     arrays have shape (designs, builds, conditions) (builds = 1 without a variation)."""
+    if study.grade_plan and "grade" in design:      # part grades: each with its own parts
+        from .grades import evaluate_graded
+        return evaluate_graded(study, design, conditions, ideal=ideal, variation=variation,
+                               with_spec=with_spec)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
         kw[k] = np.asarray(v, dtype=float)[:, None, None]
@@ -73,9 +80,10 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
         for k, m in variation.part.items():
             if k in kw:
                 kw[k] = kw[k] * m
-    leak = 1.0 if variation is None else variation.leak
-    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal,
-                   leak_factor=leak, **kw)
+    spreads = {} if variation is None else dict(
+        leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
+        diode_is_factor=variation.diode_is, iq_factor=variation.iq)
+    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
         vnom = next((a.nominal for a in study.conditions if a.key == "vcc"), study.timer.typical_v)
@@ -117,6 +125,13 @@ def spec_fail(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
         v = out[s.column]
         fail |= ~((v >= s.lo) & (v <= s.hi))
     return fail
+
+
+def flag_text(mask: np.ndarray) -> np.ndarray:
+    """Space-separated flag codes for each mask value (vectorised over unique masks)."""
+    uniq, inv = np.unique(mask, return_inverse=True)
+    labels = np.array([" ".join(flag_names(int(u))) for u in uniq], dtype=object)
+    return labels[inv.ravel()]
 
 
 def design_blocks(study: Study, chunk_points: int = DEFAULT_CHUNK, per_design: int | None = None

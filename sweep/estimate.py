@@ -9,6 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .analysis import Options, analyse_block, summary_outputs, varied_parts
+from .spreads import extra_spreads
 from .engine import DEFAULT_CHUNK, axis_values, evaluate_block
 from .errors import InputError
 from .study import Study
@@ -29,18 +30,35 @@ class Estimate:
     write_seconds: float = 0.0   # of which writing the workbook, page and tables
 
 
+def evaluations(study: Study) -> int:
+    """Model evaluations of a run: the sweep, every worst-case corner, the elasticities and the
+    Monte Carlo of at most MC_DESIGNS designs (exact integers: no overflow)."""
+    nd, nc = study.n_designs, study.n_conditions
+    corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, False)))
+    from .pipeline import MC_DESIGNS
+    return (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
+            + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
+
+
+#: a study this small cannot reach any limit of the size guard, so `run` does not time it
+#: (under 1e6 points and 2e8 evaluations: minutes at the slowest rate measured, 5e5 per second)
+SMALL_POINTS, SMALL_EVALUATIONS = 1_000_000, 200_000_000
+
+
+def clearly_small(study: Study) -> bool:
+    """True when the study is far inside every limit of the size guard, without timing it."""
+    return study.n_points <= SMALL_POINTS and evaluations(study) <= SMALL_EVALUATIONS
+
+
 def estimate(study: Study, sample: int = 20_000) -> Estimate:
     nd, nc = study.n_designs, study.n_conditions
-    corners = 2 ** len(varied_parts(study))
-    from .pipeline import MC_DESIGNS
-    evals = (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
-             + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
+    evals = evaluations(study)
     # measure this machine on a slice of the study itself: one block of the first pass (sweep,
     # corners, elasticities) and one Monte Carlo evaluation of the same size. The slice has at
     # most `sample` conditions, so nothing here grows with the sweep before the guard speaks.
-    full_nc, study = nc, _thinned(study, sample)
+    full_nc, study = nc, _thinned(study.grade_plan[0].study if study.grade_plan else study, sample)
     nc = study.n_conditions
-    k = max(1, min(nd, sample // max(nc, 1)))
+    k = max(1, min(nd, study.n_designs, sample // max(nc, 1)))
     analyse_block(study, 0, 1, Options(monte_carlo=0))         # warm up
     t0 = time.perf_counter()
     sample_rows, _ = analyse_block(study, 0, k, Options(monte_carlo=0))
@@ -55,6 +73,7 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     # of the sample that can
     write = write_seconds(study, k, full_nc)
     nc = full_nc
+    from .pipeline import MC_DESIGNS
     seconds = nd * nc * per_point + min(nd * reach, MC_DESIGNS) * nc * study.monte_carlo / rate
     seconds += write
     # memory: the libraries, a few blocks of arrays, the ranking keys of every design, and the
@@ -69,8 +88,6 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
 PAGE_SECONDS = 0.5      # the chart page: plotly's script and six charts [measured: 0.45-0.53 s
                         # for the example studies]
 PAGE_DESIGN_SECONDS = 20e-6   # per design drawn on the page (up to its cap) [measured]
-CELL_SECONDS = 7e-6     # one workbook cell when the timing probe cannot write [measured: 6.7-7.0 us
-                        # on the example studies]
 
 
 def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> float:
@@ -88,6 +105,7 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
     nd, nc = study.n_designs, n_conditions or study.n_conditions
     _, pts = analyse_block(study, 0, max(1, min(k, 2000 // max(study.n_conditions, 1))), Options(monte_carlo=0,
                                                                                 keep_points=True))
+    from xlsxwriter.exceptions import XlsxWriterException
     try:
         with tempfile.TemporaryDirectory() as tmp:
             wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
@@ -96,15 +114,22 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
             _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
             wb.close()
             cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
-    except Exception:        # no room for the probe (a full disk): the run itself says so
-        cell_s = CELL_SECONDS
-
+    except (OSError, XlsxWriterException):
+        # the sample could not be written (a full disk, say): estimate with a typical rate and
+        # let the run itself report the disk against the output folder
+        cell_s = FALLBACK_CELL_SECONDS
     n_cols = pts.shape[1]
     d_cols = 7 * len(summary_outputs(study)) + 25
-    cells = min(nd * nc, WORKBOOK_POINTS) * n_cols + min(nd, WORKBOOK_DESIGNS) * d_cols
+    cells = (min(min(nd, max(1, study.top)) * nc, WORKBOOK_POINTS) * n_cols
+             + min(nd, WORKBOOK_DESIGNS) * d_cols)      # Points: the top designs only
     parquet = (min(nd * nc, PARQUET_POINTS) * n_cols + nd * d_cols) * 0.05 * cell_s  # [measured:
     # parquet takes about a twentieth of a workbook cell's time per value]
     return cells * cell_s + parquet + PAGE_SECONDS + min(nd, MAX_DESIGNS) * PAGE_DESIGN_SECONDS
+
+
+#: seconds per workbook cell when no sample can be written [measured: about 2 us on a current
+#: laptop core]
+FALLBACK_CELL_SECONDS = 2e-6
 
 
 def _thinned(study: Study, most: int) -> Study:

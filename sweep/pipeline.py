@@ -21,10 +21,12 @@ import pyarrow.parquet as pq
 
 from . import __version__
 from .analysis import (RANK_KEYS, Options, analyse_block, finish_keys, mc_columns,
-                       monte_carlo_block, points_frame, spread_reading)
+                       monte_carlo_block, points_frame)
 from .engine import DEFAULT_CHUNK, axis_values, design_blocks, evaluate_block
 from .errors import InputError
+from . import grades
 from .reporting import build_report
+from .spreads import extra_spreads, varied_parts
 from .study import Study
 
 WORKBOOK_POINTS = 100_000     # rows of the Points sheet [issue: default cap]
@@ -115,16 +117,20 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
     `mapper(fn, study, opt, jobs)` may run jobs elsewhere (processes, a Dask cluster); it must
     return results in job order.
     """
-    blocks = list(design_blocks(study, chunk))
+    # a block's largest arrays hold every worst-case corner at every condition: size blocks by
+    # that, so they stay cache-sized (a whole small study in one block ran 3x slower, measured)
+    corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, opt.ideal)))
+    blocks = list(design_blocks(study, chunk, per_design=study.n_conditions * (1 + corners)))
     stream = points_path is not None and study.n_points <= points_limit
     o = Options(**{**opt.__dict__, "keep_points": stream})
     table = tmp_dir / f".designs-pass1-{os.getpid()}.parquet"
     keys = []
-    results = (mapper(analyse_block, study, o, blocks) if mapper else
-               (analyse_block(study, a, b, o) for a, b in blocks))
+    block_fn = grades.analyse_block if study.grade_plan else analyse_block
+    results = (mapper(block_fn, study, o, blocks) if mapper else
+               (block_fn(study, a, b, o) for a, b in blocks))
     with TableWriter(table, 1 << 16) as designs, TableWriter(points_path, 1 << 18) as points:
         for (a, b), (df, pts) in zip(blocks, results):
-            keys.append(df[RANK_KEYS + ["reach"]])
+            keys.append(df[RANK_KEYS + ["reach"] + (["cost_index"] if study.grade_plan else [])])
             designs.add(df.drop(columns=["reach"]))
             if pts is not None:
                 points.add(pts)
@@ -146,8 +152,9 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
         numbers = np.sort(cand["design"].to_numpy())
         per = max(1, (1 << 20) // max(1, n_mc * study.n_conditions))
         jobs = [numbers[i:i + per] for i in range(0, len(numbers), per)]
-        parts = (mapper(monte_carlo_block, study, opt, jobs) if mapper and jobs else
-                 (monte_carlo_block(study, j, opt) for j in jobs))
+        mc_fn = grades.monte_carlo_block if study.grade_plan else monte_carlo_block
+        parts = (mapper(mc_fn, study, opt, jobs) if mapper and jobs else
+                 (mc_fn(study, j, opt) for j in jobs))
         frames = []
         for job, part in zip(jobs, parts):
             frames.append(part)
@@ -215,7 +222,7 @@ def iter_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: boo
     left = limit
     for s in range(0, len(keep), step):
         d_idx = keep[s:s + step] - 1
-        dd = axis_values(study.design, d_idx)
+        dd = grades.design_values(study, d_idx)
         out = evaluate_block(study, dd, cond, ideal=ideal)
         df = points_frame(study, d_idx, c_idx, dd, cond, out).head(left)
         left -= len(df)
@@ -387,13 +394,17 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
             streamed = write_points(study, everyone, parquet_points, ideal, tmp["points"])
             parquet_note = (f"The sweep has {study.n_points:,} points; points.parquet holds the "
                             f"{streamed:,} points of the best-ranked designs (use --all-points for all).")
-        wb_pts = points_of(study, order, workbook_points, ideal)
+        # the sheet holds the points of the top designs (the parquet file holds every point):
+        # writing every point's cells was most of a small study's run time [measured]
+        sheet_designs = order[:max(1, study.top)]
+        wb_pts = points_of(study, sheet_designs, workbook_points, ideal)
         rank_of = dict(zip(order, ranked["rank"]))
         wb_pts.insert(0, "rank", wb_pts["design"].map(rank_of))
         wb_pts.insert(2, "verdict", wb_pts["design"].map(dict(zip(order, ranked["verdict"]))))
         if len(wb_pts) < study.n_points:
-            note = (f"This sheet holds {len(wb_pts):,} of {study.n_points:,} points, best-ranked designs "
-                    f"first. {parquet_note}")
+            note = (f"This sheet holds the points of the {min(len(sheet_designs), study.n_designs):,} "
+                    f"best-ranked designs ({len(wb_pts):,} of {study.n_points:,} points; "
+                    f"[analysis] top sets how many designs). {parquet_note}")
         else:
             note = f"All {study.n_points:,} points, best-ranked designs first. {parquet_note}"
         write_designs_table(study, an, tmp["designs"])

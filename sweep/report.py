@@ -51,3 +51,5 @@ class Report:
     temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value
     verdicts: dict[str, str] = field(default_factory=dict)  # verdict word -> what it means
     waveform: object | None = None   # sweep.waveform.Trace of the pick, or None (a latch)
+    grades: pd.DataFrame | None = None   # part grades as design axes: the best design of each
+                                         # grade, cheapest first (reporting.grade_table), else None

@@ -7,27 +7,22 @@ import pandas as pd
 
 from . import values as qv
 from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
-                       tolerance_of, yield_target)
+                       timer_bands, tolerance_of, yield_target)
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
-from .variables import AXES, VARIABLES
+from .grades import TABLE as GRADE_TABLE, grade_values, study_for
+from .variables import AXES, VARIABLES, eng
 from .waveform import pick_waveform
 
 REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C", "load_resistance": "RL"}
 UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
 
 
-def eng(value: float, column: str) -> str:
-    v = VARIABLES.get(column)
-    unit = v.unit if v else ""
-    if column == "duty":
-        return f"{value * 100:.1f} %" if np.isfinite(value) else "-"
-    return qv.format_eng(value, unit) if np.isfinite(value) else "-"
-
-
 def design_text(study: Study, row) -> str:
-    return ", ".join(f"{REFS.get(a.key, a.key)} = {eng(row[a.column], a.column)}" for a in study.design)
+    return ", ".join(f"grade {study.grade_plan[int(row['grade']) - 1].label}" if a.key == "grade"
+                     else f"{REFS.get(a.key, a.key)} = {eng(row[a.column], a.column)}"
+                     for a in study.design)
 
 
 def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int]) -> tuple[list[tuple[str, str]], bool]:
@@ -77,10 +72,13 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
         lines.append(("Uncommon part", f"{best['uncommon']}; check availability and price, or "
                                        "widen the ranges for a plainer part"))
     lines.append(("Timer spreads", spread_reading(study)))
-    p, given = study.parts, study.raw.get("parts", {})
+    pick_study = study_for(study, int(best["design"]))
+    p, given = pick_study.parts, study.raw.get("parts", {})
 
     def source(key: str, parts: tuple[str, ...]) -> str:
-        series = sorted({a.series for a in study.design if a.key in parts and a.series})
+        series = sorted({a.series for a in pick_study.design if a.key in parts and a.series})
+        if key in dict(grade_values(study, int(best["design"]))):
+            return "the pick's grade"
         if key in given:
             return "from [parts]"
         return f"implied by {', '.join(series)}" if series else "default"
@@ -171,7 +169,8 @@ def cautions(study: Study, designs: pd.DataFrame) -> list[str]:
     if study.supply == "mains-derived":
         out.append("Mains-derived supply: use a certified, isolated power supply; never derive the "
                    "timer's supply from mains without isolation.")
-    if study.parts.technology.polarised:
+    if any(g.study.parts.technology.polarised for g in study.grade_plan) or \
+            study_for(study, int(designs.iloc[0]["design"])).parts.technology.polarised:
         out.append("Polarised timing capacitor: observe polarity; its leakage drifts with age and "
                    "temperature, so check the timing on the bench.")
     hot = designs.head(study.top)
@@ -202,7 +201,8 @@ def discharge_surge_caution(study: Study, top: pd.DataFrame) -> str:
     return (f"Discharge surge: when the pulse ends, the timing capacitor (at {v_top:.2g} V) dumps "
             "straight into the discharge transistor, more energy than it is taken to survive "
             f"(flag discharge-current-over-limit). Put about {eng(r, 'ra_ohm')} in series between "
-            "the discharge pin and the capacitor (the threshold pin stays on the capacitor): "
+            "the discharge pin and the capacitor (the threshold pin stays on the capacitor; "
+            f"study key [parts] discharge_resistor = \"{eng(r, 'ra_ohm').replace(' ', '').rstrip('Ω')}\"): "
             f"that keeps the peak near {timer.discharge_max_a * 1e3:.0f} mA and leaves the pulse "
             "width as it is.")
 
@@ -238,16 +238,24 @@ NOTES = [
                         "transistor's surge current; the dump's energy in the transistor is "
                         "checked against the timer file's limit [mem], and the Dump time column "
                         "says how long it lasts."),
-    ("Worst case", "Every tolerance corner of every timing part at every condition point, with the "
-                   "timer's initial accuracy, drift (ppm/K) and supply sensitivity (%/V) at their "
-                   "maximum figures (3 x typical where the data gives none) as a band on the "
-                   "timing [ds-bip]."),
+    ("Worst case", "Every corner of every spread at every condition point: each timing part at "
+                   "its tolerance together with the resistor tempco of either sign or the "
+                   "capacitor at the edge of its temperature envelope (zero at 25 °C, widening "
+                   "linearly to the EIA-198 band at the code's limits, never inside the typical "
+                   "curve [std; derived]) and a class II DC-bias loss 1/1.6 to 1.6 x typical "
+                   "[cp]; electrolytic leakage from typical to the specification maximum [cp]; "
+                   "the diode's saturation current /3 to x3 [mem]; quiescent current to its "
+                   "maximum [ds-bip]. The timer's initial accuracy, drift (ppm/K) and supply "
+                   "sensitivity (%/V) at their maximum figures (3 x typical where the data gives "
+                   "none) are a band on the timing [ds-bip]."),
     ("Monte Carlo", "Builds are scrambled Sobol points (scipy.stats.qmc, seeded by the study's "
                     "seed), mapped through the normal or uniform inverse distribution; the same "
                     "builds for every design, whatever the block split. Each part is normal with "
                     "its tolerance as 3 sigma, clipped at the tolerance (or uniform over it); the "
                     "timer's accuracy, drift and supply sensitivity are normal with sigma = the "
-                    "typical figure / [analysis] typical_sigma, clipped at the maximum. Each build "
+                    "typical figure / [analysis] typical_sigma, clipped at the maximum; the other "
+                    "spreads of the worst case are drawn with their bound as 3 sigma, clipped at "
+                    "it, one draw per build across every condition. Each build "
                     "is evaluated at every condition point. Yield = share of builds meeting every "
                     "spec limit at every condition, with its 95 % Wilson score interval [book: "
                     "E. B. Wilson, 1927]."),
@@ -320,13 +328,14 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     if study.monte_carlo == 0:
         return None
     best = designs.iloc[0]
+    study = study_for(study, int(best["design"]))       # its grade's parts and tolerances
     design = {a.key: np.array([best[a.column]]) for a in study.design}
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     n = study.monte_carlo
-    var = mc_variation(study, mc_draws(study, n), slice(None))
     nc = study.n_conditions
     if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
         cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
+    var = mc_variation(study, mc_draws(study, n), slice(None), cond, ideal)
     v = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]]
     v = np.broadcast_to(v, (1, n, len(next(iter(cond.values()))))).ravel()
     if len(v) > cap:
@@ -351,14 +360,23 @@ def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.D
     v_axis = next(a for a in study.conditions + study.design if a.key == "vcc")
     vccs = np.unique([v_axis.values.min(), v_axis.nominal or np.median(v_axis.values), v_axis.values.max()])
     design = {a.key: top[a.column].to_numpy() for a in study.design}
+    v_nom = float(v_axis.nominal) if v_axis.nominal is not None else float(np.median(v_axis.values))
     rows = []
     for v in vccs:
         cond = {"vcc": np.full(len(temps), v), "temperature": temps}
         for k, val in nominal_conditions(study).items():
             cond.setdefault(k, np.full(len(temps), val))
         out = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)[main[0]][:, 0, :]
+        # the chip's own drift and supply sensitivity, of unknown sign: a band around each line,
+        # typical (one sigma as read) and maximum [ds-bip], [ds-cmos]
+        bands = {}
+        for which in ("typ", "max"):
+            _acc, drift, sens = (0.0, 0.0, 0.0) if ideal else timer_bands(study, which)
+            scale = 1.0 / study.typical_sigma if which == "typ" else 1.0
+            bands[which] = scale * (drift * np.abs(temps - 25.0) + sens * abs(v - v_nom))
         for i, r in enumerate(top["rank"].to_numpy()):
-            rows.append(pd.DataFrame({"rank": int(r), "vcc_v": v, "temperature_c": temps, "value": out[i]}))
+            rows.append(pd.DataFrame({"rank": int(r), "vcc_v": v, "temperature_c": temps, "value": out[i],
+                                      "drift_typ": bands["typ"], "drift_max": bands["max"]}))
     return pd.concat(rows, ignore_index=True)
 
 
@@ -370,6 +388,7 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     verdict, yield and margins, then the main outputs, the spec outputs, the rest."""
     from .analysis import summary_outputs
     first = (["rank", "design"] + [a.column for a in study.design]
+             + (["grade_label", "cost_index"] if study.grade_plan else [])
              + ["verdict", "yield", "yield_lo", "yield_hi", "wc_margin", "stalls_at", "feasible", "sn_db"])
     outs = []
     for o in summary_outputs(study):
@@ -380,9 +399,62 @@ def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     return designs[cols]
 
 
+GRADE_NOTE = ("Each combination of the part grades listed in [design] is swept with its own parts "
+              "(tolerances, technology, resistor series). Cost index: the timing parts' grade "
+              "costs added up, each against the commonest grade (1.0): a timing resistor costs "
+              "the larger of its tolerance's and its series' figures, the capacitor its "
+              "technology's figure times its tolerance's. The figures and the availability notes "
+              "are rough common-practice figures [cp] from the editable table "
+              "sweep/models/grades.toml, not quotes. With [spec] yield the pick is the cheapest "
+              "grade whose design's 95 % yield interval reaches the target, then the lowest "
+              "supply current.")
+
+
+def grade_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame | None:
+    """For a study with part grades: the best design of each grade (its lowest rank) with the
+    grade's cost index, its yield and interval, whether it reaches the yield target, and the
+    grade table's availability notes; cheapest first. None without grades."""
+    if not study.grade_plan or "grade" not in designs:
+        return None
+    best = designs.sort_values("rank", kind="stable").groupby("grade", sort=False).head(1)
+    target = yield_target(study)
+    rows = []
+    for _, d in best.iterrows():
+        g = study.grade_plan[int(d["grade"]) - 1]
+        hi = float(d.get("yield_hi", np.nan))
+        rows.append({"grade": g.index + 1, "grade_label": g.label, "cost_index": g.cost,
+                     "design": int(d["design"]), "rank": int(d["rank"]),
+                     "verdict": str(d.get("verdict", "")), "yield": float(d.get("yield", np.nan)),
+                     "yield_lo": float(d.get("yield_lo", np.nan)), "yield_hi": hi,
+                     "reaches": bool(str(d.get("verdict", "")) == "pass" and np.isfinite(hi)
+                                     and hi >= target),
+                     "notes": g.notes})
+    out = pd.DataFrame(rows).sort_values(["cost_index", "rank"], kind="stable")
+    return out.reset_index(drop=True)
+
+
+def grade_lines(study: Study, grades: pd.DataFrame) -> list[tuple[str, str]]:
+    """The Summary's answer: the cheapest grade whose best design reaches the yield target."""
+    target = yield_target(study)
+    ok = grades[grades["reaches"]]
+    where = f"the grade table {GRADE_TABLE.name}, rough common-practice figures [cp], not quotes"
+    if len(ok):
+        g = ok.iloc[0]
+        text = (f"{g['grade_label']} (cost index {g['cost_index']:.2f}, from {where}): design "
+                f"{g['design']} reaches {target * 100:g} % (yield {g['yield'] * 100:.1f} %, 95 % "
+                f"interval {g['yield_lo'] * 100:.1f} to {g['yield_hi'] * 100:.1f} %)")
+    else:
+        text = (f"none of the {len(grades)} grades has a design whose yield interval reaches "
+                f"{target * 100:g} %; widen the ranges, relax the spec or add a finer grade")
+    return [("Cheapest grade reaching the yield target", text)]
+
+
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
                  ideal: bool, run_info: dict) -> Report:
     lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
+    grades = grade_table(study, designs)
+    if grades is not None:
+        lines[2:2] = grade_lines(study, grades)
     best = designs.iloc[0]
 
     def num(x):
@@ -405,7 +477,8 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
         study_rows=study_rows(study),
         notes=NOTES + [("Timer spreads", spread_reading(study))]
+        + ([("Part grades", GRADE_NOTE)] if study.grade_plan else [])
         + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
         temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS),
-        waveform=pick_waveform(study, designs, ideal))
+        waveform=pick_waveform(study, designs, ideal), grades=grades)

@@ -3,8 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .analysis import flag_text
-from .engine import evaluate_block
+from .engine import evaluate_block, flag_text
 from .errors import InputError
 from .study import parse_study, toml_inline
 from .variables import OUTPUTS

@@ -12,7 +12,7 @@ import json
 import math
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -35,7 +35,12 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
                                  "(sets the cautions)"),
               "battery_capacity": ("Ah", "rated battery capacity, e.g. \"220mAh\": adds battery life"),
               "battery_usable": ("%", "share of the rated capacity the circuit can use, default 100 %")},
-    "design": {k: (u, "a range of choices") for k, (_, u) in AXES.items()},
+    "design": {**{k: (u, "a range of choices") for k, (_, u) in AXES.items()},
+               "resistor_tolerance": ("%", "grades to compare, e.g. [\"1%\", \"5%\"]"),
+               "resistor_series": ("text", "series of the timing resistors to compare, e.g. "
+                                           "[\"E12\", \"E96\"]"),
+               "capacitor": ("text", "capacitor technologies to compare, e.g. [\"C0G\", \"X7R\"]"),
+               "capacitor_tolerance": ("%", "grades to compare, e.g. [\"5%\", \"10%\"]")},
     "conditions": {k: (u, "a range every design must survive") for k, (_, u) in AXES.items()},
     "parts": {"resistor_tolerance": ("%", "default: implied by the resistor series, else 5 %"),
               "resistor_tempco": ("ppm/K", "default 100 ppm/K"),
@@ -50,7 +55,9 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
               "diode_saturation_current": ("A", "the diode's saturation current at 25 °C"),
               "diode_ideality": ("", "the diode's ideality factor"),
               "diode_drop": ("V", "a fixed forward drop instead of the Shockley diode"),
-              "dc_bias_loss": ("", "fractional capacitance loss at rated voltage (class II ceramics)")},
+              "dc_bias_loss": ("", "fractional capacitance loss at rated voltage (class II ceramics)"),
+              "discharge_resistor": ("ohm", "monostable: a resistor between the discharge pin and "
+                                            "C that limits the capacitor's dump, default none")},
     "load": {"resistance": ("ohm", "load on the output; absent: no load"),
              "to": ("text", "ground (output sources current) | supply (output sinks it)"),
              "forward_voltage": ("V", "drop of an LED or diode in series with the load"),
@@ -79,7 +86,7 @@ SPEC_CIRCUITS = {"frequency": ASTABLES, "duty": ASTABLES, "pulse_width": ("monos
                  "timeout": ("missing-pulse",)}
 SUPPLIES = ("regulated", "battery", "mains-derived")
 LOAD_KINDS = ("resistive", "led", "relay", "inductive", "mains-switching")
-RANGE_KEYS = ("min", "max", "steps", "per_decade", "series", "values", "nominal")
+RANGE_KEYS = ("min", "max", "steps", "per_decade", "series", "values", "nominal", "from_spec")
 MAX_STEPS = 100_000
 MAX_POINTS_PER_AXIS = 100_000
 
@@ -138,6 +145,7 @@ class Study:
     yield_min: float | None = None       # [spec] yield = { min = ... }
     battery_capacity_ah: float | None = None   # [study] battery_capacity [A h]
     battery_usable: float = 1.0          # [study] battery_usable, a fraction
+    grade_plan: tuple = ()               # part grades as design axes (sweep.grades), else ()
 
     @property
     def axes(self) -> tuple[Axis, ...]:
@@ -145,6 +153,8 @@ class Study:
 
     @property
     def n_designs(self) -> int:
+        if self.grade_plan:
+            return sum(g.n_designs for g in self.grade_plan)
         return math.prod(len(a.values) for a in self.design)      # exact: no int64 overflow
 
     @property
@@ -335,7 +345,7 @@ class _Parser:
         name = _slug(Path(self.fname).stem) if self.fname and not self.fname.startswith("<") else "study"
         title = st.get("title") or name
 
-        design = self.axes("design", circuit)
+        design = self.axes("design", circuit, self.from_spec(circuit, timer))
         conditions = self.axes("conditions", circuit)
         both = set(a.key for a in design) & set(a.key for a in conditions)
         if both:
@@ -359,7 +369,7 @@ class _Parser:
                 sec = "design" if k in {a.key for a in design} else "conditions"
                 self.fail(sec, k, f"not used by circuit {circuit} (it uses "
                           f"{', '.join(needed) or 'no timing parts'})")
-        # defaults: the timer's typical supply and 25 °C, as single conditions [PRODUCT.md]
+        # defaults: the timer's typical supply and 25 °C, as single conditions [the study-file contract in README.md]
         if "vcc" not in given:
             conditions = conditions + (Axis("vcc", "vcc_v", np.array([timer.typical_v]), "condition",
                                             nominal=timer.typical_v),)
@@ -386,11 +396,17 @@ class _Parser:
         if not 0.5 <= ts <= 6.0:
             self.fail("analysis", "typical_sigma", "must be between 0.5 and 6 (how many sigma a "
                       "datasheet's typical spread is; 1 reads it as one sigma)")
-        return Study(path=self.fname, name=name, title=title, notes=st.get("notes", ""),
+        base = Study(path=self.fname, name=name, title=title, notes=st.get("notes", ""),
                      circuit=circuit, supply=supply, timer_spec=timer_spec, timer=timer, design=design,
                      conditions=conditions, parts=parts, load=load, spec=spec, monte_carlo=mc,
                      seed=seed, distribution=dist, top=top, raw=d, typical_sigma=float(ts),
                      yield_min=self.yield_spec(), **self.battery(st))
+        from .grades import build_plan, grade_axis, parse_grades
+        grades = parse_grades(d.get("design", {}), lambda k, why: self.fail("design", k, why))
+        if not grades:
+            return base
+        plan = build_plan(base, grades, d.get("parts", {}), lambda k, why: self.fail("design", k, why))
+        return replace(base, design=plan[0].study.design + (grade_axis(plan),), grade_plan=plan)
 
     def battery(self, st: dict) -> dict:
         """[study] battery_capacity and battery_usable, and the spec key that needs them."""
@@ -407,11 +423,85 @@ class _Parser:
         return {"battery_capacity_ah": cap, "battery_usable": usable}
 
     # -- ranges
-    def axes(self, section: str, circuit: str) -> tuple[Axis, ...]:
+    def from_spec(self, circuit: str, timer: TimerModel) -> dict[str, tuple[np.ndarray, str]]:
+        """[design] entries written { from_spec = true, series = "E6" }: the closed forms inverted
+        for the [spec] target (sweep.design_ranges). The timing keys given that way, and those
+        left out of [design] altogether, get the proposed values; explicit ranges stay."""
+        from .design_ranges import Target, propose
+        marked = {k: v for k, v in self.data.get("design", {}).items()
+                  if isinstance(v, dict) and "from_spec" in v}
+        if not marked:
+            return {}
+        for k, v in marked.items():
+            if v["from_spec"] is not True:
+                self.fail("design", f"{k}.from_spec", "must be true (or leave the key out)")
+            if k not in ("ra", "rb", "r", "c"):
+                self.fail("design", f"{k}.from_spec", "only the timing parts ra, rb, r and c are "
+                          "worked out from the spec")
+            extra = set(v) - {"from_spec", "series"}
+            if extra:
+                self.fail("design", f"{k}.{sorted(extra)[0]}", "from_spec takes only a series "
+                          "beside it")
+            if "series" in v and (not isinstance(v["series"], str)
+                                  or v["series"].strip().upper() not in qv.SERIES):
+                self.fail("design", f"{k}.series", f"unknown series; known: {', '.join(qv.SERIES)}")
+        key0 = sorted(marked)[0]
+        if circuit not in ("astable", "astable-diode", "astable-symmetric", "monostable"):
+            self.fail("design", f"{key0}.from_spec", f"circuit {circuit} has no timing to aim at")
+        spec = {s.key: s for s in self.spec(circuit)}
+        main = "pulse_width" if circuit == "monostable" else "frequency"
+        if main not in spec or not (math.isfinite(spec[main].lo) and math.isfinite(spec[main].hi)):
+            self.fail("design", f"{key0}.from_spec", f"needs [spec] {main} with a target and "
+                      "tolerance (or a min and a max) to aim at")
+        lo, hi = spec[main].lo, spec[main].hi
+        aim = spec[main].target or math.sqrt(lo * hi)
+        tol = max(hi / aim - 1.0, 1.0 - lo / aim)
+        duty = spec.get("duty")
+        d_lo = duty.lo if duty is not None and duty.lo > 0 else None
+        d_hi = duty.hi if duty is not None and duty.hi < 1 else None
+        target = Target(aim if main == "frequency" else None, d_lo, d_hi,
+                        aim if main == "pulse_width" else None, tol)
+        cond = {a.key: a for a in self.axes("conditions", circuit)}
+        vcc = cond["vcc"].values if "vcc" in cond else np.array([timer.typical_v])
+        temp = cond["temperature"].values if "temperature" in cond else np.array([25.0])
+        p = self.data.get("parts", {})
+        try:
+            tech = capacitor_named(p.get("capacitor", Parts.capacitor))
+        except (KeyError, TypeError):
+            tech = capacitor_named(Parts.capacitor)      # parts() words the error later
+        v_rated = Parts.capacitor_voltage_v
+        if "capacitor_voltage" in p:
+            v_rated = self.quantity("parts", "capacitor_voltage", p["capacitor_voltage"], "V")
+        diode = p.get("diode", "silicon") if isinstance(p.get("diode"), str) else "silicon"
+        series = {k: str(v.get("series", "E6" if k == "c" else "E24")).strip().upper()
+                  for k, v in marked.items()}
+        r_series = next((series[k] for k in ("ra", "rb", "r") if k in series), "E24")
+        try:
+            prop = propose(circuit, target, timer, tech, vcc=(float(vcc.min()), float(vcc.max())),
+                           temperature=(float(temp.min()), float(temp.max())), r_series=r_series,
+                           c_series=series.get("c", "E6"), capacitor_voltage_v=v_rated,
+                           diode=diode)
+        except ValueError as e:
+            self.fail("design", f"{key0}.from_spec", str(e))
+        given = self.data.get("design", {})
+        return {k: (prop.values[k], prop.series[k]) for k in prop.values
+                if k in marked or k not in given}
+
+    def axes(self, section: str, circuit: str,
+             proposed: dict[str, tuple[np.ndarray, str]] | None = None) -> tuple[Axis, ...]:
         out = []
         role = "design" if section == "design" else "condition"
-        for key, value in self.data.get(section, {}).items():
+        items = dict(self.data.get(section, {}))
+        for k in (proposed or {}):
+            items.setdefault(k, None)
+        for key, value in items.items():
+            if key not in AXES:          # a part grade (sweep.grades), not a value axis
+                continue
             column, unit = AXES[key]
+            if proposed and key in proposed:
+                vals, series = proposed[key]
+                out.append(Axis(key, column, vals, role, series, None))
+                continue
             vals, series, nominal = self.range_values(section, key, value, unit)
             if key != "temperature" and np.any(vals <= 0):
                 self.fail(section, key, "every value must be greater than zero")
@@ -538,7 +628,8 @@ class _Parser:
                           ("diode_drop", "diode_drop_v"),
                           ("diode_saturation_current", "diode_saturation_current_a"),
                           ("diode_ideality", "diode_ideality"),
-                          ("dc_bias_loss", "dc_bias_loss")):
+                          ("dc_bias_loss", "dc_bias_loss"),
+                          ("discharge_resistor", "discharge_resistor_ohm")):
             if key in p:
                 kw[attr] = self.quantity("parts", key, p[key], units[key][0],
                                          allow_negative=key == "resistor_tempco")
@@ -550,6 +641,12 @@ class _Parser:
             if attr in kw and kw[attr] <= 0:
                 self.fail("parts", key, "must be greater than zero")
         self._diode(p, kw)
+        if "discharge_resistor_ohm" in kw:
+            if self.data.get("study", {}).get("circuit") != "monostable":
+                self.fail("parts", "discharge_resistor", "applies to the monostable only (in an "
+                          "astable RB already sits between the discharge pin and C)")
+            if not 0 <= kw["discharge_resistor_ohm"] <= 10e3:
+                self.fail("parts", "discharge_resistor", "must be from 0 to 10 kΩ")
         if "resistor_tempco_per_k" in kw and abs(kw["resistor_tempco_per_k"]) > 0.01:
             self.fail("parts", "resistor_tempco", "beyond +-10 000 ppm/K: check the unit (ppm)")
         if "capacitor" in p:

@@ -73,6 +73,14 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("stalls_at", "Stalls at", "", "text", "Where the timer first stalls: condition and tolerance corner"),
     _V("uncommon", "Uncommon part", "", "text", "A part that is uncommon or costly in its technology"),
     _V("condition", "Condition", "", "int", "Condition number within the design"),
+    # part grades as design axes
+    _V("grade", "Grade", "", "int", "Number of the part-grade combination (Grades table)"),
+    _V("grade_label", "Grade name", "", "text", "The part grades of the design, in words"),
+    _V("resistor_tolerance", "R tolerance", "", "text", "Tolerance of the timing resistors"),
+    _V("resistor_series", "R series", "", "text", "IEC 60063 series of the timing resistors"),
+    _V("capacitor", "C technology", "", "text", "Technology of the timing capacitor"),
+    _V("capacitor_tolerance", "C tolerance", "", "text", "Tolerance of the timing capacitor"),
+    _V("cost_index", "Cost index", "", "fixed2", "Relative cost of the timing parts' grades: rough common-practice figures [cp] from the grade table, not quotes"),
 ]}
 
 #: study keys that can be swept, with the column that carries them and the SI unit they parse to
@@ -123,3 +131,17 @@ def header(name: str) -> str:
     """Header text for a machine column name, falling back to the name itself."""
     v = VARIABLES.get(name)
     return v.header if v else name
+
+
+def eng(value: float, column: str) -> str:
+    """A value of a machine column as a person reads it: engineering notation with the
+    column's unit, or a percentage for the duty; "-" where it is not a number."""
+    import math
+
+    from .values import format_eng
+    v = VARIABLES.get(column)
+    unit = v.unit if v else ""
+    finite = value is not None and math.isfinite(value)
+    if column == "duty":
+        return f"{value * 100:.1f} %" if finite else "-"
+    return format_eng(value, unit) if finite else "-"

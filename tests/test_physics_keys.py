@@ -97,3 +97,28 @@ capacitor_voltage = "16V"
     words = discharge_surge_caution(st, top)
     assert "100 Ω" in words and "series" in words and "discharge pin" in words
     assert discharge_surge_caution(st, pd.DataFrame({"flags": [""]})) == ""
+
+
+def test_a_discharge_resistor_tames_the_dump_and_keeps_the_pulse():
+    # [derived] 100 ohm in series with the discharge pin limits the 22 uF dump from 5.3 V to
+    # about 50 mA and takes most of its energy; the pulse (set by R, C and the thresholds) moves
+    # only through the idle voltage, by far less than 0.1 %
+    from sweep.models import load_timer
+    from sweep.physics import FLAG_BITS, Load, Parts, evaluate
+    timer = load_timer("bipolar")
+    over = FLAG_BITS["discharge-current-over-limit"]
+    kw = dict(vcc=8.0, temperature=25.0, c=22e-6, r=100e3)
+    bare = evaluate("monostable", timer, Parts(capacitor="electrolytic", capacitor_voltage_v=16.0),
+                    Load(), **kw)
+    tamed = evaluate("monostable", timer, Parts(capacitor="electrolytic", capacitor_voltage_v=16.0,
+                                                discharge_resistor_ohm=100.0), Load(), **kw)
+    assert int(bare["flag_mask"]) & over and not int(tamed["flag_mask"]) & over
+    assert float(tamed["discharge_peak_a"]) < 0.06
+    assert float(tamed["pulse_width_s"]) == pytest.approx(float(bare["pulse_width_s"]), rel=1e-3)
+
+
+def test_discharge_resistor_is_for_the_monostable(tmp_path, capsys):
+    path = tmp_path / "d.toml"
+    path.write_text(DIODE_STUDY.format(parts='discharge_resistor = "100"'))
+    code, out, err = cli(["check", str(path)], capsys)
+    assert code == 2 and "discharge_resistor" in err and "monostable" in err

@@ -1,7 +1,7 @@
 """Design traps a timer-sweep user must be warned about, each as a flag on the point.
 
-The limits are typical datasheet figures [ds-bip]/[ds-cmos] and common practice [cp] as listed in
-DOMAIN.md sections 3-6 and 8; each check also has a near neighbour that must NOT be flagged, so a
+The limits are typical datasheet figures [ds-bip]/[ds-cmos] and common practice [cp], as the timer
+files and parts data state them; each check also has a near neighbour that must NOT be flagged, so a
 flag that is always on (or always off) fails.
 """
 import math
@@ -143,7 +143,7 @@ def test_junction_too_hot():
     # [ds-bip] theta_JA 85-100 C/W (DIP-8), T_j max 150 C. A 75 Ohm load at 16 V draws about
     # 180 mA with about 2.3 V across the output stage (1.7 V at 100 mA, 2.5 V at 200 mA), i.e.
     # 0.4 W, plus 16 V x about 10 mA quiescent: near 0.58 W, a rise of about 55-60 K
-    # [derived: DOMAIN.md section 8]
+    # [derived: the supply current drawn by the timing network]
     load = Load(resistance_ohm=75.0)
     kw = dict(vcc=16.0, r=100e3, c=1e-6, load=load)
     got, out = flags("monostable", temperature=105.0, **kw)

@@ -399,7 +399,7 @@ def _check_report(circuit: str, rows: list[dict]):
     check = pd.DataFrame({"rank": np.arange(1, len(df) + 1), "design": np.arange(11, 11 + len(df))})
     for col in [*_PARTS[circuit], "vcc_v", "control_voltage_v"]:
         check[col] = df[col].to_numpy()
-    check["diode_drop_v"] = 0.0            # ideal mode drops the diode [DOMAIN.md section 9]
+    check["diode_drop_v"] = 0.0            # ideal mode drops the diode [the ideal mode: textbook formulas]
     for o in outs:
         check[f"ideal_{o}"] = ideal[o]
         check[f"real_{o}"] = real[o]
@@ -509,7 +509,7 @@ def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
                 assert str(wf.cell(r, fcol).value).startswith("="), "formula kept live"
                 want = rep.check[f"ideal_{o}"].iloc[k]
                 got = ws.cell(r, fcol).value
-                # [book: textbook formulas, DOMAIN.md section 2] evaluated by LibreOffice
+                # [book: textbook formulas, e.g. Horowitz & Hill, *The Art of Electronics*] evaluated by LibreOffice
                 assert got == pytest.approx(want, rel=1e-9), (name, k, o, got, want)
                 assert abs(ws.cell(r, dcol).value) < 1e-9
     _check_diode_drop_cell(diode, openpyxl.load_workbook(done["diode-vd.xlsx"], data_only=True))

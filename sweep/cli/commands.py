@@ -57,7 +57,7 @@ def run(study: StudyArg,
         quiet: Quiet = False):
     """Sweep a study and write the workbook, chart page, parquet tables and run record."""
     from ..study import load_study
-    from ..estimate import estimate, guard
+    from ..estimate import clearly_small, estimate, guard
     from ..pipeline import run_study
     from .show import progress_bar, top_table
 
@@ -70,9 +70,8 @@ def run(study: StudyArg,
         check_address(scheduler)
     st = load_study(study)
     out_dir = Path(out) if out is not None else Path("outputs") / st.name
-    est = estimate(st)
-    if not yes:
-        guard(st, est)
+    if not yes and not clearly_small(st):
+        guard(st, estimate(st))
     mapper = None
     if scheduler:
         from ..parallel import dask_mapper
@@ -81,7 +80,7 @@ def run(study: StudyArg,
         from ..parallel import process_mapper
         mapper = process_mapper(workers)
     try:
-        with progress_bar(st.n_points, quiet or not sys.stderr.isatty(), est) as advance:
+        with progress_bar(st.n_points, quiet or not sys.stderr.isatty()) as advance:
             res = run_study(st, out_dir, ideal=ideal, all_points=all_points, progress=advance,
                             mapper=mapper, on_commit=lambda: STOPPED.update(written=True))
     finally:
@@ -106,15 +105,44 @@ def new(circuit: Annotated[str, typer.Argument(help="astable | astable-diode | a
                                                     "monostable | missing-pulse | bistable")],
         out: Annotated[Optional[Path], typer.Option("--out", "-o", help="File to write "
                                                     "(default: <circuit>.toml)")] = None,
-        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False):
-    """Write a commented starter study for a circuit."""
-    from ..starters import starter_text
+        force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False,
+        frequency: Annotated[Optional[str], typer.Option(help="Target frequency, e.g. 2Hz: the "
+                             "[design] ranges are worked out from the spec")] = None,
+        pulse_width: Annotated[Optional[str], typer.Option(help="Target pulse (monostable), "
+                               "e.g. 30s")] = None,
+        tolerance: Annotated[str, typer.Option(help="Tolerance of the target, e.g. 5%")] = "10%",
+        duty_min: Annotated[Optional[str], typer.Option(help="Lowest duty, e.g. 0.15")] = None,
+        duty_max: Annotated[Optional[str], typer.Option(help="Highest duty, e.g. 0.35")] = None,
+        vcc: Annotated[Optional[str], typer.Option(help="Supply range, e.g. 6..8.4 (default: "
+                       "the timer's typical supply +-10 %)")] = None,
+        temperature: Annotated[Optional[str], typer.Option(help="Ambient range, e.g. -10..40 "
+                               "(default 0..50)")] = None,
+        series: Annotated[str, typer.Option(help="IEC 60063 series of the timing resistors")] = "E24",
+        capacitor_series: Annotated[str, typer.Option(help="IEC 60063 series of the capacitor")] = "E6",
+        capacitor: Annotated[str, typer.Option(help="Capacitor technology: C0G | X7R | X5R | Y5V | "
+                             "polypropylene | polyester | electrolytic | tantalum")] = "X7R",
+        timer: Annotated[str, typer.Option(help="bipolar | cmos | path to a timer-model TOML "
+                         "file")] = "cmos",
+        supply: Annotated[str, typer.Option(help="regulated | battery | mains-derived")] = "regulated",
+        capacitors: Annotated[Optional[int], typer.Option(help="Capacitor values to keep (those "
+                              "whose resistors sit nearest the middle of the usable range; default "
+                              "2 for astable and astable-diode, else 1)")] = None):
+    """Write a commented study for a circuit: a starter to edit, or, with --frequency or
+    --pulse-width, [design] ranges worked out from the spec."""
+    from ..starters import spec_study_text, starter_text
     from ..writers.atomic import write_text_atomic
 
-    text = starter_text(circuit)
     path = out or Path(f"{circuit}.toml")
     if path.exists() and not force:
         raise InputError(str(path), "--out", "already exists; use --force to overwrite it")
+    if frequency is None and pulse_width is None:
+        text = starter_text(circuit)
+    else:
+        text = spec_study_text(circuit, frequency=frequency, pulse_width=pulse_width,
+                               tolerance=tolerance, duty_min=duty_min, duty_max=duty_max, vcc=vcc,
+                               temperature=temperature, series=series,
+                               capacitor_series=capacitor_series, capacitor=capacitor, timer=timer,
+                               supply=supply, capacitors=capacitors)
     write_text_atomic(path, text)
     typer.echo(f"wrote {path}; edit it, then: timer-sweep check {path} && timer-sweep run {path}")
 
@@ -143,6 +171,7 @@ def point(
     diode_ideality: Annotated[Optional[str], typer.Option(help="Ideality factor, e.g. 1.75")] = None,
     diode_drop: Annotated[Optional[str], typer.Option(help="A fixed drop instead of the Shockley diode, e.g. 0.7V")] = None,
     dc_bias_loss: Annotated[Optional[str], typer.Option()] = None,
+    discharge_resistor: Annotated[Optional[str], typer.Option(help="Monostable: resistor between the discharge pin and C (default: none)")] = None,
     load: Annotated[Optional[str], typer.Option(help="Load resistance, e.g. 1k (default: none)")] = None,
     load_to: Annotated[Optional[str], typer.Option(help="ground | supply")] = None,
     load_forward_voltage: Annotated[Optional[str], typer.Option(help="LED drop in series with the load")] = None,

@@ -9,7 +9,7 @@ from rich.markup import escape as _markup_escape
 from rich.table import Table
 
 from ..errors import printable
-from ..reporting import eng
+from ..variables import eng
 
 
 def escape(text: str) -> str:
@@ -62,7 +62,8 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
     t.add_column("I supply max", justify="right")
     t.add_column("flags")
     for _, r in d.head(n if table else 0).iterrows():
-        cells = [str(r["rank"])] + [eng(r[a.column], a.column) for a in st.design]
+        cells = [str(r["rank"])] + [str(r.get("grade_label", "")) if a.key == "grade"
+                                    else eng(r[a.column], a.column) for a in st.design]
         stalls = "stalls" if r.get("stalls_at") else "-"
         cells += [eng(r[f"{m}_nom"], m) if r[f"{m}_nom"] == r[f"{m}_nom"] else stalls for m in main]
         cells.append(str(r["verdict"]))
@@ -93,7 +94,12 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
 def print_estimate(st, est) -> None:
     from ..estimate import human_time
     out.print(escape(f"{st.path}: valid. circuit {st.circuit}, timer {st.timer.name}"))
-    out.print(f"  designs     {st.n_designs:,}  ({' x '.join(f'{a.key} {len(a.values)}' for a in st.design) or 'one'})")
+    if st.grade_plan:       # part grades: each combination has its own sweep of values
+        each = " + ".join(f"{g.n_designs:,}" for g in st.grade_plan[:8]) + \
+            (" + ..." if len(st.grade_plan) > 8 else "")
+        out.print(f"  designs     {st.n_designs:,}  ({len(st.grade_plan)} part grades: {each})")
+    else:
+        out.print(f"  designs     {st.n_designs:,}  ({' x '.join(f'{a.key} {len(a.values)}' for a in st.design) or 'one'})")
     out.print(f"  conditions  {st.n_conditions:,}  ({' x '.join(f'{a.key} {len(a.values)}' for a in st.conditions)})")
     out.print(f"  points      {est.points:,}")
     out.print(f"  evaluations {est.evaluations:,} (sweep, worst-case corners, {st.monte_carlo:,} Monte Carlo builds)")

@@ -160,6 +160,8 @@ def _check_physical(m: TimerModel, fname: str) -> None:
             bad(k, "must not be negative")
     if m.threshold_current_max_a < m.threshold_current_a:
         bad("threshold_current_max_a", "must be at least threshold_current_a")
+    if m.quiescent_max_ratio < 1.0:
+        bad("quiescent_max_ratio", "the maximum quiescent current must be at least the typical (ratio >= 1)")
     for typ in SPREADS:
         if getattr(m, spread_max_name(typ)) < getattr(m, typ):
             bad(spread_max_name(typ), f"a maximum must be at least the typical {typ}")

@@ -74,13 +74,15 @@ def diode_feed_a(vcc_v, v_node_v, ra_ohm, rb_ohm, i_sat_a, n_vt_v):
     return (vcc_v - v_node_v - u) / ra_ohm
 
 
-def _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor):
+def _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor, dc_bias_factor=1.0):
     """The timing node's C(v) over the swing, its leakage conductance [S] and the constant
     current [A] the comparator inputs draw from it."""
     cap = parts.technology
     c_nom = np.asarray(c, dtype=float)
     c_t = c_nom * (1.0 if ideal else capacitance_temperature_factor(cap, t_amb))
     loss = 0.0 if ideal else (cap.dc_bias_loss if parts.dc_bias_loss is None else parts.dc_bias_loss)
+    if loss != 0.0 and not (np.ndim(dc_bias_factor) == 0 and dc_bias_factor == 1.0):
+        loss = loss * np.asarray(dc_bias_factor, dtype=float)      # a build's or corner's curve
     # the monostable ramps from (nearly) 0 V, an astable swings between Vc/2 and Vc [book] and,
     # at the highest frequencies, runs on below Vc/2 for the delay: the curve is fitted from Vc/4
     curve = node_capacitance(c_t, parts.stray_capacitance_f, loss, parts.capacitor_voltage_v,
@@ -110,7 +112,7 @@ def _discharge_network(timer, vcc, ra_t, rb_t):
 
 
 def _charge_phase(circuit, timer, parts, stage: OutputStates, curve, g_leak, i_draw, *, vcc,
-                  t_amb, ra_t, rb_t, r_t, v_bot, v_up, ideal):
+                  t_amb, ra_t, rb_t, r_t, v_bot, v_up, ideal, diode_is_factor=1.0):
     """The astable's high phase from v_bot to v_up and on for the delay. Returns (Phase, stalls,
     current [A] into the node at its start, its source's resistance to the supply [Ω])."""
     tpd = timer.propagation_delay_s
@@ -146,7 +148,7 @@ def _charge_phase(circuit, timer, parts, stage: OutputStates, curve, g_leak, i_d
         return ph, stalls, i0, ra_t
     # Shockley diode across RB [book: Sedra & Smith; temperature rule in parts.saturation_at]
     diode = parts.diode_model
-    i_sat = saturation_at(diode, t_amb)
+    i_sat = saturation_at(diode, t_amb) * diode_is_factor
     n_vt = diode.ideality * thermal_voltage_v(t_amb)
 
     def net(v):
@@ -155,8 +157,8 @@ def _charge_phase(circuit, timer, parts, stage: OutputStates, curve, g_leak, i_d
     return ph, stalls, diode_feed_a(vcc, v_bot, ra_t, rb_t, i_sat, n_vt), ra_t
 
 
-def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, t_amb, ra_t, rb_t,
-             r_t, v_up, ideal):
+def _astable(circuit, timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, t_amb, ra_t, rb_t,
+             r_t, v_up, ideal, diode_is_factor=1.0):
     """Both phases of an astable, the supply current and the discharge figures."""
     tpd = timer.propagation_delay_s
     v_lo = 0.5 * v_up
@@ -185,7 +187,7 @@ def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, 
     v_bot = run_on(curve, vinf_b, g_b, v_lo, tpd, at_lo)
     high, stalls, i_start, r_feed = _charge_phase(
         circuit, timer, parts, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb, ra_t=ra_t,
-        rb_t=rb_t, r_t=r_t, v_bot=v_bot, v_up=v_up, ideal=ideal)
+        rb_t=rb_t, r_t=r_t, v_bot=v_bot, v_up=v_up, ideal=ideal, diode_is_factor=diode_is_factor)
     v_top = high.v_end_v
     with np.errstate(all="ignore"):
         if split is None:
@@ -220,11 +222,11 @@ def _astable(circuit, timer, parts, load, stage, curve, g_leak, i_draw, *, vcc, 
         p_res = np.maximum((vcc - vd_bot) ** 2 / ra_t, i_start ** 2 * ra_t)
         p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
         r_series = rb_t
-    i_h = timer.quiescent_a(vcc, output_high=True) + q_h / high.time_s + stage.i_high
-    i_l = timer.quiescent_a(vcc, output_high=False) + i_ra_l + stage.i_low
+    i_h = iq[True] + q_h / high.time_s + stage.i_high
+    i_l = iq[False] + i_ra_l + stage.i_low
     supply = (t_h * i_h + t_l * i_l) / period
-    p_chip_h = vcc * timer.quiescent_a(vcc, output_high=True) + (vcc - stage.v_high) * stage.i_high
-    p_chip_l = vcc * timer.quiescent_a(vcc, output_high=False) + stage.v_low * stage.i_low + p_dis_l
+    p_chip_h = vcc * iq[True] + (vcc - stage.v_high) * stage.i_high
+    p_chip_l = vcc * iq[False] + stage.v_low * stage.i_low + p_dis_l
     p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
     out = dict(high_time_s=t_h, low_time_s=t_l, period_s=period, frequency_hz=1.0 / period,
                duty=t_h / period, pulse_width_s=np.nan, supply_current_a=supply,
@@ -259,12 +261,15 @@ def _surge(timer, curve: NodeCapacitance, v_top, v_end, r_series):
     return e_tr, duration
 
 
-def _monostable(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up):
+def _monostable(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up):
     """The monostable's pulse, supply and idle currents, and the capacitor dump at its end."""
     tpd = timer.propagation_delay_s
     # at rest the discharge transistor holds C: R from VCC, V_sat0 + R_sat, leakage and the
     # threshold input current [derived: Kirchhoff's current law]
-    r_sat = timer.saturation_ohm
+    # threshold input current; a resistor R_s between the discharge pin and C is in series with
+    # the saturation resistance [derived: Kirchhoff's current law]
+    r_s = parts.discharge_resistor_ohm
+    r_sat = timer.saturation_ohm + r_s
     if r_sat > 0:
         v0 = ((vcc / r_t + timer.saturation_v / r_sat - i_draw)
               / (1.0 / r_t + 1.0 / r_sat + g_leak))
@@ -277,13 +282,14 @@ def _monostable(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up):
         pw = np.where(stalls, np.nan, ph.time_s)
         vm_h = ph.vt_vs / ph.time_s
     i_idle_r = (vcc - v0) / r_t
-    supply = timer.quiescent_a(vcc, output_high=True) + (vcc - vm_h) / r_t + stage.i_high
-    idle = timer.quiescent_a(vcc, output_high=False) + i_idle_r + stage.i_low
-    p_chip = np.maximum(vcc * timer.quiescent_a(vcc, output_high=True) + (vcc - stage.v_high) * stage.i_high,
-                        vcc * timer.quiescent_a(vcc, output_high=False) + stage.v_low * stage.i_low
+    supply = iq[True] + (vcc - vm_h) / r_t + stage.i_high
+    idle = iq[False] + i_idle_r + stage.i_low
+    p_chip = np.maximum(vcc * iq[True] + (vcc - stage.v_high) * stage.i_high,
+                        vcc * iq[False] + stage.v_low * stage.i_low
                         + v0 * i_idle_r)
     v_top = ph.v_end_v
-    # at the pulse's end the capacitor dumps straight into the transistor [derived]
+    # at the pulse's end the capacitor dumps into the transistor, through R_s if there is one
+    # [derived]
     with np.errstate(all="ignore"):
         dump = np.minimum((v_top - timer.saturation_v) / max(r_sat, 1e-12), timer.surge_current_a)
     nan = np.full_like(pw, np.nan)
@@ -291,10 +297,10 @@ def _monostable(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up):
                pulse_width_s=pw, supply_current_a=supply, idle_current_a=idle,
                discharge_peak_a=dump + i_idle_r, ra_power_w=(vcc - v0) ** 2 / r_t)
     out.update(wave_v_start_v=v0, wave_v_top_v=v_top, wave_vinf_high_v=ph.vinf_v, wave_vinf_low_v=v0)
-    return out, stalls, p_chip, _surge(timer, curve, v_top, v0, 0.0), i_idle_r
+    return out, stalls, p_chip, _surge(timer, curve, v_top, v0, r_s), i_idle_r
 
 
-def _missing_pulse(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up, input_period):
+def _missing_pulse(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up, input_period):
     """The missing-pulse detector: a monostable whose capacitor an input pulse train discharges
     (through a transistor across C) and retriggers before it reaches the threshold. The timeout,
     from the last pulse to the alarm, is the monostable's ramp from the discharged level to the
@@ -304,7 +310,7 @@ def _missing_pulse(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up
     quiescent high current, the load and the mean current through R over that ramp, with the
     node following the RC law whose time constant matches the timeout [derived]. The current in
     the alarm state (output low, C held) is reported as the idle current."""
-    out, stalls, p_chip, surge, steady = _monostable(timer, parts, stage, curve, g_leak, i_draw,
+    out, stalls, p_chip, surge, steady = _monostable(timer, parts, iq, stage, curve, g_leak, i_draw,
                                                      vcc=vcc, r_t=r_t, v_up=v_up)
     timeout = out["pulse_width_s"]
     v0 = out["wave_v_start_v"]
@@ -314,7 +320,7 @@ def _missing_pulse(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up
         tau = timeout / np.log((vinf - v0) / (vinf - v_up))
         span = np.minimum(t_in, timeout)
         v_mean = vinf - (vinf - v0) * tau / span * -np.expm1(-span / tau)
-        supply = timer.quiescent_a(vcc, output_high=True) + (vcc - v_mean) / r_t + stage.i_high
+        supply = iq[True] + (vcc - v_mean) / r_t + stage.i_high
     nan = np.full(np.shape(timeout), np.nan)
     out.update(pulse_width_s=nan, high_time_s=nan, timeout_s=timeout, timeout_margin_s=timeout - t_in,
                supply_current_a=np.where(np.isnan(timeout), np.nan, supply))
@@ -323,14 +329,16 @@ def _missing_pulse(timer, parts, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up
 
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
-             leak_factor=1.0, ideal: bool = False, load_resistance=np.nan,
-             input_period=np.nan) -> dict[str, np.ndarray]:
+             leak_factor=1.0, dc_bias_factor=1.0, diode_is_factor=1.0, iq_factor=1.0,
+             ideal: bool = False, load_resistance=np.nan, input_period=np.nan) -> dict[str, np.ndarray]:
     """Evaluate every point of a broadcast grid.
 
     Parameters (SI units; arrays broadcast): vcc [V], temperature [°C], c [F] nominal at 25 °C,
     ra, rb, r [Ω] nominal at 25 °C, control_voltage [V] (NaN: internal divider), leak_factor [-]
     the capacitor's leakage relative to its typical figure (1: typical; see
-    parts.leakage_conductance_s for the specification maximum), load_resistance [Ω] a swept load
+    parts.leakage_conductance_s for the specification maximum); dc_bias_factor, diode_is_factor,
+    iq_factor [-]: a build's or a worst-case corner's DC-bias loss, diode saturation current and
+    quiescent current relative to their typical figures; load_resistance [Ω] a swept load
     resistor (NaN: the [load] resistance), input_period [s] the missing-pulse detector's input.
     Returns a dict of arrays: the output columns of sweep.variables.OUTPUTS and 'flag_mask'
     (bits of FLAG_BITS, spec-miss excluded: that needs the study's [spec]).
@@ -347,28 +355,30 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     # thresholds: upper = control voltage, lower = half of it [book]
     v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
     stage = output_states(timer, load, vcc, t_amb, load_resistance)
+    iq = {high: timer.quiescent_a(vcc, output_high=high) * iq_factor for high in (True, False)}
     timed = circuit != "bistable"
     surge = steady = None
     if timed:
-        curve, g_leak, i_draw = _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor)
+        curve, g_leak, i_draw = _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor,
+                                           dc_bias_factor)
         if circuit in ASTABLES:
             out, stalls, p_chip, surge, steady = _astable(
-                circuit, timer, parts, load, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb,
-                ra_t=ra_t, rb_t=rb_t, r_t=r_t, v_up=v_up, ideal=ideal)
+                circuit, timer, parts, iq, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb,
+                ra_t=ra_t, rb_t=rb_t, r_t=r_t, v_up=v_up, ideal=ideal, diode_is_factor=diode_is_factor)
         elif circuit == "missing-pulse":
             out, stalls, p_chip, surge, steady = _missing_pulse(
-                timer, parts, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up,
+                timer, parts, iq, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up,
                 input_period=input_period)
         else:
             out, stalls, p_chip, surge, steady = _monostable(
-                timer, parts, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up)
+                timer, parts, iq, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up)
         out["discharge_dump_s"] = surge[1]
     else:  # bistable: set/reset latch, no timing [book]
-        i_h = timer.quiescent_a(vcc, output_high=True) + stage.i_high
-        i_l = timer.quiescent_a(vcc, output_high=False) + stage.i_low
+        i_h = iq[True] + stage.i_high
+        i_l = iq[False] + stage.i_low
         stalls = np.zeros(np.broadcast(vcc, t_amb).shape, dtype=bool)
-        p_chip = np.maximum(vcc * timer.quiescent_a(vcc, output_high=True) + (vcc - stage.v_high) * stage.i_high,
-                            vcc * timer.quiescent_a(vcc, output_high=False) + stage.v_low * stage.i_low)
+        p_chip = np.maximum(vcc * iq[True] + (vcc - stage.v_high) * stage.i_high,
+                            vcc * iq[False] + stage.v_low * stage.i_low)
         nan = np.full(stalls.shape, np.nan)
         out = dict(high_time_s=nan, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
                    pulse_width_s=nan, supply_current_a=np.maximum(i_h, i_l), idle_current_a=i_l,

@@ -109,7 +109,7 @@ class NodeCapacitance:
 def node_capacitance(c_t_f, stray_f, loss, v_rated_v, v_up_v, low_fraction: float) -> NodeCapacitance:
     """C(v) = c_t (1 - loss (v / V_rated)^1.3, at least 5 %) + stray [F] on the swing from
     low_fraction x v_up to v_up [V]: c_t is the capacitance at 0 V and the working temperature."""
-    if loss == 0.0:
+    if np.ndim(loss) == 0 and loss == 0.0:
         return NodeCapacitance(const=c_t_f + stray_f)
     frac = low_fraction + (1.0 - low_fraction) * CHEB_X
     ratio = (np.maximum(v_up_v, 0.0) / v_rated_v) ** DC_BIAS_EXPONENT

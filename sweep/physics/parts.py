@@ -83,12 +83,13 @@ class Parts:
     capacitor: str = "X7R"
     capacitor_tolerance: float = 0.10      # [cp]
     capacitor_voltage_v: float = 50.0      # rating [cp]
-    stray_capacitance_f: float = 5e-12     # board and pins [cp: DOMAIN.md section 3]
+    stray_capacitance_f: float = 5e-12     # board and pins [cp: a few pF on a board, more on a plug-in breadboard]
     diode: str = "silicon"                 # diode of astable-diode: a DIODES entry
     diode_saturation_current_a: float | None = None   # at 25 °C; None: the diode's figure
     diode_ideality: float | None = None               # None: the diode's figure
     diode_drop_v: float | None = None      # a fixed forward drop instead of the Shockley law
     dc_bias_loss: float | None = None      # None: the technology's default
+    discharge_resistor_ohm: float = 0.0    # monostable: in series between discharge pin and C
 
     @property
     def technology(self) -> Capacitor:
@@ -121,7 +122,7 @@ class Load:
 
 
 def resistor_at(r_ohm, temperature_c, tempco_per_k):
-    """R(T) = R25 (1 + alpha (T - 25 °C)) [cp: DOMAIN.md section 4]. Returns ohms."""
+    """R(T) = R25 (1 + alpha (T - 25 °C)) [cp: resistor datasheets state the tempco this way]. Returns ohms."""
     return r_ohm * (1.0 + tempco_per_k * (temperature_c - 25.0))
 
 
@@ -133,8 +134,32 @@ def capacitance_temperature_factor(cap: Capacitor, temperature_c):
     return 1.0 + np.interp(temperature_c, pts[:, 0], pts[:, 1])
 
 
+#: temperature range of each code's band [std EIA-198: X = -55, Y = -30 C; 5 = 85, 7 = 125 C;
+#: class I C0G over -55..125 C]; films and electrolytics over their curves' ends [cp]
+def code_range_c(cap: Capacitor) -> tuple[float, float]:
+    """(low, high) temperature [°C] at which the technology's band applies."""
+    pts = cap.temp_points
+    if len(pts) < 2:
+        return (-55.0, 125.0)
+    return (float(pts[0][0]), float(pts[-1][0]))
+
+
+def temperature_envelope(cap: Capacitor, temperature_c):
+    """(lowest, highest) relative change of capacitance [-] a part of this code may have at
+    temperature_c [°C]: zero at 25 °C (where the tolerance is specified), widening linearly to
+    the code's band at the code's temperature limits, and never narrower than the typical
+    curve [std EIA-198 for the band at the limits; the linear widening is derived, a reading of
+    the code that a real part's curve stays inside]."""
+    t = np.asarray(temperature_c, dtype=float)
+    lo_t, hi_t = code_range_c(cap)
+    reach = np.where(t < 25.0, (25.0 - t) / (25.0 - lo_t), (t - 25.0) / (hi_t - 25.0))
+    reach = np.clip(reach, 0.0, 1.0)
+    typ = capacitance_temperature_factor(cap, t) - 1.0
+    return np.minimum(cap.temp_band[0] * reach, typ), np.maximum(cap.temp_band[1] * reach, typ)
+
+
 def dc_bias_factor(cap: Capacitor, v_mean_v, v_rated_v, loss: float | None = None):
-    """Multiplier for DC-bias loss: 1 - k (V/Vrated)^1.3 [mem: DOMAIN.md section 3]; >= 0.05."""
+    """Multiplier for DC-bias loss: 1 - k (V/Vrated)^1.3 [mem]; >= 0.05."""
     k = cap.dc_bias_loss if loss is None else loss
     if k == 0.0:
         return 1.0

@@ -20,6 +20,7 @@ class TimerModel:
     typical_v: float
     quiescent_points: tuple[tuple[float, float], ...]   # (V, A), output low, no load
     quiescent_high_delta_a: float
+    quiescent_max_ratio: float       # maximum over typical quiescent current
     # inputs
     threshold_fraction: float
     divider_resistance_ohm: float

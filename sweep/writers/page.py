@@ -39,6 +39,8 @@ PALETTE = [BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY, BLACK]
 SYMBOLS = ["circle", "square", "diamond", "triangle-up", "triangle-down", "pentagon", "hexagon"]
 DASHES = ["solid", "dash", "dot", "dashdot", "longdash", "longdashdot"]
 SEQUENTIAL = "Cividis"   # sequential scale designed to read the same with colour-vision deficiency
+#: error from the target: Okabe-Ito blue (below) through pale grey (on target) to vermillion (above)
+DIVERGING = [[0.0, "#0072B2"], [0.5, "#f2f2f2"], [1.0, "#D55E00"]]
 YELLOW = "#F0E442"   # Okabe-Ito yellow: only as the fill of the black-edged pick star
 GREY = "#8c8c8c"
 LIMIT = "#3a3a3a"    # spec limit lines: dark grey, apart from every data colour
@@ -53,6 +55,8 @@ HEADINGS = {
     "parallel": "Every design across all columns",
     "waveform": "Waveforms of the pick",
 }
+#: the section a study with part grades adds
+COST_HEADING = "Yield against the cost of part grades"
 
 CIRCUIT_TEXT = {
     "astable": "astable (free-running)",
@@ -431,8 +435,21 @@ def _map_section(report: Report, ds: _Designs) -> Section:
     if clog:
         with np.errstate(divide="ignore", invalid="ignore"):
             cval = np.where(craw > 0, np.log10(np.where(craw > 0, craw, 1.0)), np.nan)
-    lo, hi, _ = _main_limits(report)
+    lo, hi, target = _main_limits(report)
     has_spec = nomcol is not None and (np.isfinite(lo) or np.isfinite(hi))
+    # with a target (or a closed window), colour by the nominal error from it in per cent, on a
+    # diverging scale twice the spec window wide, so a narrow window shows instead of vanishing
+    # in an absolute scale
+    aim = target if target else (0.5 * (lo + hi) if np.isfinite(lo) and np.isfinite(hi) else None)
+    err_span = None
+    if nomcol is not None and aim:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cval = (craw / aim - 1.0) * 100.0
+        window = [abs(v / aim - 1.0) * 100.0 for v in (lo, hi) if np.isfinite(v)]
+        fin_err = _finite(cval)
+        err_span = 2.0 * max(window) if window else (float(np.abs(fin_err).max()) if fin_err.size
+                                                     else 10.0)
+        err_span = max(err_span, 1e-6)
     state = map_states(report, ds)
     main_label = _var(main).label.lower() if main else ""
 
@@ -506,7 +523,13 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         title=dict(text=html.escape(_header(ccol, "(nominal)") if nomcol else "Yield")
                    if ccol else "", side="right"), thickness=14, len=0.9))
     fin = _finite(craw[craw > 0] if clog else craw)
-    if fin.size:
+    if err_span is not None:
+        ticks = nice_ticks(-err_span, err_span, False)
+        cax = dict(colorscale=DIVERGING, cmin=-err_span, cmax=err_span, colorbar=dict(
+            title=dict(text=html.escape(f"{_var(main).label} error from the target [%] "
+                                        "(nominal)"), side="right"), thickness=14, len=0.9,
+            tickvals=ticks, ticktext=[f"{t:+g}" for t in ticks]))
+    elif fin.size:
         ticks = nice_ticks(float(fin.min()), float(fin.max()), clog)
         cax["colorbar"]["tickvals"] = [math.log10(t) for t in ticks] if clog else ticks
         cax["colorbar"]["ticktext"] = [_fmt(t, ccol) for t in ticks]
@@ -541,7 +564,11 @@ def _map_section(report: Report, ds: _Designs) -> Section:
     else:
         panels = "."
     colour = ""
-    if nomcol:
+    if err_span is not None:
+        colour = (f" Colour is the nominal {html.escape(main_label)}'s error from the target in "
+                  f"per cent: grey on target, blue below, vermillion above, full colour at "
+                  f"±{err_span:.3g} % (twice the spec window).")
+    elif nomcol:
         colour = f" Colour is the nominal {html.escape(main_label)} (scale on the right)."
     elif ccol:
         colour = " Colour is the yield (scale on the right)."
@@ -809,14 +836,17 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
         + ("Colour and marker shape tell the designs apart, the dash pattern tells the supply. "
            if len(ranks) > 1 else "The dash pattern tells the supply. ")
         + "Flat lines that stay close together mean the design shrugs off heat and supply "
-          "changes; a steep or fanning line shows where its margin goes. Click a legend entry "
-          "to hide a line.")
+          "changes; a steep or fanning line shows where its margin goes. The grey band around "
+          "the best design's middle-supply line is the chip's own drift and supply "
+          "sensitivity, whose sign no datasheet gives: darker its typical spread, lighter its "
+          "maximum. Click a legend entry to hide a line.")
     vccs = sorted(pd.unique(tc["vcc_v"]))
     design_of = {}
     if "rank" in ds.table.columns and "design" in ds.table.columns:
         design_of = dict(zip(ds.table["rank"], ds.table["design"]))
     unit = _fmt_unit(main)
     fig = go.Figure()
+    _drift_band(fig, tc, ranks[0], vccs, unit)
     for i, r in enumerate(ranks):
         colour, symbol = PALETTE[i % len(PALETTE)], SYMBOLS[i % len(SYMBOLS)]
         group = f"Rank {r}" + (f" (design {design_of[r]})" if r in design_of else "")
@@ -847,6 +877,26 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
                       margin=dict(r=20, t=20))
     sec.figure = fig
     return sec
+
+
+def _drift_band(fig, tc: pd.DataFrame, rank, vccs, unit: str) -> None:
+    """Shaded bands around the best design's line at the middle supply: the chip's drift and
+    supply sensitivity at their maximum (light) and typical (darker) figures."""
+    if not {"drift_typ", "drift_max"} <= set(tc.columns):
+        return
+    v = vccs[len(vccs) // 2]
+    sub = tc[(tc["rank"] == rank) & (tc["vcc_v"] == v)]
+    if sub.empty or not np.any(sub["drift_max"].to_numpy(float) > 0):
+        return
+    t = sub["temperature_c"].to_numpy(float)
+    y = sub["value"].to_numpy(float)
+    for col, shade, name in (("drift_max", "rgba(120,120,120,0.16)", "chip drift, maximum"),
+                             ("drift_typ", "rgba(120,120,120,0.30)", "chip drift, typical")):
+        w = sub[col].to_numpy(float)
+        fig.add_trace(go.Scatter(
+            x=np.r_[t, t[::-1]], y=np.r_[y * (1 + w), (y * (1 - w))[::-1]], fill="toself",
+            fillcolor=shade, line=dict(width=0), mode="lines", name=name, legendgroup="drift",
+            hoverinfo="skip"))
 
 
 # --- 6. parallel coordinates -------------------------------------------------------------------
@@ -974,7 +1024,8 @@ def build_sections(report: Report) -> list[Section]:
 def _sections(report: Report, ds: _Designs) -> list[Section]:
     return [_map_section(report, ds), _duty_section(report, ds), _yield_section(report, ds),
             _mc_section(report), _temperature_section(report, ds), _parallel_section(report, ds),
-            _waveform_section(report)]
+            _waveform_section(report)] \
+        + ([_cost_section(report)] if report.grades is not None and len(report.grades) else [])
 
 
 # --- 7. waveforms of the pick ------------------------------------------------------------------
@@ -1020,6 +1071,57 @@ def _waveform_section(report: Report) -> Section:
                       yaxis=dict(title=dict(text="Voltage [V]"), ticksuffix=" V"),
                       legend=dict(orientation="h", yanchor="top", y=-0.22, x=0),
                       margin=dict(r=20, t=20, b=140))
+    sec.figure = fig
+    return sec
+
+
+def _cost_section(report: Report) -> Section:
+    """One mark per part grade: its best design's yield (with the 95 % interval) against the
+    grade's relative cost index; the pick a star; the yield target a dashed line."""
+    sec = Section("cost", COST_HEADING, (
+        "One mark per combination of part grades, at the relative cost index of its timing parts "
+        "(from the editable grade table: rough common-practice figures, not quotes) and the "
+        "Monte Carlo yield of its best design, with the 95 % interval as a bar. The star is the "
+        "pick: the cheapest grade whose best design reaches the yield target, then the lowest "
+        "supply current."))
+    g = report.grades
+    target = report.run_info.get("yield_target")
+    cost = g["cost_index"].to_numpy(float)
+    y = g["yield"].to_numpy(float) * 100
+    lo = g["yield_lo"].to_numpy(float) * 100
+    hi = g["yield_hi"].to_numpy(float) * 100
+    pick_design = int(report.designs.sort_values("rank").iloc[0]["design"])
+    pick = g["design"].to_numpy() == pick_design
+    hover = [f"<b>{html.escape(str(r.grade_label))}</b><br>cost index {r.cost_index:.2f}<br>"
+             f"best design {r.design} (rank {r['rank']}), {html.escape(str(r.verdict))}<br>"
+             + (f"yield {r['yield'] * 100:.1f} % (95 %: {r.yield_lo * 100:.1f} to "
+                f"{r.yield_hi * 100:.1f} %)" if np.isfinite(r["yield"]) else "no yield figure")
+             for _, r in g.iterrows()]
+    fig = go.Figure()
+    reach = g["reaches"].to_numpy(bool)
+    for mask, name, colour in ((reach, "Reaches the yield target", BLUE),
+                               (~reach, "Does not reach it", VERMILLION)):
+        if not mask.any():
+            continue
+        fig.add_trace(go.Scatter(
+            x=cost[mask], y=y[mask], mode="markers+text", name=name,
+            text=[html.escape(str(t)) for t in g["grade_label"][mask]], textposition="top center",
+            error_y=dict(type="data", symmetric=False, array=(hi - y)[mask],
+                         arrayminus=(y - lo)[mask], color=colour, thickness=1.2),
+            marker=dict(size=11, color=colour, symbol="circle", line=dict(width=1, color=BLACK)),
+            hovertext=np.array(hover, dtype=object)[mask], hoverinfo="text"))
+    if pick.any():
+        fig.add_trace(_pick_trace(cost[pick], y[pick], dict(hovertext=np.array(hover, dtype=object)[pick],
+                                                            hoverinfo="text")))
+    if target:
+        fig.add_hline(target * 100, line=dict(color=BLACK, width=1.5, dash="dash"))
+        fig.add_trace(_legend_only(f"Yield target: {target * 100:g} %", "spec", mode="lines",
+                                   line=dict(color=BLACK, width=1.5, dash="dash")))
+    fig.update_layout(template=_TEMPLATE, height=460, margin=dict(l=90, r=30, t=40, b=120),
+                      legend=dict(orientation="h", x=0, y=-0.25, yanchor="top"),
+                      xaxis=dict(title="Relative cost index of the timing parts' grades "
+                                       "(rough common-practice figures [cp], not quotes)"),
+                      yaxis=dict(title="Yield of the grade's best design [%]"))
     sec.figure = fig
     return sec
 

@@ -517,6 +517,8 @@ def _summary(ws, st: _Styles, report: Report) -> None:
         _wide_text(ws, st, r, 1, 5, text, _SUMMARY_CHARS)
         r += 1
     r += 1
+    if report.grades is not None and len(report.grades):
+        r = _grades_block(ws, st, report, r)
     _text(ws, st, r, 0, "Cautions", bold=True, bottom=1)
     r += 1
     if report.cautions:
@@ -562,6 +564,36 @@ def _summary(ws, st: _Styles, report: Report) -> None:
     _text(ws, st, r, 0, "Numbers", bold=True, valign="top")
     _wide_text(ws, st, r, 1, 5, _FORMAT_LINE, _SUMMARY_CHARS, italic=True)
     _page_setup(ws, None)
+
+
+def _grades_block(ws, st: _Styles, report: Report, r: int) -> int:
+    """Yield against cost: the best design of each part grade, cheapest first."""
+    _text(ws, st, r, 0, "Grades: yield against cost", bold=True, bottom=1)
+    r += 1
+    heads = ["Grade", "Cost index [cp]", "Best design", "Yield", "Yield 95 % low",
+             "Reaches the target? Availability [cp]"]
+    for c, h in enumerate(heads):
+        _text(ws, st, r, c, h, bold=True, bg_color=_HEADER_FILL, bottom=1,
+              align="right" if 1 <= c <= 4 else None, indent=1 if c == 5 else None)
+    r += 1
+    pct = _FIXED["pct"]
+    for _, g in report.grades.iterrows():
+        _text(ws, st, r, 0, str(g["grade_label"]), valign="top")
+        _value(ws, st, r, 1, float(g["cost_index"]), num_format="0.00", valign="top")
+        _value(ws, st, r, 2, int(g["design"]), num_format="0", valign="top")
+        _value(ws, st, r, 3, _finite(g["yield"]), num_format=pct, valign="top")
+        _value(ws, st, r, 4, _finite(g["yield_lo"]), num_format=pct, valign="top")
+        words = ("yes" if g["reaches"] else f"no ({g['verdict']})") + \
+            (f"; {g['notes']}" if g["notes"] else "")
+        ws.set_row(r, 15 * _lines(words, 44))
+        _text(ws, st, r, 5, words, text_wrap=True, valign="top", indent=1)
+        r += 1
+    _wide_text(ws, st, r, 0, 5, "Cost index: the timing parts' grade costs added up, each "
+               "against the commonest grade (1.0); rough common-practice figures [cp] from the "
+               "editable grade table sweep/models/grades.toml, not quotes. The pick is the "
+               "cheapest grade whose best design's 95 % yield interval reaches the target, then "
+               "the lowest supply current.", _SUMMARY_CHARS, italic=True)
+    return r + 2
 
 
 def _unit_for_eng(var) -> str:
@@ -614,7 +646,8 @@ def _margin_why(df: pd.DataFrame) -> np.ndarray:
 
 def _designs(ws, st: _Styles, report: Report) -> None:
     df = report.designs.copy()
-    keys = [c for c in ["rank", "design", *report.part_columns] if c in df.columns]
+    keys = [c for c in ["rank", "design", *report.part_columns, "grade_label", "cost_index"]
+            if c in df.columns]
     if "verdict" not in df:
         df["verdict"] = ""
     fail = np.isin(df["verdict"].to_numpy(), _FAILING)

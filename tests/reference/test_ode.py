@@ -126,7 +126,9 @@ def network(circuit, timer, parts, load, *, vcc, temperature, c, ra=np.nan, rb=n
         c_t=c * float(capacitance_temperature_factor(cap, temperature)), loss=loss,
         v_rated=parts.capacitor_voltage_v, stray=parts.stray_capacitance_f, cap_name=cap.name,
         g_leak=g_leak, i_b=i_b, ra=ra * k_r, rb=rb * k_r, r=r * k_r,
-        v_sat0=timer.saturation_v, r_sat=timer.saturation_ohm,
+        v_sat0=timer.saturation_v,
+        # a monostable's resistor between the discharge pin and C is in series with the switch
+        r_sat=timer.saturation_ohm + (parts.discharge_resistor_ohm if circuit == "monostable" else 0.0),
         v_diode=parts.diode_drop_v if fixed else math.nan,
         i_sat=float(saturation_at(d, temperature)),
         n_vt=d.ideality * float(thermal_voltage_v(temperature)),

@@ -1,8 +1,8 @@
 """Properties every valid design must have, on random inputs drawn by hypothesis.
 
 Sources: the RC law and the 555 formulas [book: Horowitz & Hill, *The Art of Electronics*;
-Sedra & Smith, *Microelectronic Circuits*] (DOMAIN.md sections 1-2), ideal mode as DOMAIN.md
-section 9 defines it. The monotonicity claims follow from the node equation C dV/dt = i(V): a
+Sedra & Smith, *Microelectronic Circuits*], ideal mode as timer-sweep defines it (every
+non-ideality removed). The monotonicity claims follow from the node equation C dV/dt = i(V): a
 larger resistance passes less current at every node voltage and a larger capacitance turns a
 given current into a slower ramp, so the phase that resistor or capacitor times takes longer
 [derived, comparison of solutions].
@@ -130,7 +130,7 @@ def test_realistic_duty_can_dip_below_half():
 
 
 # --- monotonic in R and C ----------------------------------------------------------------
-# which phase each part times [book: DOMAIN.md section 2]. Parts that time the other phase too
+# which phase each part times [book: the 555 timing formulas]. Parts that time the other phase too
 # move it only through second-order effects, so no direction is claimed there: in the standard
 # astable a larger RA lowers the discharge transistor's saturation voltage (less current through
 # it), which shortens tL; a larger RB shrinks the run-on past the lower threshold, which can

@@ -1,9 +1,8 @@
 """Ideal mode against the textbook 555 formulas.
 
 Sources: the RC law and the 555 timing formulas are [book: Sedra & Smith, *Microelectronic
-Circuits*; Horowitz & Hill, *The Art of Electronics*, oscillators and timers], restated in
-DOMAIN.md section 2. The diode-across-RB figures are [derived] from the same RC law. In ideal mode
-(DOMAIN.md section 9) timer-sweep must reproduce them to rounding error, so the tolerance is 1e-9
+Circuits*; Horowitz & Hill, *The Art of Electronics*, oscillators and timers]. The diode-across-RB
+figures are [derived] from the same RC law. In ideal mode (every non-ideality removed) timer-sweep must reproduce them to rounding error, so the tolerance is 1e-9
 relative: a wrong constant, a swapped resistor or a stray non-ideality is far larger than that.
 """
 import math
@@ -140,7 +139,7 @@ def no_nonidealities(timer, parts):
 @TIMER_NAMES
 @pytest.mark.parametrize("vcc, ratio", [(5.0, 1.45), (9.0, 1.20), (15.0, 1.11)])
 def test_diode_drop_is_not_negligible(name, vcc, ratio):
-    # [derived: DOMAIN.md section 2] with Vd = 0.7 V, tH = RA C ln((VCC-Vd-Vc/2)/(VCC-Vd-Vc))
+    # [derived from the RC law] with Vd = 0.7 V, tH = RA C ln((VCC-Vd-Vc/2)/(VCC-Vd-Vc))
     # is 1.45x ln2 RA C at 5 V, 1.20x at 9 V, 1.11x at 15 V
     timer, parts = no_nonidealities(TIMERS[name], Parts())
     ra, rb, c = 10e3, 100e3, 100e-9     # C0G: its 10 GOhm insulation is far above RA

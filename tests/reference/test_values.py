@@ -23,7 +23,7 @@ def as_int(name):
 
 # --- IEC 60063 -------------------------------------------------------------------------------
 def test_printed_tables():
-    # [std IEC 60063] printed values, as listed in DOMAIN.md section 7
+    # [std IEC 60063] printed values of the standard's tables
     assert as_int("E6") == [10, 15, 22, 33, 47, 68]
     assert as_int("E12") == [10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82]
     assert as_int("E24") == [10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30,
