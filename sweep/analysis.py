@@ -38,13 +38,19 @@ def main_outputs(circuit: str) -> list[str]:
         return ["frequency_hz", "duty"]
     if circuit == "monostable":
         return ["pulse_width_s"]
+    if circuit == "missing-pulse":
+        return ["timeout_s"]
     return []
 
 
 def summary_outputs(study: Study) -> list[str]:
     cols = main_outputs(study.circuit) + [s.column for s in study.spec] + ["supply_current_a"]
-    if study.circuit in ("monostable", "bistable"):
+    if study.circuit == "missing-pulse":
+        cols.insert(1, "timeout_margin_s")
+    if study.circuit in ("monostable", "missing-pulse", "bistable"):
         cols.append("idle_current_a")
+    if study.battery_capacity_ah is not None:
+        cols.append("battery_life_h")
     cols += ["output_current_a", "junction_temp_c"]
     return list(dict.fromkeys(cols))
 
@@ -53,7 +59,7 @@ def timer_bands(study: Study, which: str = "typ") -> tuple[float, float, float]:
     """(initial accuracy, drift per K, supply sensitivity per V) of the main timing, typical
     (which="typ") or maximum (which="max"), from the timer-model file [ds-bip], [ds-cmos]."""
     t = study.timer
-    kind = "monostable" if study.circuit == "monostable" else "astable"
+    kind = "monostable" if study.circuit in ("monostable", "missing-pulse") else "astable"
     m = "_max" if which == "max" else ""
     return (getattr(t, f"accuracy_{kind}{m}"), getattr(t, f"drift_{kind}{m}_ppm_per_k") * 1e-6,
             getattr(t, f"supply_sensitivity_{kind}{m}_per_v"))
@@ -154,6 +160,8 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
             lo, hi = v * (1 - band), v * (1 + band)
         elif o == "frequency_hz":
             lo, hi = v / (1 + band), v / (1 - band)
+        elif o == "timeout_margin_s":        # the timeout's band, less the input period
+            lo, hi = v - wc["timeout_s"] * band, v + wc["timeout_s"] * band
         row[f"{o}_wc_min"] = _reduce(lo, np.min)
         row[f"{o}_wc_max"] = _reduce(hi, np.max)
     # 4. elasticities of the main output at the nominal condition [derived: central difference]

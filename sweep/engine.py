@@ -31,7 +31,7 @@ def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> b
 
 keep_freed_heap()
 DEFAULT_CHUNK = 1 << 14        # points per block: arrays stay in the core's cache (measured: 16k-32k fastest)
-TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s")
+TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s", "timeout_s")
 SPEC_MISS = np.uint32(FLAG_BITS["spec-miss"])
 
 
@@ -93,9 +93,29 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
         for k in TIMING:
             out[k] = out[k] * err
         out["frequency_hz"] = out["frequency_hz"] / err
+        if "input_period" in kw:
+            out["timeout_margin_s"] = out["timeout_s"] - kw["input_period"]
+    out["battery_life_h"] = battery_life_h(study, out)
     if with_spec and study.spec:
         out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(study, out), SPEC_MISS, np.uint32(0))
     return out
+
+
+#: circuits whose battery drain is the current while they wait (a monostable at rest, the latch
+#: in its worse state); the others drain their period-averaged supply current
+WAITING = ("monostable",)
+
+
+def battery_life_h(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
+    """Hours a battery lasts: capacity [A h] x usable share / mean current [A] [derived]. The
+    mean current is the period-averaged supply current of a running timer; a monostable is taken
+    to wait for its triggers nearly all the time, so its idle current sets the life (pulses add
+    their share on top: see the README). NaN without [study] battery_capacity."""
+    if study.battery_capacity_ah is None:
+        return np.full(np.shape(out["supply_current_a"]), np.nan)
+    current = out["idle_current_a"] if study.circuit in WAITING else out["supply_current_a"]
+    with np.errstate(all="ignore"):
+        return study.battery_capacity_ah * study.battery_usable / current
 
 
 def spec_fail(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:

@@ -370,6 +370,7 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     t0 = time.perf_counter()
     final = {"workbook": out_dir / f"{study.name}.xlsx", "page": out_dir / f"{study.name}.html",
              "points": out_dir / "points.parquet", "designs": out_dir / "designs.parquet",
+             "bom": out_dir / "bom.csv", "waveform": out_dir / "waveform.csv",
              "record": out_dir / "run.json"}
     for path in final.values():
         check_target(path)
@@ -418,14 +419,17 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         report = build_report(study, ranked, wb_pts, note, ideal, info)
         write_workbook(tmp["workbook"], report)
         write_page(tmp["page"], report)
+        write_tables(report, tmp["bom"], tmp["waveform"])
         for k in ("verdict", "meets_spec", "worst_case_in_spec", "yield", "yield_lo", "yield_hi",
                   "yield_target", "typical_sigma", "spreads"):
             info[k] = report.run_info[k]
         info["seconds_total"] = round(time.perf_counter() - t0, 3)
         info["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
-        info["sha256"] = {final[k].name: _sha256(tmp[k]) for k in ("points", "designs", "workbook", "page")}
+        info["sha256"] = {final[k].name: _sha256(tmp[k])
+                          for k in ("points", "designs", "workbook", "page", "bom", "waveform")}
         tmp["record"].write_text(json.dumps(info, indent=2) + "\n", encoding="utf-8")
-        commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "record")],
+        commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "bom", "waveform",
+                                             "record")],
                on_commit)
     except InputError:
         raise
@@ -438,6 +442,16 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     finally:
         shutil.rmtree(staging, ignore_errors=True)
     return RunResult(study, ranked, out_dir, final, info)
+
+
+def write_tables(report, bom_path: Path, waveform_path: Path) -> None:
+    """bom.csv (sweep.bom.BOM_COLUMNS) and waveform.csv (sweep.waveform.WAVEFORM_COLUMNS; only
+    the header for a latch, which has no timing), UTF-8 with a header row."""
+    from .bom import bom_table
+    from .waveform import WAVEFORM_COLUMNS
+    bom_table(report.parts).to_csv(bom_path, index=False, encoding="utf-8")
+    wave = report.waveform.table if report.waveform is not None else pd.DataFrame(columns=WAVEFORM_COLUMNS)
+    wave.to_csv(waveform_path, index=False, encoding="utf-8", float_format="%.9g")
 
 
 def _sha256(path: Path) -> str:

@@ -25,10 +25,10 @@ class SpecRow:
 class Report:
     name: str                        # file-name stem, e.g. "bike-light"
     title: str                       # user text: escape it in HTML, never a formula in XLSX
-    circuit: str                     # astable | astable-diode | astable-symmetric | monostable | bistable
+    circuit: str                     # a name of sweep.physics.CIRCUITS
     timer_name: str                  # e.g. "generic bipolar 555"
     ideal: bool                      # --ideal run
-    main_output: str | None          # "frequency_hz", "pulse_width_s"; "supply_current_a" for a latch
+    main_output: str | None          # "frequency_hz", "pulse_width_s", "timeout_s"; "supply_current_a" for a latch
     part_columns: list[str]          # design part columns, e.g. ["ra_ohm", "rb_ohm", "c_f"]
     condition_columns: list[str]     # e.g. ["vcc_v", "temperature_c"]
     summary: list[tuple[str, str]]   # (label, text) lines: the pick, margins, yield, verdict
@@ -37,8 +37,9 @@ class Report:
     points_total: int                # rows in the full sweep
     points_note: str                 # what Points holds and where the rest is
     designs: pd.DataFrame            # one row per design, ranked (rank 1 first)
-    parts: pd.DataFrame              # parts list of the top designs: rank, design, ref, value_text,
-                                     # value (SI), unit, rkm, series, tolerance, technology, rating
+    parts: pd.DataFrame              # bill of materials of the top designs: rank, design, ref, value_text,
+                                     # value (SI), unit, rkm, series, tolerance, technology, rating,
+                                     # note, role, quantity (sweep.bom.PARTS_COLUMNS)
     check: pd.DataFrame              # top designs: rank, design, part columns, vcc_v, control_voltage_v,
                                      # diode_drop_v, ideal_<main>, real_<main> (see writers.workbook)
     spec: list[SpecRow]
@@ -49,5 +50,6 @@ class Report:
                                                   # build and condition (column 'value')
     temperature_curves: pd.DataFrame | None = None  # top designs: rank, vcc_v, temperature_c, value
     verdicts: dict[str, str] = field(default_factory=dict)  # verdict word -> what it means
+    waveform: object | None = None   # sweep.waveform.Trace of the pick, or None (a latch)
     grades: pd.DataFrame | None = None   # part grades as design axes: the best design of each
                                          # grade, cheapest first (reporting.grade_table), else None

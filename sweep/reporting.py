@@ -13,8 +13,9 @@ from .report import Report, SpecRow
 from .study import Study, study_rows
 from .grades import TABLE as GRADE_TABLE, grade_values, study_for
 from .variables import AXES, VARIABLES, eng
+from .waveform import pick_waveform
 
-REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C"}
+REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C", "load_resistance": "RL"}
 UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
 
 
@@ -99,10 +100,35 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
                                     f"{figure('supply_current_a_max')} at most"))
     if "idle_current_a_nom" in best:
         lines.append(("Idle current", eng(best["idle_current_a_nom"], "idle_current_a")))
+    if study.battery_capacity_ah is not None:
+        lines.append(("Battery life", battery_text(study, best)))
+    if study.circuit == "missing-pulse" and "timeout_margin_s_wc_min" in best:
+        m = best["timeout_margin_s_wc_min"]
+        lines.append(("Timeout margin", f"{eng(m, 'timeout_margin_s')} in the worst case beyond the "
+                      "slowest input period: a pulse may come that much late before the alarm"
+                      if np.isfinite(m) else "none: no worst-case figure"))
     lines.append(("Flags of the pick", best["flags"] or "none"))
     for why, n in screened.items():
         lines.append(("No Monte Carlo", f"{n:,} designs: {why}"))
     return lines, meets
+
+
+def life_text(hours: float) -> str:
+    """Hours and days, e.g. '794 h (33.1 days)'."""
+    if not np.isfinite(hours):
+        return "-"
+    return f"{hours:,.0f} h ({hours / 24:,.1f} days)" if hours >= 10 else f"{hours:.3g} h"
+
+
+def battery_text(study: Study, best) -> str:
+    """The pick's battery life at the nominal condition and in the worst case, and how."""
+    cap = study.battery_capacity_ah
+    drain = ("the idle current while it waits for triggers (pulses add their share)"
+             if study.circuit == "monostable" else "the mean supply current")
+    return (f"{life_text(best.get('battery_life_h_nom', np.nan))} nominal, "
+            f"{life_text(best.get('battery_life_h_wc_min', np.nan))} worst case: "
+            f"{qv.format_eng(cap, 'Ah')} x {study.battery_usable * 100:g} % usable / {drain}. "
+            "Real cells give less in the cold, under pulse loads and with age.")
 
 
 def worst_case_misses(study: Study, best) -> list[str]:
@@ -134,6 +160,12 @@ def cautions(study: Study, designs: pd.DataFrame) -> list[str]:
     if study.supply == "battery":
         out.append("Battery supply: respect the chemistry's limits (charge, discharge current, "
                    "temperature); the idle and supply currents set battery life.")
+    if study.battery_capacity_ah is not None:
+        out.append("Battery life is an estimate from the rated capacity: cold, pulse currents "
+                   "(coin cells above a few milliamps especially), age and self-discharge all "
+                   "shorten it; measure on the bench. Never recharge a primary cell, keep coin and "
+                   "button cells away from children (a swallowed cell burns internally within "
+                   "hours), and dispose of cells as local rules require.")
     if study.supply == "mains-derived":
         out.append("Mains-derived supply: use a certified, isolated power supply; never derive the "
                    "timer's supply from mains without isolation.")
@@ -256,30 +288,9 @@ NOTES = [
 
 
 def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
-    rows = []
-    top_study = study
-    for _, d in designs.head(top_study.top).iterrows():
-        study = study_for(top_study, int(d["design"]))
-        tech = study.parts.technology
-        for a in study.design:
-            if a.key not in REFS:
-                continue
-            v = float(d[a.column])
-            unit = "ohm" if a.key != "c" else "F"
-            is_c = a.key == "c"
-            rows.append({
-                "rank": int(d["rank"]), "design": int(d["design"]), "verdict": d.get("verdict", ""),
-                "ref": REFS[a.key], "value": v,
-                "unit": "Ω" if not is_c else "F", "value_text": qv.format_eng(v, unit),
-                "rkm": qv.rkm_code(v, unit), "series": qv.series_of(v) or "-",
-                "tolerance": tolerance_of(study, a.key),
-                "technology": tech.label if is_c else
-                f"resistor, {study.parts.resistor_tempco_per_k * 1e6:g} ppm/K",
-                "rating": (f"{study.parts.capacitor_voltage_v:g} V" if is_c
-                           else f"{study.parts.resistor_power_w:g} W"),
-                "note": _part_note(study, a.key, v)})
-    return pd.DataFrame(rows, columns=["rank", "design", "verdict", "ref", "value", "unit", "value_text", "rkm",
-                                       "series", "tolerance", "technology", "rating", "note"])
+    """The Parts sheet: the full bill of materials of the top designs (sweep.bom)."""
+    from .bom import bill_of_materials
+    return bill_of_materials(study, designs)
 
 
 def _part_note(study: Study, key: str, value: float) -> str:
@@ -470,4 +481,4 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
         temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS),
-        grades=grades)
+        waveform=pick_waveform(study, designs, ideal), grades=grades)

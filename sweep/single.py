@@ -12,6 +12,7 @@ SECTION_OF = {"circuit": ("study", "circuit"), "timer": ("study", "timer"),
               "ra": ("design", "ra"), "rb": ("design", "rb"), "r": ("design", "r"), "c": ("design", "c"),
               "vcc": ("conditions", "vcc"), "temperature": ("conditions", "temperature"),
               "control_voltage": ("conditions", "control_voltage"),
+              "input_period": ("conditions", "input_period"),
               "load": ("load", "resistance"), "load_to": ("load", "to"),
               "load_forward_voltage": ("load", "forward_voltage"), "load_kind": ("load", "kind")}
 

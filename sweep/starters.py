@@ -42,6 +42,11 @@ c = ["10n", "22n", "47n", "100n"]
 r = {{ series = "E24", min = "10k", max = "1M" }}
 c = ["1u", "2.2u", "4.7u", "10u"]
 ''',
+    "missing-pulse": '''
+[design]                    # alarms about 1.1 R C after the last input pulse
+r = {{ series = "E24", min = "100k", max = "1M" }}
+c = ["1u", "2.2u", "4.7u"]
+''',
     "bistable": '''
 # A bistable latch has no timing parts: trigger sets, reset clears.
 ''',
@@ -52,6 +57,7 @@ _SPEC = {
     "astable-diode": 'frequency = {{ target = "1kHz", tolerance = "5%" }}\nduty = {{ min = 0.2, max = 0.4 }}',
     "astable-symmetric": 'frequency = {{ target = "1kHz", tolerance = "5%" }}\nduty = {{ min = 0.45, max = 0.55 }}',
     "monostable": 'pulse_width = {{ target = "1s", tolerance = "10%" }}\nidle_current = {{ max = "1mA" }}',
+    "missing-pulse": 'timeout = {{ target = "2s", tolerance = "20%" }}',
     "bistable": 'supply_current = {{ max = "5mA" }}',
 }
 
@@ -81,12 +87,19 @@ seed = 1
 '''
 
 
+#: extra [conditions] lines of a circuit
+_CONDITIONS = {"missing-pulse": 'input_period = {{ min = 0.8, max = 1.2, steps = 3 }}   '
+                                '# the input pulse train, slowest legal period included\n'}
+
+
 def starter_text(circuit: str) -> str:
     if circuit not in CIRCUITS:
         raise InputError("", "circuit", f"unknown circuit {circuit!r}; known: {', '.join(CIRCUITS)}")
     return (_HEAD.format(what=f"{'an' if circuit[0] in 'aeiou' else 'a'} {circuit} starter (edit every value)", title=f"My {circuit} timer",
                          circuit=circuit)
-            + _PARTS[circuit].format() + _TAIL.format(spec=_SPEC[circuit].format()))
+            + _PARTS[circuit].format() + _TAIL.format(spec=_SPEC[circuit].format()).replace(
+                "nominal defaults to the middle\n", "nominal defaults to the middle\n"
+                + _CONDITIONS.get(circuit, "").format(), 1))
 
 
 # ---------------------------------------------------------------- a study from the spec
@@ -143,6 +156,10 @@ def spec_study_text(circuit: str, *, frequency: str | None = None, tolerance: st
                          "'timer-sweep new bistable' without a spec")
     f = _quantity_option(frequency, "--frequency", "Hz")
     pw = _quantity_option(pulse_width, "--pulse-width", "s")
+    if circuit == "missing-pulse":
+        raise InputError("", "circuit", "the missing-pulse detector has no ranges worked out from "
+                         "the spec; 'timer-sweep new missing-pulse' (without --frequency or "
+                         "--pulse-width) writes a starter to edit, with a [spec] timeout")
     if circuit == "monostable":
         if pw is None:
             raise InputError("", "--pulse-width", "missing: a monostable aims at a pulse width "

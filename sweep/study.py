@@ -32,7 +32,9 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
               "timer": ("text", "bipolar | cmos | path to a timer-model TOML file"),
               "notes": ("text", "free text, copied to the workbook"),
               "supply": ("text", "regulated | battery | mains-derived: what powers the circuit "
-                                 "(sets the cautions)")},
+                                 "(sets the cautions)"),
+              "battery_capacity": ("Ah", "rated battery capacity, e.g. \"220mAh\": adds battery life"),
+              "battery_usable": ("%", "share of the rated capacity the circuit can use, default 100 %")},
     "design": {**{k: (u, "a range of choices") for k, (_, u) in AXES.items()},
                "resistor_tolerance": ("%", "grades to compare, e.g. [\"1%\", \"5%\"]"),
                "resistor_series": ("text", "series of the timing resistors to compare, e.g. "
@@ -62,7 +64,10 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
              "kind": ("text", "resistive | led | relay | inductive | mains-switching (sets the cautions)")},
     "spec": {"frequency": ("Hz", ""), "duty": ("", ""), "pulse_width": ("s", ""),
              "supply_current": ("A", ""), "idle_current": ("A", ""), "output_current": ("A", ""),
-             "power": ("W", ""),
+             "power": ("W", ""), "load_current": ("A", "the current through the load (an LED's "
+                                                   "brightness)"),
+             "battery_life": ("h", "hours, or days with d: { min = \"30d\" }"),
+             "timeout": ("s", "missing-pulse detector: time from the last pulse to the alarm"),
              "yield": ("%", "{ min = 0.99 }: the pick is the lowest-current design whose yield "
                             "interval reaches it")},
     "analysis": {"monte_carlo": ("int", "builds per design, default 1000"),
@@ -73,9 +78,12 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
 }
 SPEC_COLUMNS = {"frequency": "frequency_hz", "duty": "duty", "pulse_width": "pulse_width_s",
                 "supply_current": "supply_current_a", "idle_current": "idle_current_a",
-                "output_current": "output_current_a", "power": "power_w"}
+                "output_current": "output_current_a", "power": "power_w",
+                "load_current": "output_current_a", "battery_life": "battery_life_h",
+                "timeout": "timeout_s"}
 SPEC_CIRCUITS = {"frequency": ASTABLES, "duty": ASTABLES, "pulse_width": ("monostable",),
-                 "idle_current": ("monostable", "bistable")}
+                 "idle_current": ("monostable", "missing-pulse", "bistable"),
+                 "timeout": ("missing-pulse",)}
 SUPPLIES = ("regulated", "battery", "mains-derived")
 LOAD_KINDS = ("resistive", "led", "relay", "inductive", "mains-switching")
 RANGE_KEYS = ("min", "max", "steps", "per_decade", "series", "values", "nominal", "from_spec")
@@ -135,6 +143,8 @@ class Study:
     raw: dict = field(repr=False, compare=False)
     typical_sigma: float = 1.0           # a typical timer spread is this many sigma
     yield_min: float | None = None       # [spec] yield = { min = ... }
+    battery_capacity_ah: float | None = None   # [study] battery_capacity [A h]
+    battery_usable: float = 1.0          # [study] battery_usable, a fraction
     grade_plan: tuple = ()               # part grades as design axes (sweep.grades), else ()
 
     @property
@@ -265,12 +275,35 @@ class _Parser:
             if isinstance(value, bool) or not isinstance(value, int):
                 self.fail(section, key, f"must be a whole number, got {qv.clip(repr(value))}")
             return value
+        if unit in ("Ah", "h"):
+            return self.charge_or_hours(section, key, value, unit)
         try:
             x = qv.parse_quantity(value, unit, allow_negative=allow_negative)
         except ValueError as e:
             self.fail(section, key, str(e))
         if not math.isfinite(x):
             self.fail(section, key, "must be finite")
+        return x
+
+    def charge_or_hours(self, section, key, value, unit) -> float:
+        """A battery capacity in A h ("220mAh", "2.4Ah", a plain number in A h) or a duration in
+        hours ("720h", "30d", a plain number in hours)."""
+        words = {"Ah": ("a capacity such as \"220mAh\" or \"2.4Ah\"", {"Ah": 1.0}),
+                 "h": ("a time in hours or days such as \"720h\" or \"30d\"", {"h": 1.0, "d": 24.0})}
+        what, units = words[unit]
+        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+            self.fail(section, key, f"must be {what}")
+        if isinstance(value, (int, float)):
+            x = float(value)
+        else:
+            m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([munkµ]?)\s*(Ah|h|d)\s*",
+                             value[:qv.MAX_TEXT + 1])
+            if m is None or m.group(3) not in units or (unit == "h" and m.group(2)):
+                self.fail(section, key, f"{qv.clip(repr(value))}: expected {what}")
+            scale = {"": 1.0, "m": 1e-3, "µ": 1e-6, "u": 1e-6, "n": 1e-9, "k": 1e3}[m.group(2)]
+            x = float(m.group(1)) * scale * units[m.group(3)]
+        if not math.isfinite(x) or x <= 0:
+            self.fail(section, key, f"must be {what}, greater than zero")
         return x
 
     # -- the whole study
@@ -299,7 +332,7 @@ class _Parser:
             hint = difflib.get_close_matches(circuit, CIRCUITS, 1)
             self.fail("study", "circuit", f"unknown circuit {circuit!r}"
                       + (f"; did you mean '{hint[0]}'?" if hint else f"; known: {', '.join(CIRCUITS)}"))
-        supply = st.get("supply", "regulated")
+        supply = st.get("supply", "battery" if "battery_capacity" in st else "regulated")
         if supply not in SUPPLIES:
             self.fail("study", "supply", f"unknown supply {supply!r}; known: {', '.join(SUPPLIES)}")
         timer_spec = st.get("timer", "bipolar")
@@ -324,6 +357,13 @@ class _Parser:
         for k in needed:
             if k not in given:
                 self.fail("design", k, f"missing: circuit {circuit} needs {', '.join(needed)}")
+        if circuit == "missing-pulse" and "input_period" not in given:
+            self.fail("conditions", "input_period", "missing: the missing-pulse detector needs the "
+                      "input pulse train's period, e.g. input_period = { min = \"0.8\", max = \"1.2\", "
+                      "steps = 3 }")
+        if "input_period" in given and circuit != "missing-pulse":
+            sec = "design" if "input_period" in {a.key for a in design} else "conditions"
+            self.fail(sec, "input_period", "only the missing-pulse detector has an input pulse train")
         for k in ("ra", "rb", "r", "c"):
             if k in given and k not in needed:
                 sec = "design" if k in {a.key for a in design} else "conditions"
@@ -337,7 +377,7 @@ class _Parser:
             conditions = conditions + (Axis("temperature", "temperature_c", np.array([25.0]),
                                             "condition", nominal=25.0),)
         parts = self.parts(design + conditions)
-        load = self.load()
+        load = self.load(swept="load_resistance" in given)
         spec = self.spec(circuit)
         an = d.get("analysis", {})
         mc = self.quantity("analysis", "monte_carlo", an.get("monte_carlo", 1000), "int")
@@ -360,13 +400,27 @@ class _Parser:
                      circuit=circuit, supply=supply, timer_spec=timer_spec, timer=timer, design=design,
                      conditions=conditions, parts=parts, load=load, spec=spec, monte_carlo=mc,
                      seed=seed, distribution=dist, top=top, raw=d, typical_sigma=float(ts),
-                     yield_min=self.yield_spec())
+                     yield_min=self.yield_spec(), **self.battery(st))
         from .grades import build_plan, grade_axis, parse_grades
         grades = parse_grades(d.get("design", {}), lambda k, why: self.fail("design", k, why))
         if not grades:
             return base
         plan = build_plan(base, grades, d.get("parts", {}), lambda k, why: self.fail("design", k, why))
         return replace(base, design=plan[0].study.design + (grade_axis(plan),), grade_plan=plan)
+
+    def battery(self, st: dict) -> dict:
+        """[study] battery_capacity and battery_usable, and the spec key that needs them."""
+        if "battery_usable" in st and "battery_capacity" not in st:
+            self.fail("study", "battery_usable", "needs battery_capacity beside it")
+        if "battery_capacity" not in st:
+            if "battery_life" in self.data.get("spec", {}):
+                self.fail("spec", "battery_life", "needs [study] battery_capacity, e.g. \"220mAh\"")
+            return {}
+        cap = self.quantity("study", "battery_capacity", st["battery_capacity"], "Ah")
+        usable = self.quantity("study", "battery_usable", st.get("battery_usable", 1.0), "%")
+        if not 0 < usable <= 1:
+            self.fail("study", "battery_usable", "must lie above 0 and at most 100 %")
+        return {"battery_capacity_ah": cap, "battery_usable": usable}
 
     # -- ranges
     def from_spec(self, circuit: str, timer: TimerModel) -> dict[str, tuple[np.ndarray, str]]:
@@ -548,7 +602,7 @@ class _Parser:
         name = value["series"]
         if not isinstance(name, str):
             self.fail(section, f"{key}.series", "must be a series name such as \"E24\"")
-        if key not in ("ra", "rb", "r", "c"):
+        if key not in ("ra", "rb", "r", "c", "load_resistance"):
             self.fail(section, f"{key}.series", "standard series apply to resistors and capacitors")
         try:
             vals = qv.series_values(name, lo, hi)
@@ -637,18 +691,27 @@ class _Parser:
         if n is not None and not 0.8 <= n <= 3:
             self.fail("parts", "diode_ideality", "must be from 0.8 to 3")
 
-    def load(self) -> Load:
+    def load(self, swept: bool = False) -> Load:
+        """The [load]; swept: load_resistance is a [design] or [conditions] axis, which then
+        gives the resistance (the Load's own stays NaN)."""
         ld = self.data.get("load", {})
-        if not ld:
+        if not ld and not swept:
             return Load()
         kind = ld.get("kind", "led" if "forward_voltage" in ld else "resistive")
         if kind not in LOAD_KINDS:
             self.fail("load", "kind", f"unknown load kind {kind!r}; known: {', '.join(LOAD_KINDS)}")
-        if "resistance" not in ld:
-            self.fail("load", "resistance", "missing: a [load] needs its resistance")
-        r = self.quantity("load", "resistance", ld["resistance"], "ohm")
+        if swept and "resistance" in ld:
+            self.fail("load", "resistance", "load_resistance is swept in [design] or [conditions]; "
+                      "give the resistance there only")
+        if "resistance" not in ld and not swept:
+            self.fail("load", "resistance", "missing: a [load] needs its resistance (or sweep "
+                      "load_resistance in [design])")
+        r = (math.nan if swept else self.quantity("load", "resistance", ld["resistance"], "ohm"))
         if r <= 0:
             self.fail("load", "resistance", "must be greater than zero")
+        if kind == "led" and "forward_voltage" not in ld:
+            self.fail("load", "forward_voltage", "missing: an LED load needs its forward voltage, "
+                      "e.g. \"2.0V\" for a red LED [cp]")
         to = ld.get("to", "ground")
         if to not in ("ground", "supply"):
             self.fail("load", "to", f"must be 'ground' or 'supply', got {to!r}")

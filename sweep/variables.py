@@ -33,6 +33,8 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("vcc_v", "Supply", "V", "fixed2", "Supply voltage"),
     _V("temperature_c", "Ambient", "°C", "fixed1", "Ambient temperature"),
     _V("control_voltage_v", "Control pin", "V", "fixed2", "Voltage forced on the control pin (blank: internal divider)"),
+    _V("load_resistance_ohm", "Load resistor", "Ω", "eng", "Resistor of the load (an LED's series resistor), when swept", True),
+    _V("input_period_s", "Input period", "s", "eng", "Period of the input pulse train (missing-pulse detector)", True),
     # outputs
     _V("high_time_s", "High time", "s", "eng", "Time the output is high per cycle (the pulse, for a monostable)", True),
     _V("low_time_s", "Low time", "s", "eng", "Time the output is low per cycle", True),
@@ -49,6 +51,9 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("discharge_peak_a", "Discharge peak", "A", "eng", "Peak current into the discharge pin, the capacitor's turn-on dump included"),
     _V("discharge_dump_s", "Dump time", "s", "eng", "How long the discharge transistor's turn-on surge lasts (to a tenth of its peak)", True),
     _V("ra_power_w", "Resistor power", "W", "eng", "Largest dissipation in the resistor from the supply (RA, or R)"),
+    _V("timeout_s", "Timeout", "s", "eng", "Missing-pulse detector: time from the last input pulse to the alarm", True),
+    _V("timeout_margin_s", "Timeout margin", "s", "eng", "Timeout less the input period: how late a pulse may come before a false alarm (negative: false alarm)"),
+    _V("battery_life_h", "Battery life", "h", "fixed1", "Usable battery capacity / mean current (the idle current for a monostable waiting for triggers)"),
     _V("junction_temp_c", "Junction", "°C", "fixed1", "Chip junction temperature, worst phase"),
     _V("flags", "Flags", "", "text", "Limits broken at this point (space-separated codes)"),
     _V("ok", "OK", "", "bool", "No flag at this point"),
@@ -87,18 +92,21 @@ AXES: dict[str, tuple[str, str]] = {
     "vcc": ("vcc_v", "V"),
     "temperature": ("temperature_c", "C"),
     "control_voltage": ("control_voltage_v", "V"),
+    "load_resistance": ("load_resistance_ohm", "ohm"),
+    "input_period": ("input_period_s", "s"),
 }
 
 #: output columns in the order tables show them
 OUTPUTS = ["high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
            "supply_current_a", "idle_current_a", "power_w", "output_high_v", "output_low_v",
-           "output_current_a", "discharge_peak_a", "discharge_dump_s", "ra_power_w", "junction_temp_c"]
+           "output_current_a", "discharge_peak_a", "discharge_dump_s", "ra_power_w", "junction_temp_c",
+           "timeout_s", "timeout_margin_s", "battery_life_h"]
 
 #: stable flag codes, in the order they are reported
 FLAGS = ["supply-below-min", "supply-above-max", "supply-above-abs-max", "temperature-out-of-range",
          "resistor-too-small", "resistance-too-large", "capacitor-too-small", "frequency-too-high",
          "output-current-over-limit", "discharge-current-over-limit", "resistor-overpowered",
-         "junction-too-hot", "timing-stalls", "spec-miss"]
+         "junction-too-hot", "timing-stalls", "spec-miss", "false-alarm"]
 
 FLAG_TEXT = {
     "supply-below-min": "Supply below the timer's recommended minimum",
@@ -115,6 +123,7 @@ FLAG_TEXT = {
     "junction-too-hot": "Chip junction above its maximum temperature",
     "timing-stalls": "The capacitor never reaches the threshold (leakage or bias current): no timing",
     "spec-miss": "Fails a [spec] limit",
+    "false-alarm": "Missing-pulse detector: the timeout is shorter than the input period, so it alarms on every pulse",
 }
 
 

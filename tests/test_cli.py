@@ -26,7 +26,8 @@ def test_every_example_runs_end_to_end(study, tmp_path, capsys):
     assert code == 0, err
     name = study.stem
     files = {p.name for p in tmp_path.iterdir()}
-    assert files == {f"{name}.xlsx", f"{name}.html", "points.parquet", "designs.parquet", "run.json"}
+    assert files == {f"{name}.xlsx", f"{name}.html", "points.parquet", "designs.parquet", "bom.csv",
+                     "waveform.csv", "run.json"}
     wb = load_workbook(tmp_path / f"{name}.xlsx", read_only=True)
     assert wb.sheetnames == ["Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes"]
     pts = pd.read_parquet(tmp_path / "points.parquet")

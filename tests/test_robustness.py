@@ -14,7 +14,8 @@ from openpyxl import load_workbook
 
 from tests.cli_helpers import cli
 
-OUTPUTS = {"buzzer.xlsx", "buzzer.html", "points.parquet", "designs.parquet", "run.json"}
+OUTPUTS = {"buzzer.xlsx", "buzzer.html", "points.parquet", "designs.parquet", "bom.csv", "waveform.csv",
+           "run.json"}
 
 
 

@@ -375,7 +375,9 @@ def test_write_is_atomic(tmp_path):
 
 # --- live formulas, recalculated by LibreOffice -------------------------------------------------
 _PARTS = {"astable": ["ra_ohm", "rb_ohm", "c_f"], "astable-diode": ["ra_ohm", "rb_ohm", "c_f"],
-          "astable-symmetric": ["r_ohm", "c_f"], "monostable": ["r_ohm", "c_f"], "bistable": []}
+          "astable-symmetric": ["r_ohm", "c_f"], "monostable": ["r_ohm", "c_f"],
+          "missing-pulse": ["r_ohm", "c_f"], "bistable": []}
+_MAIN = {"monostable": ["pulse_width_s"], "missing-pulse": ["timeout_s"]}
 
 
 def _check_report(circuit: str, rows: list[dict]):
@@ -385,8 +387,10 @@ def _check_report(circuit: str, rows: list[dict]):
         return dataclasses.replace(rep, circuit=circuit, part_columns=[], main_output=None,
                                    check=pd.DataFrame())
     df = pd.DataFrame(rows)
-    outs = ["pulse_width_s"] if circuit == "monostable" else ["frequency_hz", "duty"]
+    outs = _MAIN.get(circuit, ["frequency_hz", "duty"])
     kw = {p.split("_")[0]: df[p].to_numpy() for p in _PARTS[circuit]}
+    if circuit == "missing-pulse":
+        kw["input_period"] = 0.1
     args = dict(vcc=df["vcc_v"].to_numpy(), temperature=25.0,
                 control_voltage=df["control_voltage_v"].to_numpy(), **kw)
     timer = load_timer("cmos")
@@ -415,6 +419,8 @@ CASES = {
                           dict(r_ohm=10e3, c_f=10e-9, vcc_v=5.0, control_voltage_v=2.5)],
     "monostable": [dict(r_ohm=100e3, c_f=10e-6, vcc_v=12.0, control_voltage_v=NAN),
                    dict(r_ohm=100e3, c_f=10e-6, vcc_v=12.0, control_voltage_v=10.0)],
+    "missing-pulse": [dict(r_ohm=680e3, c_f=2.2e-6, vcc_v=12.0, control_voltage_v=NAN),
+                      dict(r_ohm=680e3, c_f=2.2e-6, vcc_v=5.0, control_voltage_v=4.0)],
     "bistable": [],
 }
 
@@ -491,9 +497,10 @@ def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
             continue
         ws, wf = values["Check"], formulas["Check"]
         head = _headers(ws, 5)
-        outs = ["pulse_width_s"] if rep.circuit == "monostable" else ["frequency_hz", "duty"]
+        outs = _MAIN.get(rep.circuit, ["frequency_hz", "duty"])
         labels = {"frequency_hz": ("Frequency [Hz]", "Frequency"), "duty": ("Duty", "Duty"),
-                  "pulse_width_s": ("Pulse width [s]", "Pulse width")}
+                  "pulse_width_s": ("Pulse width [s]", "Pulse width"),
+                  "timeout_s": ("Timeout [s]", "Timeout")}
         for k in range(len(rep.check)):
             r = 6 + k
             for o in outs:
@@ -518,6 +525,11 @@ def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
     t = ws.cell(6, head.index("Pulse width [s] formula") + 1).value
     assert t == pytest.approx(1.1 * 100e3 * 10e-6, rel=2e-3)                 # t ~ 1.1 RC, 0.13 % high
     assert t == pytest.approx(math.log(3) * 100e3 * 10e-6, rel=1e-12)
+    # the missing-pulse detector's timeout: ln 3 R C with the internal divider [book]
+    ws = openpyxl.load_workbook(done["missing-pulse.xlsx"], data_only=True)["Check"]
+    head = _headers(ws, 5)
+    t = ws.cell(6, head.index("Timeout [s] formula") + 1).value
+    assert t == pytest.approx(math.log(3) * 680e3 * 2.2e-6, rel=1e-12)
 
 
 VD = 0.7     # a silicon diode's forward drop [cp: the figure every electronics text uses]

@@ -102,7 +102,7 @@ def check(study: StudyArg):
 
 @app.command()
 def new(circuit: Annotated[str, typer.Argument(help="astable | astable-diode | astable-symmetric | "
-                                                    "monostable | bistable")],
+                                                    "monostable | missing-pulse | bistable")],
         out: Annotated[Optional[Path], typer.Option("--out", "-o", help="File to write "
                                                     "(default: <circuit>.toml)")] = None,
         force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False,
@@ -149,7 +149,7 @@ def new(circuit: Annotated[str, typer.Argument(help="astable | astable-diode | a
 
 @app.command()
 def point(
-    circuit: Annotated[str, typer.Option(help="astable | astable-diode | astable-symmetric | monostable | bistable")] = "astable",
+    circuit: Annotated[str, typer.Option(help="astable | astable-diode | astable-symmetric | monostable | missing-pulse | bistable")] = "astable",
     timer: Annotated[str, typer.Option(help="bipolar | cmos | path to a timer-model TOML file")] = "bipolar",
     ra: Annotated[Optional[str], typer.Option(help="RA, e.g. 10k or 4K7")] = None,
     rb: Annotated[Optional[str], typer.Option(help="RB")] = None,
@@ -158,6 +158,7 @@ def point(
     vcc: Annotated[Optional[str], typer.Option(help="Supply (default: the timer's typical supply)")] = None,
     temperature: Annotated[Optional[str], typer.Option(help="Ambient °C (default: 25)")] = None,
     control_voltage: Annotated[Optional[str], typer.Option(help="Control-pin voltage (default: divider)")] = None,
+    input_period: Annotated[Optional[str], typer.Option(help="Input pulse period (missing-pulse)")] = None,
     resistor_tolerance: Annotated[Optional[str], typer.Option()] = None,
     resistor_tempco: Annotated[Optional[str], typer.Option(help="e.g. 100ppm")] = None,
     resistor_power: Annotated[Optional[str], typer.Option(help="e.g. 0.25W")] = None,

@@ -53,8 +53,8 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
     t = Table(title=escape(f"{st.title}: best {min(n, len(d))} of {len(d):,} designs"), title_justify="left")
     t.add_column("rank", justify="right")
     for a in st.design:
-        t.add_column(a.column.rsplit("_", 1)[0].upper() if a.key in ("ra", "rb", "r", "c") else a.key,
-                     justify="right")
+        t.add_column(a.column.rsplit("_", 1)[0].upper() if a.key in ("ra", "rb", "r", "c")
+                     else "RL" if a.key == "load_resistance" else a.key, justify="right")
     for m in main:
         t.add_column(f"{m.split('_')[0]} nom", justify="right")
     t.add_column("verdict")
@@ -87,7 +87,8 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
                          "See the Summary sheet."))
     out.print(escape("Timer spreads: " + res.info.get("spreads", "")))
     out.print(escape(f"wrote {res.files['workbook']}, {res.files['page']}, {res.files['points'].name}, "
-              f"{res.files['designs'].name}, {res.files['record'].name} in {res.out_dir}"))
+              f"{res.files['designs'].name}, {res.files['bom'].name}, {res.files['waveform'].name}, "
+              f"{res.files['record'].name} in {res.out_dir}"))
 
 
 def print_estimate(st, est) -> None:

@@ -25,7 +25,7 @@ from .parts import (Load, Parts, capacitance_temperature_factor, leakage_conduct
                     wright_omega)
 from .timer import TimerModel
 
-CIRCUITS = ("astable", "astable-diode", "astable-symmetric", "monostable", "bistable")
+CIRCUITS = ("astable", "astable-diode", "astable-symmetric", "monostable", "missing-pulse", "bistable")
 ASTABLES = ("astable", "astable-diode", "astable-symmetric")
 
 #: which timing parts each circuit needs
@@ -34,6 +34,7 @@ CIRCUIT_PARTS = {
     "astable-diode": ("ra", "rb", "c"),
     "astable-symmetric": ("r", "c"),
     "monostable": ("r", "c"),
+    "missing-pulse": ("r", "c"),
     "bistable": (),
 }
 
@@ -42,7 +43,7 @@ FLAG_BITS = {name: 1 << i for i, name in enumerate([
     "supply-below-min", "supply-above-max", "supply-above-abs-max", "temperature-out-of-range",
     "resistor-too-small", "resistance-too-large", "capacitor-too-small", "frequency-too-high",
     "output-current-over-limit", "discharge-current-over-limit", "resistor-overpowered",
-    "junction-too-hot", "timing-stalls", "spec-miss"])}
+    "junction-too-hot", "timing-stalls", "spec-miss", "false-alarm"])}
 
 
 def thevenin_with_sat(vcc_v, r_pull_ohm, v_sat_v, r_sat_ohm):
@@ -85,7 +86,7 @@ def _capacitor(circuit, timer, parts, c, t_amb, v_up, ideal, leak_factor, dc_bia
     # the monostable ramps from (nearly) 0 V, an astable swings between Vc/2 and Vc [book] and,
     # at the highest frequencies, runs on below Vc/2 for the delay: the curve is fitted from Vc/4
     curve = node_capacitance(c_t, parts.stray_capacitance_f, loss, parts.capacitor_voltage_v,
-                             v_up, 0.0 if circuit == "monostable" else 0.25)
+                             v_up, 0.0 if circuit in ("monostable", "missing-pulse") else 0.25)
     g_leak = 0.0 if ideal else leak_factor * leakage_conductance_s(
         cap, c_nom, parts.capacitor_voltage_v, t_amb, v_work_v=v_up)
     # threshold input current drawn from the node, and in the astables the trigger input's, which
@@ -230,6 +231,9 @@ def _astable(circuit, timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, t_
     out = dict(high_time_s=t_h, low_time_s=t_l, period_s=period, frequency_hz=1.0 / period,
                duty=t_h / period, pulse_width_s=np.nan, supply_current_a=supply,
                idle_current_a=np.nan, discharge_peak_a=dis_peak, ra_power_w=p_res)
+    # where the node starts and tops out and where each phase heads: the waveform's phases
+    out.update(wave_v_start_v=v_bot, wave_v_top_v=v_top, wave_vinf_high_v=high.vinf_v,
+               wave_vinf_low_v=low.vinf_v)
     return out, stalls, p_chip, _surge(timer, curve, v_top, v_lo, r_series), steady
 
 
@@ -292,13 +296,41 @@ def _monostable(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, v_u
     out = dict(high_time_s=pw, low_time_s=nan, period_s=nan, frequency_hz=nan, duty=nan,
                pulse_width_s=pw, supply_current_a=supply, idle_current_a=idle,
                discharge_peak_a=dump + i_idle_r, ra_power_w=(vcc - v0) ** 2 / r_t)
+    out.update(wave_v_start_v=v0, wave_v_top_v=v_top, wave_vinf_high_v=ph.vinf_v, wave_vinf_low_v=v0)
     return out, stalls, p_chip, _surge(timer, curve, v_top, v0, r_s), i_idle_r
+
+
+def _missing_pulse(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, v_up, input_period):
+    """The missing-pulse detector: a monostable whose capacitor an input pulse train discharges
+    (through a transistor across C) and retriggers before it reaches the threshold. The timeout,
+    from the last pulse to the alarm, is the monostable's ramp from the discharged level to the
+    threshold, ln 3 R C in the ideal case [book]; the external transistor is taken to discharge
+    C to the same level as the timer's own discharge transistor [cp]. While pulses arrive the
+    output stays high and C ramps for one input period at a time; the supply current is the
+    quiescent high current, the load and the mean current through R over that ramp, with the
+    node following the RC law whose time constant matches the timeout [derived]. The current in
+    the alarm state (output low, C held) is reported as the idle current."""
+    out, stalls, p_chip, surge, steady = _monostable(timer, parts, iq, stage, curve, g_leak, i_draw,
+                                                     vcc=vcc, r_t=r_t, v_up=v_up)
+    timeout = out["pulse_width_s"]
+    v0 = out["wave_v_start_v"]
+    vinf = out["wave_vinf_high_v"]
+    t_in = np.asarray(input_period, dtype=float)
+    with np.errstate(all="ignore"):
+        tau = timeout / np.log((vinf - v0) / (vinf - v_up))
+        span = np.minimum(t_in, timeout)
+        v_mean = vinf - (vinf - v0) * tau / span * -np.expm1(-span / tau)
+        supply = iq[True] + (vcc - v_mean) / r_t + stage.i_high
+    nan = np.full(np.shape(timeout), np.nan)
+    out.update(pulse_width_s=nan, high_time_s=nan, timeout_s=timeout, timeout_margin_s=timeout - t_in,
+               supply_current_a=np.where(np.isnan(timeout), np.nan, supply))
+    return out, stalls, p_chip, surge, steady
 
 
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
              leak_factor=1.0, dc_bias_factor=1.0, diode_is_factor=1.0, iq_factor=1.0,
-             ideal: bool = False) -> dict[str, np.ndarray]:
+             ideal: bool = False, load_resistance=np.nan, input_period=np.nan) -> dict[str, np.ndarray]:
     """Evaluate every point of a broadcast grid.
 
     Parameters (SI units; arrays broadcast): vcc [V], temperature [°C], c [F] nominal at 25 °C,
@@ -306,7 +338,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     the capacitor's leakage relative to its typical figure (1: typical; see
     parts.leakage_conductance_s for the specification maximum); dc_bias_factor, diode_is_factor,
     iq_factor [-]: a build's or a worst-case corner's DC-bias loss, diode saturation current and
-    quiescent current relative to their typical figures.
+    quiescent current relative to their typical figures; load_resistance [Ω] a swept load
+    resistor (NaN: the [load] resistance), input_period [s] the missing-pulse detector's input.
     Returns a dict of arrays: the output columns of sweep.variables.OUTPUTS and 'flag_mask'
     (bits of FLAG_BITS, spec-miss excluded: that needs the study's [spec]).
     """
@@ -321,7 +354,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     ra_t, rb_t, r_t = (resistor_at(np.asarray(x, dtype=float), t_amb, tc) for x in (ra, rb, r))
     # thresholds: upper = control voltage, lower = half of it [book]
     v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
-    stage = output_states(timer, load, vcc, t_amb)
+    stage = output_states(timer, load, vcc, t_amb, load_resistance)
     iq = {high: timer.quiescent_a(vcc, output_high=high) * iq_factor for high in (True, False)}
     timed = circuit != "bistable"
     surge = steady = None
@@ -332,6 +365,10 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
             out, stalls, p_chip, surge, steady = _astable(
                 circuit, timer, parts, iq, stage, curve, g_leak, i_draw, vcc=vcc, t_amb=t_amb,
                 ra_t=ra_t, rb_t=rb_t, r_t=r_t, v_up=v_up, ideal=ideal, diode_is_factor=diode_is_factor)
+        elif circuit == "missing-pulse":
+            out, stalls, p_chip, surge, steady = _missing_pulse(
+                timer, parts, iq, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up,
+                input_period=input_period)
         else:
             out, stalls, p_chip, surge, steady = _monostable(
                 timer, parts, iq, stage, curve, g_leak, i_draw, vcc=vcc, r_t=r_t, v_up=v_up)
@@ -348,6 +385,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
                    discharge_peak_a=np.zeros(stalls.shape), ra_power_w=np.zeros(stalls.shape),
                    discharge_dump_s=nan)
     tj = t_amb + timer.theta_ja_c_per_w * p_chip
+    out.setdefault("timeout_s", np.nan)
+    out.setdefault("timeout_margin_s", np.nan)
     shape = np.broadcast(*(np.asarray(v) for v in out.values()), tj, vcc, t_amb).shape
     out["power_w"] = vcc * out["supply_current_a"]
     out["output_high_v"] = stage.v_high
@@ -394,6 +433,8 @@ def _flags(circuit, timer, parts, stage, out, env):
     flag("timing-stalls", env["stalls"])
     if circuit in ASTABLES:
         flag("frequency-too-high", out["frequency_hz"] > timer.max_frequency_hz)
+    if circuit == "missing-pulse":
+        flag("false-alarm", out["timeout_s"] < np.asarray(env["input_period"], dtype=float))
     return m
 
 

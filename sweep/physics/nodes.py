@@ -123,11 +123,14 @@ def node_capacitance(c_t_f, stray_f, loss, v_rated_v, v_up_v, low_fraction: floa
 class Phase:
     """One output state's run of the timing node: its length [s] including the propagation
     delay, the node voltage where it ends [V], the integral of the node voltage over it [V s]
-    (for leakage) and the charge the node took [C] (for the supply current)."""
+    (for leakage) and the charge the node took [C] (for the supply current); vinf_v [V] is the
+    voltage the node heads for (of the segment that reaches the threshold, or of the straight
+    line through the phase's end currents for a nonlinear network): the waveform's asymptote."""
     time_s: object
     v_end_v: object
     vt_vs: object
     charge_c: object
+    vinf_v: object = None
 
 
 def run_on(cap: NodeCapacitance, vinf_v, g_s, v1_v, tpd_s, at_v1=None):
@@ -151,7 +154,7 @@ def linear_phase(cap: NodeCapacitance, vinf_v, g_s, v0_v, v1_v, tpd_s, at_v1=Non
     v_end = run_on(cap, vinf_v, g_s, v1_v, tpd_s, at_v1)
     c1 = at_v1[0] if at_v1 is not None else cap.at(v1_v)
     vt = vinf_v * t - q / g_s + 0.5 * (v1_v + v_end) * tpd_s
-    return Phase(t + tpd_s, v_end, vt, q + c1 * (v_end - v1_v))
+    return Phase(t + tpd_s, v_end, vt, q + c1 * (v_end - v1_v), vinf_v)
 
 
 def two_segment_phase(cap: NodeCapacitance, seg1, seg2, v_sw_v, v0_v, v1_v, tpd_s):
@@ -175,7 +178,8 @@ def two_segment_phase(cap: NodeCapacitance, seg1, seg2, v_sw_v, v0_v, v1_v, tpd_
         v_end = np.where(cross, late, v_end)
     vt = vt + 0.5 * (v1_v + v_end) * tpd_s
     stalls = (in2 & ((vinf2 - v1_v) * d <= 0.0)) | ((v_mid != v0_v) & ((vinf1 - v_mid) * d <= 0.0))
-    return Phase(t1 + t2 + tpd_s, v_end, vt, q1 + q2 + cap.charge(v1_v, v_end)), stalls
+    return (Phase(t1 + t2 + tpd_s, v_end, vt, q1 + q2 + cap.charge(v1_v, v_end),
+                  np.where(in2, vinf2, vinf1)), stalls)
 
 
 def quadrature_phase(cap: NodeCapacitance, current_a, v0_v, v1_v, tpd_s):
@@ -207,4 +211,6 @@ def quadrature_phase(cap: NodeCapacitance, current_a, v0_v, v1_v, tpd_s):
         vinf = v1_v + f1 / slope
         v_end = run_on(cap, vinf, slope, v1_v, tpd_s)
     vt = vt + 0.5 * (v1_v + v_end) * tpd_s
-    return Phase(t + tpd_s, v_end, vt, cap.charge(v0_v, v_end)), stalls
+    with np.errstate(all="ignore"):
+        vinf_line = v0_v + f0 * (v1_v - v0_v) / (f0 - f1)      # the line L through the end currents
+    return Phase(t + tpd_s, v_end, vt, cap.charge(v0_v, v_end), vinf_line), stalls

@@ -44,10 +44,11 @@ def load_line(points, v_avail_v, r_load_ohm):
     xs, ys = pts[:, 0], pts[:, 1]
     slopes = np.diff(ys) / np.diff(xs) if len(pts) > 1 else np.array([0.0])
     starts = list(zip(xs[:len(slopes)], ys[:len(slopes)], slopes))
-    i = np.zeros(np.shape(v))
-    r = np.full(np.shape(v), float(slopes[0]))
-    if not np.isfinite(r_load_ohm):
-        return i, r
+    if not np.any(np.isfinite(r_load_ohm)):
+        return np.zeros(np.shape(v)), np.full(np.shape(v), float(slopes[0]))
+    shape = np.broadcast(v, r_load_ohm).shape             # a swept load resistance broadcasts
+    i = np.zeros(shape)
+    r = np.full(shape, float(slopes[0]))
     for x0, y0, s in starts:
         on = v - y0 - x0 * r_load_ohm > 0.0
         i = np.where(on, (v - y0 + s * x0) / (s + r_load_ohm), i)
@@ -82,18 +83,23 @@ class OutputStates:
     low_split: tuple | None = None
 
 
-def output_states(timer: TimerModel, load: Load, vcc_v, temperature_c) -> OutputStates:
-    """Both output states of the timer at supply vcc_v [V] and ambient temperature_c [°C]."""
+def output_states(timer: TimerModel, load: Load, vcc_v, temperature_c,
+                  load_resistance_ohm=None) -> OutputStates:
+    """Both output states of the timer at supply vcc_v [V] and ambient temperature_c [°C].
+    load_resistance_ohm [Ω]: the load's resistance as an array that broadcasts (a swept load
+    resistor); None or NaN: the study's [load] resistance."""
     vcc = np.asarray(vcc_v, dtype=float)
-    zero = np.zeros(np.broadcast(vcc, temperature_c).shape)
+    rl = load.resistance_ohm
+    if load_resistance_ohm is not None and np.any(np.isfinite(load_resistance_ohm)):
+        rl = np.asarray(load_resistance_ohm, dtype=float)
+    zero = np.zeros(np.broadcast(vcc, temperature_c, rl).shape)
     shift = timer.source_drop_tempco_v_per_k * (np.asarray(temperature_c, dtype=float) - 25.0)
     src, snk = timer.source_drop_points, timer.sink_drop_points
     e_high = vcc - np.maximum(drop_at(src, 0.0) + shift, 0.0)      # open-circuit high level
     e_low = drop_at(snk, 0.0) + zero
     _, r_src0 = load_line(src, zero + 1.0, np.inf)
     _, r_snk0 = load_line(snk, zero + 1.0, np.inf)
-    rl = load.resistance_ohm
-    if not np.isfinite(rl):
+    if not np.any(np.isfinite(rl)):
         return OutputStates(e_high + zero, e_low, zero, zero, (e_high + zero, r_src0), (e_low, r_snk0))
     vf = load.forward_voltage_v
     if load.to == "ground":
@@ -102,11 +108,11 @@ def output_states(timer: TimerModel, load: Load, vcc_v, temperature_c) -> Output
         high = (v_h, np.where(i_h > 0, parallel(v_h, r_h, v_h, rl)[1], r_h))
         # low: the stage only sinks; a load below its open level holds the output itself at rest
         below = vf <= e_low
-        low = parallel(e_low, r_snk0, np.full_like(zero, vf), np.full_like(zero, rl))
+        low = parallel(e_low, r_snk0, np.full_like(zero, vf), rl + zero)
         low = (np.where(below, low[0], e_low), np.where(below, low[1], r_snk0))
         split = None
         if np.any(below & (e_low > vf)):
-            split = (np.full_like(zero, vf), np.full_like(zero, rl), np.where(below, e_low, np.nan))
+            split = (np.full_like(zero, vf), rl + zero, np.where(below, e_low, np.nan))
         return OutputStates(v_h, np.where(below, vf, e_low), i_h, zero, high, low, None, split)
     # load to the supply: it sinks into the low stage, and meets the high stage from above
     i_l, r_l = load_line(snk, vcc - vf, rl)
@@ -114,7 +120,7 @@ def output_states(timer: TimerModel, load: Load, vcc_v, temperature_c) -> Output
     low = (v_l, np.where(i_l > 0, parallel(v_l, r_l, v_l, rl)[1], r_l))
     v_load = vcc - vf                                   # where the load alone holds the output
     above = v_load >= e_high
-    v_par, r_par = parallel(e_high, r_src0, v_load, np.full_like(zero, rl))
+    v_par, r_par = parallel(e_high, r_src0, v_load, rl + zero)
     if timer.high_can_sink:
         v_h = np.where(above, v_par, e_high)
         i_h = np.where(above, (v_load - v_h) / rl, 0.0)
@@ -123,7 +129,7 @@ def output_states(timer: TimerModel, load: Load, vcc_v, temperature_c) -> Output
     # an emitter follower cannot sink: the load lifts the output to its own level
     v_h = np.where(above, v_load, e_high)
     high = (np.where(above, v_par, e_high), np.where(above, r_par, r_src0))
-    lifted = (v_load + zero, np.full_like(zero, rl), e_high) if np.any(above) else None
+    lifted = (v_load + zero, rl + zero, e_high) if np.any(above) else None
     if lifted is not None:
         lifted = tuple(np.where(above, x, np.nan) for x in lifted)
     return OutputStates(v_h, v_l, zero, i_l, high, low, lifted)

@@ -53,6 +53,7 @@ HEADINGS = {
     "mc": "Monte Carlo builds of the pick",
     "temperature": "Temperature drift of the top five",
     "parallel": "Every design across all columns",
+    "waveform": "Waveforms of the pick",
 }
 #: the section a study with part grades adds
 COST_HEADING = "Yield against the cost of part grades"
@@ -62,6 +63,7 @@ CIRCUIT_TEXT = {
     "astable-diode": "astable with a diode across RB (duty can go below 50 %)",
     "astable-symmetric": "symmetric astable (one resistor from the output)",
     "monostable": "monostable (one pulse per trigger)",
+    "missing-pulse": "missing-pulse detector (alarms when an input pulse is late)",
     "bistable": "bistable (set/reset latch)",
 }
 
@@ -1015,14 +1017,62 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
 
 # --- the page ----------------------------------------------------------------------------------
 def build_sections(report: Report) -> list[Section]:
-    """The six sections of the page, each with its figure or the reason it has none."""
+    """The sections of the page, each with its figure or the reason it has none."""
     return _sections(report, _designs(report))
 
 
 def _sections(report: Report, ds: _Designs) -> list[Section]:
     return [_map_section(report, ds), _duty_section(report, ds), _yield_section(report, ds),
-            _mc_section(report), _temperature_section(report, ds), _parallel_section(report, ds)] \
+            _mc_section(report), _temperature_section(report, ds), _parallel_section(report, ds),
+            _waveform_section(report)] \
         + ([_cost_section(report)] if report.grades is not None and len(report.grades) else [])
+
+
+# --- 7. waveforms of the pick ------------------------------------------------------------------
+_WAVE_TEXT = {
+    "missing-pulse": "three input pulses, each discharging the capacitor before it reaches the "
+                     "upper threshold, then a pulse that never comes: the capacitor climbs to the "
+                     "threshold and the output drops, raising the alarm one timeout after the last "
+                     "pulse",
+    "monostable": "one trigger, the pulse while the capacitor climbs to the upper threshold, "
+                  "and the recovery when the discharge transistor empties it",
+}
+
+
+def _waveform_section(report: Report) -> Section:
+    sec = Section("waveform", HEADINGS["waveform"], "")
+    tr = report.waveform
+    if tr is None or tr.table.empty:
+        sec.note = ("a latch has no timing, so there is no waveform to draw." if report.circuit ==
+                    "bistable" else "the pick never completes a timing cycle, so there is no "
+                    "waveform to draw.")
+        return sec
+    what = _WAVE_TEXT.get(report.circuit, "three cycles: the capacitor charges to the upper "
+                           "threshold with the output high, then discharges to the lower one with "
+                           "the output low")
+    sec.explain = (f"What a probe on the pick's timing capacitor (solid) and output (dashed) would "
+                   f"show: {what}. Blue is the nominal condition, vermillion the condition where "
+                   "the pick's timing lies farthest from nominal; the dotted lines are the "
+                   "thresholds. The same table is in waveform.csv.")
+    fig = go.Figure()
+    for (label, colour) in (("nominal", BLUE), ("worst case", VERMILLION)):
+        sub = tr.table[tr.table["condition"] == label]
+        if sub.empty:
+            continue
+        name = html.escape(f"{label} ({tr.described.get(label, '')})")
+        fig.add_trace(go.Scatter(x=sub["time_s"], y=sub["capacitor_v"], mode="lines",
+                                 name=f"capacitor, {name}", line=dict(color=colour, width=2)))
+        fig.add_trace(go.Scatter(x=sub["time_s"], y=sub["output_v"], mode="lines",
+                                 name=f"output, {name}", line=dict(color=colour, width=1.5, dash="dash")))
+        for v in tr.thresholds.get(label, ()):
+            fig.add_hline(y=v, line=dict(color=colour, width=1, dash="dot"))
+    fig.update_layout(template=_TEMPLATE, height=560,
+                      xaxis=dict(title=dict(text="Time [s]"), exponentformat="SI", ticksuffix="s"),
+                      yaxis=dict(title=dict(text="Voltage [V]"), ticksuffix=" V"),
+                      legend=dict(orientation="h", yanchor="top", y=-0.22, x=0),
+                      margin=dict(r=20, t=20, b=140))
+    sec.figure = fig
+    return sec
 
 
 def _cost_section(report: Report) -> Section:

@@ -718,12 +718,13 @@ def _points(ws, st: _Styles, report: Report) -> None:
 def _parts(ws, st: _Styles, report: Report) -> None:
     heads = {"rank": "Rank", "design": "Design", "verdict": "Verdict", "ref": "Ref.", "value_text": "Value",
              "rkm": "RKM code", "series": "Series", "tolerance": "Tolerance",
-             "technology": "Technology", "rating": "Rating", "note": "Note"}
+             "technology": "Technology", "rating": "Rating (margin)", "note": "Note",
+             "role": "Role", "quantity": "Qty"}
     df = report.parts
     names = [n for n in heads if n in df.columns]
     if "tolerance" in names:
         df = df.assign(tolerance=pd.to_numeric(df["tolerance"], errors="coerce"))
-    fmt_kind = {"rank": "int", "design": "int", "tolerance": "pct"}
+    fmt_kind = {"rank": "int", "design": "int", "tolerance": "pct", "quantity": "int"}
     cols = []
     for c in _columns(df, names, header=lambda n: heads[n]):
         if c.kind == "num":
@@ -746,6 +747,8 @@ def _check_formulas(circuit: str, ref: dict) -> dict[str, str]:
     VC = f"IF(ISBLANK({ref['vc']}),2/3*{VCC},{ref['vc']})"
     if circuit == "monostable":
         return {"pulse_width_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
+    if circuit == "missing-pulse":
+        return {"timeout_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
     if circuit == "astable":
         th = f"({RA}+{RB})*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))"
         tl = f"LN(2)*{RB}*{C}"
@@ -770,6 +773,8 @@ _FORMULA_TEXT = {
     "astable-symmetric": "f = 1/(2 · ln 2 · R · C), duty = 50 % (rail-to-rail output); with a "
                          "control voltage Vc: tH = R·C·ln((VCC − Vc/2)/(VCC − Vc)), tL = ln 2 · R · C",
     "monostable": "pulse width = R·C·ln(VCC/(VCC − Vc)) = ln 3 · R · C with the internal divider",
+    "missing-pulse": "timeout after the last input pulse = R·C·ln(VCC/(VCC − Vc)) = ln 3 · R · C "
+                     "with the internal divider; no false alarm while the input period stays below it",
 }
 
 
@@ -792,7 +797,8 @@ def _diode_line(report: Report) -> str:
 
 def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
     circuit, chk = report.circuit, report.check
-    outputs = {"monostable": ["pulse_width_s"]}.get(circuit, ["frequency_hz", "duty"])
+    outputs = {"monostable": ["pulse_width_s"], "missing-pulse": ["timeout_s"]}.get(
+        circuit, ["frequency_hz", "duty"])
     if circuit == "bistable" or report.main_output is None:
         _note_row(ws, st, 0, "Bistable (set/reset latch): there is no timing, so there is no "
                              "formula to check.")
@@ -817,7 +823,7 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
             return np.full(n, default, float)
         return pd.to_numeric(chk[name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
 
-    helpers = circuit != "monostable"
+    helpers = circuit not in ("monostable", "missing-pulse")
     # layout: inputs, then (helpers), then per output: formula, ideal, realistic, difference
     layout = [("rank", "Rank", "int", "key"), ("design", "Design", "int", "key")]
     if "verdict" in chk.columns:

@@ -450,3 +450,58 @@ def test_astable_diode_low_supply_does_not_stall():
     m = model_times("astable-diode", timer, parts, Load(), kw)
     assert not int(m["flag_mask"]) & STALL
     assert abs(deviations("astable-diode", m, sim)["high_time_s"]) < TOLERANCE
+
+
+# --- the missing-pulse detector against a pulse train ----------------------------------------
+def simulate_train(n: Network, pulses: list[float], t_end: float):
+    """A monostable whose capacitor each input pulse empties (a transistor across C, on for the
+    short input pulse) and retriggers [book: the missing-pulse detector, e.g. Horowitz & Hill].
+    The node starts where the discharge transistor holds it, ramps through R under Kirchhoff's
+    current law between pulses, and the output falls (the alarm) a propagation delay after the
+    node crosses the upper threshold. Returns the alarm time [s], or None if none comes before
+    t_end."""
+    v_idle = ((n.vcc / n.r + n.v_sat0 / n.r_sat - n.i_b) / (1.0 / n.r + 1.0 / n.r_sat + n.g_leak))
+    edges = sorted(pulses) + [t_end]
+    for start, stop in zip(edges[:-1], edges[1:]):
+        res = phase(n, v_idle, True, stop - start)
+        if res is not None and start + res[0] - n.t_pd < stop:
+            return start + res[0]
+    return None
+
+
+@pytest.mark.parametrize("name,cap,r,c,vcc", [
+    ("bipolar", "C0G", 100e3, 10e-9, 12.0),
+    ("bipolar", "X7R", 330e3, 1e-6, 9.0),
+    ("cmos", "polyester", 1e6, 2.2e-6, 5.0),
+    ("cmos", "electrolytic", 220e3, 10e-6, 9.0),
+])
+def test_missing_pulse_detector_against_a_pulse_train(name, cap, r, c, vcc):
+    timer, parts = TIMERS[name], Parts(capacitor=cap, capacitor_voltage_v=25.0)
+    kw = dict(vcc=vcc, temperature=25.0, c=c, r=r)
+    t_in = 0.3 * r * c                              # a legal input period, well inside ln 3 R C
+    out = evaluate("missing-pulse", timer, parts, Load(), input_period=t_in, **kw)
+    timeout = float(out["timeout_s"])
+    assert not int(out["flag_mask"]) & FLAG_BITS["false-alarm"]
+    n = network("monostable", timer, parts, Load(), **kw)
+    # five pulses on time, then the sixth comes late: the alarm is one timeout after the fifth
+    on_time = [k * t_in for k in range(5)]
+    late = on_time[-1] + 1.5 * timeout
+    alarm = simulate_train(n, on_time + [late], late + 3.0 * timeout)
+    assert alarm is not None and alarm < late
+    assert alarm - on_time[-1] == pytest.approx(timeout, rel=TOLERANCE)
+    # no alarm while the pulses keep coming
+    assert simulate_train(n, [k * t_in for k in range(20)], 20 * t_in) is None
+    # the model's false-alarm flag where the input period exceeds the timeout: the simulation
+    # alarms inside the first period, so every pulse would raise it
+    slow = 1.05 * timeout
+    out = evaluate("missing-pulse", timer, parts, Load(), input_period=slow, **kw)
+    assert int(out["flag_mask"]) & FLAG_BITS["false-alarm"]
+    assert float(out["timeout_margin_s"]) == pytest.approx(timeout - slow)
+    assert simulate_train(n, [k * slow for k in range(3)], 3 * slow) < slow
+
+
+def test_missing_pulse_timeout_is_the_textbook_ln3_rc_in_ideal_mode():
+    # timeout = R C ln(VCC / (VCC - 2/3 VCC)) = ln 3 R C [book: any 555 text]
+    out = evaluate("missing-pulse", TIMERS["bipolar"], Parts(), Load(), vcc=9.0, temperature=25.0,
+                   r=470e3, c=np.array([1e-6, 4.7e-6]), input_period=0.2, ideal=True)
+    assert np.allclose(out["timeout_s"], math.log(3.0) * 470e3 * np.array([1e-6, 4.7e-6]), rtol=1e-12)
