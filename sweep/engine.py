@@ -60,6 +60,9 @@ class Variation:
     dc_bias: np.ndarray | float = 1.0    # class II DC-bias loss relative to its typical curve
     diode_is: np.ndarray | float = 1.0   # diode saturation current relative to its typical figure
     iq: np.ndarray | float = 1.0         # timer quiescent current relative to its typical figure
+    load_r: np.ndarray | float = 1.0     # load resistor relative to its nominal value
+    led_vf: np.ndarray | float = 0.0     # LED forward voltage less its nominal [V]
+    stage: np.ndarray | float = 1.0      # output-stage drop relative to its typical curve
 
 
 def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
@@ -82,7 +85,8 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
                 kw[k] = kw[k] * m
     spreads = {} if variation is None else dict(
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
-        diode_is_factor=variation.diode_is, iq_factor=variation.iq)
+        diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
+        vf_shift=variation.led_vf, stage_factor=variation.stage)
     out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]

@@ -7,7 +7,7 @@ import pandas as pd
 
 from . import values as qv
 from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
-                       timer_bands, tolerance_of, yield_target)
+                       timer_bands, yield_target)
 from .engine import axis_values, evaluate_block, nominal_conditions
 from .report import Report, SpecRow
 from .study import Study, study_rows
@@ -245,7 +245,9 @@ NOTES = [
                    "curve [std; derived]) and a class II DC-bias loss 1/1.6 to 1.6 x typical "
                    "[cp]; electrolytic leakage from typical to the specification maximum [cp]; "
                    "the diode's saturation current /3 to x3 [mem]; quiescent current to its "
-                   "maximum [ds-bip]. The timer's initial accuracy, drift (ppm/K) and supply "
+                   "maximum [ds-bip]; the load's resistor tolerance, an LED's forward voltage "
+                   "+-0.15 V and the output stage's drop 1/1.2 to 1.2 x [mem], together towards "
+                   "the stronger or weaker load. The timer's initial accuracy, drift (ppm/K) and supply "
                    "sensitivity (%/V) at their maximum figures (3 x typical where the data gives "
                    "none) are a band on the timing [ds-bip]."),
     ("Monte Carlo", "Builds are scrambled Sobol points (scipy.stats.qmc, seeded by the study's "

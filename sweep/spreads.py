@@ -11,7 +11,11 @@ it; a Monte Carlo build draws inside it, the bound read as 3 sigma [cp]):
 - electrolytic and tantalum leakage: from typical up to the specification maximum
   (`parts.leakage_spread`), and as far below;
 - the Shockley diode's saturation current: a factor 3 either way [mem];
-- the timer's quiescent current: up to its file's maximum-over-typical ratio [ds-bip], [ds-cmos].
+- the timer's quiescent current: up to its file's maximum-over-typical ratio [ds-bip], [ds-cmos];
+- the load: its resistor's tolerance (the study's resistor tolerance [cp]), an LED's forward
+  voltage +-0.15 V [mem] and the output stage's drop 1/1.2 to 1.2 x typical [mem]. The worst case
+  moves the three together towards the stronger or the weaker load current (monotonic in each
+  [derived]); a Monte Carlo build draws each on its own.
 
 In the worst case a part's corner moves its tolerance, tempco and envelope (and a capacitor's
 DC-bias curve) together in the direction that moves its value the same way, so a corner is the
@@ -32,6 +36,8 @@ from .study import Study
 
 DC_BIAS_SPREAD = 1.6       # DC-bias loss from 1/1.6 to 1.6 x typical [cp: 30-80 % vs 50 %]
 DIODE_IS_SPREAD = 3.0      # diode saturation current a factor 3 either way [mem]
+LED_VF_SPREAD_V = 0.15     # an LED's forward voltage +-0.15 V within one colour and current [mem]
+STAGE_SPREAD = 1.2         # output-stage drop from 1/1.2 to 1.2 x typical [mem]
 RESISTORS = ("ra", "rb", "r")
 
 
@@ -55,7 +61,16 @@ def extra_spreads(study: Study, ideal: bool) -> list[str]:
         out.append("diode")
     if study.timer.quiescent_max_ratio > 1.0:
         out.append("quiescent")
+    if has_load(study):
+        out.append("load")
     return out
+
+
+def has_load(study: Study) -> bool:
+    """True when the output drives a load (a [load] resistance or a swept load resistor)."""
+    import math
+    return (math.isfinite(study.load.resistance_ohm)
+            or any(a.key == "load_resistance" for a in study.design + study.conditions))
 
 
 def _conditions(study: Study, cond: dict[str, np.ndarray]):
@@ -114,6 +129,9 @@ class Corners:
                 out.append(f"{name.upper()} at {tol:+g} %{edge}")
             elif name == "leakage":
                 out.append("leakage at its maximum" if sign > 0 else "leakage at its least")
+            elif name == "load":
+                out.append("the load at its " + ("strongest" if sign > 0 else "weakest")
+                           + " (resistor, LED and output stage)")
             elif name == "diode":
                 out.append(f"diode saturation current {'3x' if sign > 0 else '1/3 of'} typical")
             else:
@@ -140,8 +158,16 @@ def worst_case_corners(study: Study, cond: dict[str, np.ndarray], ideal: bool) -
         kw["dc_bias"] = np.where(signs[i] < 0, DC_BIAS_SPREAD, 1.0 / DC_BIAS_SPREAD)[None, :, None]
     field = {"leakage": "leak", "diode": "diode_is", "quiescent": "iq"}
     for j, name in enumerate(extras):
+        sg = signs[len(parts) + j][None, :, None]
+        if name == "load":        # stronger: lower resistor, lower LED drop, lower stage drop
+            tol = study.parts.resistor_tolerance
+            kw["load_r"] = np.where(sg > 0, 1.0 - tol, 1.0 + tol)
+            if study.load.forward_voltage_v > 0:
+                kw["led_vf"] = np.where(sg > 0, -LED_VF_SPREAD_V, LED_VF_SPREAD_V)
+            kw["stage"] = np.where(sg > 0, 1.0 / STAGE_SPREAD, STAGE_SPREAD)
+            continue
         b = _bound(study, name, v_up)
-        kw[field[name]] = np.where(signs[len(parts) + j][None, :, None] > 0, b, 1.0 / b)
+        kw[field[name]] = np.where(sg > 0, b, 1.0 / b)
     return Corners(Variation(part, **kw), signs, dims)
 
 
@@ -152,7 +178,10 @@ def draw_names(study: Study, ideal: bool = False) -> list[str]:
         names.append("tempco")
     if not ideal and "c" in varied_parts(study):
         names += ["envelope", "dc_bias"]
-    return names + extra_spreads(study, ideal)
+    extras = extra_spreads(study, ideal)
+    if "load" in extras:
+        extras = [e for e in extras if e != "load"] + ["load_r", "led_vf", "stage"]
+    return names + extras
 
 
 def build_spreads(study: Study, z: dict[str, np.ndarray], builds: slice,
@@ -184,4 +213,9 @@ def build_spreads(study: Study, z: dict[str, np.ndarray], builds: slice,
     for name in ("leakage", "diode", "quiescent"):
         if name in z:
             kw[field[name]] = _bound(study, name, v_up) ** unit(name)
+    if "load_r" in z:
+        kw["load_r"] = 1.0 + study.parts.resistor_tolerance * unit("load_r")
+        if study.load.forward_voltage_v > 0:
+            kw["led_vf"] = LED_VF_SPREAD_V * unit("led_vf")
+        kw["stage"] = STAGE_SPREAD ** unit("stage")
     return part, kw

@@ -496,3 +496,29 @@ monte_carlo = 20
                                c=c, vcc=v, temperature=t, leak_factor=b ** leak_s)
                 assert not int(out["flag_mask"]) & stall_bit
     assert kinds == {"nominal", "corner"}          # both wordings are exercised
+
+
+def test_latch_varies_its_load_led_and_output_stage():
+    # the latch has no timing part; what sets its output current is the load resistor (its
+    # tolerance), the LED's forward voltage (+-0.15 V, from memory) and the output stage's drop
+    # (1/1.2 to 1.2 x typical, from memory). The worst case takes all three towards the
+    # strongest or the weakest load current, with the quiescent current at its bounds: brute
+    # force over both directions at every condition gives the same extremes [derived: the load
+    # line is monotonic in each]
+    s = study_of(open("studies/jig-latch.toml", encoding="utf-8").read())
+    df = analyse_designs(s, 0, 1)
+    from sweep.engine import axis_values
+    cond = axis_values(s.conditions, np.arange(s.n_conditions))
+    tol, vf = s.parts.resistor_tolerance, 0.15 if s.load.forward_voltage_v > 0 else 0.0
+    currents = []
+    for strong in (True, False):
+        out = evaluate("bistable", s.timer, s.parts, s.load, vcc=cond["vcc"],
+                       temperature=cond.get("temperature", 25.0),
+                       load_factor=1 - tol if strong else 1 + tol,
+                       vf_shift=-vf if strong else vf, stage_factor=1 / 1.2 if strong else 1.2)
+        currents.append(np.asarray(out["output_current_a"]))
+    assert df["output_current_a_wc_max"].iloc[0] == pytest.approx(currents[0].max(), rel=1e-12)
+    assert df["output_current_a_wc_min"].iloc[0] == pytest.approx(currents[1].min(), rel=1e-12)
+    assert df["output_current_a_wc_max"].iloc[0] > df["output_current_a_max"].iloc[0] * 1.05
+    # and the Monte Carlo builds differ: a spread beyond the conditions' own
+    assert df["output_current_a_mc_std"].iloc[0] > 0

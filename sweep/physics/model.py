@@ -330,6 +330,7 @@ def _missing_pulse(timer, parts, iq, stage, curve, g_leak, i_draw, *, vcc, r_t, 
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
              leak_factor=1.0, dc_bias_factor=1.0, diode_is_factor=1.0, iq_factor=1.0,
+             load_factor=1.0, vf_shift=0.0, stage_factor=1.0,
              ideal: bool = False, load_resistance=np.nan, input_period=np.nan) -> dict[str, np.ndarray]:
     """Evaluate every point of a broadcast grid.
 
@@ -339,7 +340,9 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     parts.leakage_conductance_s for the specification maximum); dc_bias_factor, diode_is_factor,
     iq_factor [-]: a build's or a worst-case corner's DC-bias loss, diode saturation current and
     quiescent current relative to their typical figures; load_resistance [Ω] a swept load
-    resistor (NaN: the [load] resistance), input_period [s] the missing-pulse detector's input.
+    resistor (NaN: the [load] resistance), input_period [s] the missing-pulse detector's input;
+    load_factor, vf_shift [V], stage_factor: a build's or corner's load resistor, LED forward
+    voltage and output-stage drop relative to their nominal figures.
     Returns a dict of arrays: the output columns of sweep.variables.OUTPUTS and 'flag_mask'
     (bits of FLAG_BITS, spec-miss excluded: that needs the study's [spec]).
     """
@@ -354,7 +357,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     ra_t, rb_t, r_t = (resistor_at(np.asarray(x, dtype=float), t_amb, tc) for x in (ra, rb, r))
     # thresholds: upper = control voltage, lower = half of it [book]
     v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
-    stage = output_states(timer, load, vcc, t_amb, load_resistance)
+    stage = output_states(timer, load, vcc, t_amb, load_resistance, load_factor, vf_shift,
+                          1.0 if ideal else stage_factor)
     iq = {high: timer.quiescent_a(vcc, output_high=high) * iq_factor for high in (True, False)}
     timed = circuit != "bistable"
     surge = steady = None

@@ -22,26 +22,30 @@ from .parts import Load
 from .timer import TimerModel
 
 
-def drop_at(points, current_a):
+def drop_at(points, current_a, scale=1.0):
     """Drop [V] of a stage at load current current_a [A] (linear between the points, extended
-    along the last segment, never below the first point's drop)."""
+    along the last segment, never below the first point's drop), times scale (a build's or a
+    worst-case corner's stage relative to the typical curve)."""
     pts = np.asarray(points, dtype=float)
     i = np.asarray(current_a, dtype=float)
     if len(pts) == 1:
-        return np.full_like(i, pts[0, 1])
+        return np.full_like(i, pts[0, 1]) * scale
     slope = (pts[-1, 1] - pts[-2, 1]) / (pts[-1, 0] - pts[-2, 0])
-    return np.where(i > pts[-1, 0], pts[-1, 1] + slope * (i - pts[-1, 0]),
-                    np.interp(i, pts[:, 0], pts[:, 1]))
+    return scale * np.where(i > pts[-1, 0], pts[-1, 1] + slope * (i - pts[-1, 0]),
+                            np.interp(i, pts[:, 0], pts[:, 1]))
 
 
-def load_line(points, v_avail_v, r_load_ohm):
+def load_line(points, v_avail_v, r_load_ohm, scale=1.0):
     """Current i >= 0 [A] where v_avail - drop(i) = i R_load, and the stage's incremental
     resistance there [Ω] [derived: the drop is piecewise linear, so each segment is a linear
     equation; the answer lies in the last segment whose start still leaves a positive margin].
-    v_avail [V]: what the supply leaves for the stage and the load at zero current."""
+    v_avail [V]: what the supply leaves for the stage and the load at zero current; scale: the
+    stage's drop relative to the typical curve."""
     pts = np.asarray(points, dtype=float)
     v = np.asarray(v_avail_v, dtype=float)
     xs, ys = pts[:, 0], pts[:, 1]
+    if not (np.ndim(scale) == 0 and scale == 1.0):
+        return _scaled_load_line(xs, ys, v, r_load_ohm, np.asarray(scale, dtype=float))
     slopes = np.diff(ys) / np.diff(xs) if len(pts) > 1 else np.array([0.0])
     starts = list(zip(xs[:len(slopes)], ys[:len(slopes)], slopes))
     if not np.any(np.isfinite(r_load_ohm)):
@@ -53,6 +57,21 @@ def load_line(points, v_avail_v, r_load_ohm):
         on = v - y0 - x0 * r_load_ohm > 0.0
         i = np.where(on, (v - y0 + s * x0) / (s + r_load_ohm), i)
         r = np.where(on, s, r)
+    return np.maximum(i, 0.0), r
+
+
+def _scaled_load_line(xs, ys, v, r_load_ohm, scale):
+    """load_line with every drop of the curve multiplied by scale (an array)."""
+    slopes = np.diff(ys) / np.diff(xs) if len(xs) > 1 else np.array([0.0])
+    shape = np.broadcast(v, r_load_ohm, scale).shape
+    r = np.broadcast_to(slopes[0] * scale, shape).copy()
+    if not np.any(np.isfinite(r_load_ohm)):
+        return np.zeros(shape), r
+    i = np.zeros(shape)
+    for x0, y0, s in zip(xs[:len(slopes)], ys[:len(slopes)], slopes):
+        on = v - y0 * scale - x0 * r_load_ohm > 0.0
+        i = np.where(on, (v - y0 * scale + s * scale * x0) / (s * scale + r_load_ohm), i)
+        r = np.where(on, s * scale, r)
     return np.maximum(i, 0.0), r
 
 
@@ -84,39 +103,46 @@ class OutputStates:
 
 
 def output_states(timer: TimerModel, load: Load, vcc_v, temperature_c,
-                  load_resistance_ohm=None) -> OutputStates:
+                  load_resistance_ohm=None, load_factor=1.0, vf_shift_v=0.0,
+                  stage_factor=1.0) -> OutputStates:
     """Both output states of the timer at supply vcc_v [V] and ambient temperature_c [°C].
     load_resistance_ohm [Ω]: the load's resistance as an array that broadcasts (a swept load
-    resistor); None or NaN: the study's [load] resistance."""
+    resistor); None or NaN: the study's [load] resistance. load_factor, vf_shift_v [V] and
+    stage_factor: a build's or a worst-case corner's load resistor, LED forward voltage and
+    output-stage drop relative to their nominal figures."""
     vcc = np.asarray(vcc_v, dtype=float)
     rl = load.resistance_ohm
     if load_resistance_ohm is not None and np.any(np.isfinite(load_resistance_ohm)):
         rl = np.asarray(load_resistance_ohm, dtype=float)
-    zero = np.zeros(np.broadcast(vcc, temperature_c, rl).shape)
+    if not (np.ndim(load_factor) == 0 and load_factor == 1.0):
+        rl = rl * np.asarray(load_factor, dtype=float)
+    sf = stage_factor
+    zero = np.zeros(np.broadcast(vcc, temperature_c, rl, sf, vf_shift_v).shape)
     shift = timer.source_drop_tempco_v_per_k * (np.asarray(temperature_c, dtype=float) - 25.0)
     src, snk = timer.source_drop_points, timer.sink_drop_points
-    e_high = vcc - np.maximum(drop_at(src, 0.0) + shift, 0.0)      # open-circuit high level
-    e_low = drop_at(snk, 0.0) + zero
-    _, r_src0 = load_line(src, zero + 1.0, np.inf)
-    _, r_snk0 = load_line(snk, zero + 1.0, np.inf)
+    e_high = vcc - np.maximum(drop_at(src, 0.0, sf) + shift, 0.0)      # open-circuit high level
+    e_low = drop_at(snk, 0.0, sf) + zero
+    _, r_src0 = load_line(src, zero + 1.0, np.inf, sf)
+    _, r_snk0 = load_line(snk, zero + 1.0, np.inf, sf)
+    r_src0, r_snk0 = r_src0 + zero, r_snk0 + zero
     if not np.any(np.isfinite(rl)):
         return OutputStates(e_high + zero, e_low, zero, zero, (e_high + zero, r_src0), (e_low, r_snk0))
-    vf = load.forward_voltage_v
+    vf = load.forward_voltage_v + vf_shift_v + zero
     if load.to == "ground":
-        i_h, r_h = load_line(src, vcc - shift - vf, rl)
-        v_h = vcc - np.maximum(drop_at(src, i_h) + shift, 0.0)
+        i_h, r_h = load_line(src, vcc - shift - vf, rl, sf)
+        v_h = vcc - np.maximum(drop_at(src, i_h, sf) + shift, 0.0)
         high = (v_h, np.where(i_h > 0, parallel(v_h, r_h, v_h, rl)[1], r_h))
         # low: the stage only sinks; a load below its open level holds the output itself at rest
         below = vf <= e_low
-        low = parallel(e_low, r_snk0, np.full_like(zero, vf), rl + zero)
+        low = parallel(e_low, r_snk0, vf, rl + zero)
         low = (np.where(below, low[0], e_low), np.where(below, low[1], r_snk0))
         split = None
         if np.any(below & (e_low > vf)):
-            split = (np.full_like(zero, vf), rl + zero, np.where(below, e_low, np.nan))
+            split = (vf, rl + zero, np.where(below, e_low, np.nan))
         return OutputStates(v_h, np.where(below, vf, e_low), i_h, zero, high, low, None, split)
     # load to the supply: it sinks into the low stage, and meets the high stage from above
-    i_l, r_l = load_line(snk, vcc - vf, rl)
-    v_l = drop_at(snk, i_l)
+    i_l, r_l = load_line(snk, vcc - vf, rl, sf)
+    v_l = drop_at(snk, i_l, sf)
     low = (v_l, np.where(i_l > 0, parallel(v_l, r_l, v_l, rl)[1], r_l))
     v_load = vcc - vf                                   # where the load alone holds the output
     above = v_load >= e_high
