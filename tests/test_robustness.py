@@ -140,3 +140,30 @@ def test_bad_run_options(args, words, capsys):
     assert code == 2 and "Traceback" not in err, err
     for w in words:
         assert w in err
+
+
+def test_a_stop_signal_that_lands_in_a_finaliser_still_stops_the_run():
+    # Python cannot raise an exception out of a finaliser (__del__): it prints "Exception
+    # ignored" with a traceback and goes on. A stop signal that lands there must neither print
+    # a traceback nor be lost: timer-sweep sends it again so it is raised at the next step.
+    script = """
+import os, signal, sys, time
+from sweep import cli
+signal.signal(signal.SIGTERM, cli._stop)
+sys.unraisablehook = cli._unraisable(sys.unraisablehook)
+class Finaliser:
+    def __del__(self):
+        os.kill(os.getpid(), signal.SIGTERM)
+        time.sleep(0.05)
+x = Finaliser()
+try:
+    del x
+    for _ in range(200):
+        time.sleep(0.01)
+    print("not stopped")
+except KeyboardInterrupt:
+    print("stopped", cli.STOPPED["signal"])
+"""
+    proc = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=60)
+    assert proc.stdout.strip() == f"stopped {int(signal.SIGTERM)}", (proc.stdout, proc.stderr)
+    assert "Traceback" not in proc.stderr and "Exception ignored" not in proc.stderr

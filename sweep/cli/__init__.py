@@ -35,7 +35,8 @@ def _root(version: bool = typer.Option(False, "--version", callback=_version, is
 from . import commands  # noqa: E402,F401  (registers the commands on `app`)
 
 
-STOPPED: dict = {"signal": None, "written": False}   # the stopping signal; outputs in place?
+STOPPED: dict = {"signal": None, "written": False, "raised": False}   # the stopping signal;
+# outputs in place?; has the interrupt been raised where the run can see it?
 STOP_SIGNALS = ("SIGINT", "SIGTERM", "SIGHUP")
 
 
@@ -44,7 +45,26 @@ def _stop(signum, frame):
     128 + the signal number. A second signal while unwinding is ignored, so cleanup finishes."""
     if STOPPED["signal"] is None:
         STOPPED["signal"] = signum
+    if not STOPPED["raised"]:
+        STOPPED["raised"] = True
         raise KeyboardInterrupt
+
+
+def _unraisable(hook):
+    """A hook for exceptions Python cannot raise (in a finaliser, for example): when it is our
+    own interrupt that landed there, it was swallowed, so send the signal again a moment later
+    (from a helper thread, once the finaliser and this hook are done) to raise it at the run's
+    next step, quietly; anything else goes to the usual hook."""
+    def quiet(info):
+        if isinstance(info.exc_value, KeyboardInterrupt) and STOPPED["signal"] is not None:
+            import threading
+            STOPPED["raised"] = False
+            again = threading.Timer(0.005, os.kill, (os.getpid(), STOPPED["signal"]))
+            again.daemon = True
+            again.start()
+            return
+        hook(info)
+    return quiet
 
 
 def _stopped_exit(hard: bool = False) -> None:
@@ -78,7 +98,8 @@ def main(argv: list[str] | None = None) -> int:
         for name in STOP_SIGNALS:
             if hasattr(signal, name):
                 signal.signal(getattr(signal, name), _stop)
-    STOPPED.update(signal=None, written=False)
+        sys.unraisablehook = _unraisable(sys.unraisablehook)
+    STOPPED.update(signal=None, written=False, raised=False)
     try:
         rv = app(args=argv, standalone_mode=False)
     except InputError as e:
