@@ -398,7 +398,9 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     out["output_current_a"] = np.maximum(stage.i_high, stage.i_low)
     out["junction_temp_c"] = tj
     out = {k: np.broadcast_to(np.asarray(v, dtype=float), shape) for k, v in out.items()}
-    out["flag_mask"] = np.broadcast_to(_flags(circuit, timer, parts, stage, out, locals()), shape)
+    env = dict(vcc=vcc, t_amb=t_amb, v_up=v_up, ra=ra, rb=rb, r=r, c=c, steady=steady,
+               surge=surge, stalls=stalls, input_period=input_period)
+    out["flag_mask"] = np.broadcast_to(_flags(circuit, timer, parts, stage, out, env), shape)
     return out
 
 
