@@ -233,6 +233,7 @@ def test_a_workbook_that_is_a_pipe_is_refused(tmp_path):
     os.mkfifo(tmp_path / "s.xlsx")
     code, _, err = sweep(["run", tmp_path / "s.xlsx", "--out", tmp_path / "out", "-q"])
     refused(code, err, "named pipe")
+    assert not (tmp_path / "out").exists()          # refused before anything was written
 
 
 def test_ten_billion_conditions_are_refused_before_any_allocation(tmp_path):
