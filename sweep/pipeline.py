@@ -282,14 +282,19 @@ def check_target(final: Path) -> None:
                          "and run again (the previous outputs were kept)")
 
 
-def commit(pairs: list[tuple[Path, Path]], on_commit: Callable[[], None] | None = None) -> None:
+def commit(pairs: list[tuple[Path, Path]], on_commit: Callable[[], None] | None = None,
+           stop_requested: Callable[[], bool] | None = None) -> None:
     """Put every staged file in place as one step, with SIGINT, SIGTERM and SIGHUP held back:
     each file being replaced is first moved aside into a PREVIOUS folder; if any rename fails,
     every file already placed is removed and the previous ones are moved back, and the error
     names the path that blocked. So the folder holds either the whole new set or the whole old
-    one, and run.json (renamed last) always describes the files beside it."""
+    one, and run.json (renamed last) always describes the files beside it. stop_requested: a
+    stop signal arrived that the run did not see (a library swallowed its interrupt): nothing
+    is put in place."""
     old = signal.pthread_sigmask(signal.SIG_BLOCK, HELD)
     try:
+        if stop_requested is not None and stop_requested():
+            raise KeyboardInterrupt
         out_dir = pairs[0][1].parent
         aside = out_dir / f"{PREVIOUS}{os.getpid()}"
         aside.mkdir(exist_ok=True)
@@ -353,7 +358,8 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
               chunk: int = DEFAULT_CHUNK, progress: Callable[..., None] | None = None,
               mapper=None, workbook_points: int = WORKBOOK_POINTS,
               parquet_points: int = PARQUET_POINTS,
-              on_commit: Callable[[], None] | None = None) -> RunResult:
+              on_commit: Callable[[], None] | None = None,
+              stop_requested: Callable[[], bool] | None = None) -> RunResult:
     """The main job. Every output is written into a staging folder first and the set is put in
     place together at the end (`commit`), so a run that is interrupted or fails leaves the
     previous outputs whole and no partial file behind. `on_commit` is called once the new set is
@@ -430,7 +436,7 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         tmp["record"].write_text(json.dumps(info, indent=2) + "\n", encoding="utf-8")
         commit([(tmp[k], final[k]) for k in ("points", "designs", "workbook", "page", "bom", "waveform",
                                              "record")],
-               on_commit)
+               on_commit, stop_requested)
     except InputError:
         raise
     except Exception as e:

@@ -167,3 +167,17 @@ except KeyboardInterrupt:
     proc = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=60)
     assert proc.stdout.strip() == f"stopped {int(signal.SIGTERM)}", (proc.stdout, proc.stderr)
     assert "Traceback" not in proc.stderr and "Exception ignored" not in proc.stderr
+
+
+def test_a_stop_the_run_did_not_see_still_keeps_the_previous_outputs(tmp_path):
+    # a library may swallow the interrupt a stop signal raises (a bare except); the commit asks
+    # whether a stop arrived and, if so, puts nothing in place [the all-or-nothing contract]
+    from sweep.pipeline import run_study
+    from sweep.study import load_study
+    st = load_study("studies/jig-latch.toml")
+    out = tmp_path / "out"
+    run_study(st, out)
+    before = {p.name: sha(p) for p in out.iterdir()}
+    with pytest.raises(KeyboardInterrupt):
+        run_study(st, out, stop_requested=lambda: True)
+    assert {p.name: sha(p) for p in out.iterdir()} == before     # no staging folder left either

@@ -82,7 +82,8 @@ def run(study: StudyArg,
     try:
         with progress_bar(st.n_points, quiet or not sys.stderr.isatty()) as advance:
             res = run_study(st, out_dir, ideal=ideal, all_points=all_points, progress=advance,
-                            mapper=mapper, on_commit=lambda: STOPPED.update(written=True))
+                            mapper=mapper, on_commit=lambda: STOPPED.update(written=True),
+                            stop_requested=lambda: STOPPED["signal"] is not None)
     finally:
         if hasattr(mapper, "close"):
             mapper.close()
