@@ -39,6 +39,8 @@ DIODE_IS_SPREAD = 3.0      # diode saturation current a factor 3 either way [mem
 LED_VF_SPREAD_V = 0.15     # an LED's forward voltage +-0.15 V within one colour and current [mem]
 STAGE_SPREAD = 1.2         # output-stage drop from 1/1.2 to 1.2 x typical [mem]
 RESISTORS = ("ra", "rb", "r")
+#: the engine.Variation field that carries each spread that is a factor on its typical figure
+FIELD = {"leakage": "leak", "diode": "diode_is", "quiescent": "iq"}
 
 
 def varied_parts(study: Study) -> list[str]:
@@ -156,7 +158,6 @@ def worst_case_corners(study: Study, cond: dict[str, np.ndarray], ideal: bool) -
         # a lower capacitor also has its DC-bias loss at the high end of its spread [derived]
         i = parts.index("c")
         kw["dc_bias"] = np.where(signs[i] < 0, DC_BIAS_SPREAD, 1.0 / DC_BIAS_SPREAD)[None, :, None]
-    field = {"leakage": "leak", "diode": "diode_is", "quiescent": "iq"}
     for j, name in enumerate(extras):
         sg = signs[len(parts) + j][None, :, None]
         if name == "load":        # stronger: lower resistor, lower LED drop, lower stage drop
@@ -167,7 +168,7 @@ def worst_case_corners(study: Study, cond: dict[str, np.ndarray], ideal: bool) -
             kw["stage"] = np.where(sg > 0, 1.0 / STAGE_SPREAD, STAGE_SPREAD)
             continue
         b = _bound(study, name, v_up)
-        kw[field[name]] = np.where(sg > 0, b, 1.0 / b)
+        kw[FIELD[name]] = np.where(sg > 0, b, 1.0 / b)
     return Corners(Variation(part, **kw), signs, dims)
 
 
@@ -209,10 +210,9 @@ def build_spreads(study: Study, z: dict[str, np.ndarray], builds: slice,
         u = unit("envelope")
         part["c"] = 1.0 + np.where(u < 0, u * (typ - lo), u * (hi - typ)) / (1.0 + typ)
         kw["dc_bias"] = DC_BIAS_SPREAD ** unit("dc_bias")
-    field = {"leakage": "leak", "diode": "diode_is", "quiescent": "iq"}
     for name in ("leakage", "diode", "quiescent"):
         if name in z:
-            kw[field[name]] = _bound(study, name, v_up) ** unit(name)
+            kw[FIELD[name]] = _bound(study, name, v_up) ** unit(name)
     if "load_r" in z:
         kw["load_r"] = 1.0 + study.parts.resistor_tolerance * unit("load_r")
         if study.load.forward_voltage_v > 0:
