@@ -218,7 +218,7 @@ NOTES = [
                        "capacitance, capacitor temperature curves, resistor tempco [ds-bip], "
                        "[ds-cmos], [cp], [mem]."),
     ("Capacitor", "Class II ceramics lose capacitance with DC bias as 1 - k (V/V_rated)^1.3 [mem], "
-                  "applied to the node voltage as it moves (a cubic fit over the swing, integrated "
+                  "applied to the node voltage as it moves (a quadratic fit over the swing, integrated "
                   "exactly). Electrolytic and tantalum leakage: the nominal figure is typical, a "
                   "fifth of the 0.01 C V (or 3 uA) maximum at rated voltage, falling with the "
                   "square of the working voltage's share of the rating [cp, mem]; the maximum is "

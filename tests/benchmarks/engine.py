@@ -40,7 +40,7 @@ TO_MONO = np.linalg.inv(np.vander(CHEB, 3, increasing=True)).tolist()
 def plain_point(st, ra, rb, c, vcc, t):
     """The realistic astable timing for one point, written as a plain Python function with the
     math module: the baseline a per-point loop would run (the same equations as the engine: a
-    cubic C(v) over the swing integrated against each phase's Thevenin source, the input
+    quadratic C(v) over the swing integrated against each phase's Thevenin source, the input
     currents, the propagation delay's run-on)."""
     tm, p = st.timer, st.parts
     cap = p.technology

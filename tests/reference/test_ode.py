@@ -25,7 +25,7 @@ timer-sweep's formulas [book: nodal analysis and the 555 block diagram, e.g. Hor
 Part data (the capacitor's temperature and DC-bias curves, the leakage rule, the diode's figures
 and the output curves) come from sweep.physics.parts and the timer files: the simulation checks
 timing dynamics, not data. Both are run on the same element values, so the only differences
-left are the model's approximations (a cubic for C(v), quadrature for the diode, a linearised
+left are the model's approximations (a quadratic for C(v), quadrature for the diode, a linearised
 output stage) and the solver's error; 0.5 % is the agreement asked of them, while a wrong term
 (a missing bias current, the wrong Thevenin resistance, the delay on the wrong side, a fixed
 diode drop) is larger.
