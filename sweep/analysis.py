@@ -18,7 +18,7 @@ import pandas as pd
 
 from .engine import (TIMING, Variation, axis_values, evaluate_block, flag_text, nominal_conditions,
                      spec_fail)
-from .physics import ASTABLES, FLAG_BITS
+from .physics import FLAG_BITS, REGISTRY
 from . import values as qv
 from .spreads import (build_spreads, draw_names, tolerance_of, varied_parts,
                       worst_case_corners)
@@ -34,20 +34,15 @@ YIELD_FLOOR = 0.95        # without [spec] yield, a yield interval below this is
 
 
 def main_outputs(circuit: str) -> list[str]:
-    if circuit in ASTABLES:
-        return ["frequency_hz", "duty"]
-    if circuit == "monostable":
-        return ["pulse_width_s"]
-    if circuit == "missing-pulse":
-        return ["timeout_s"]
-    return []
+    """The output columns that say what the circuit does; the first is the one ranked on."""
+    return list(REGISTRY[circuit].main_outputs)
 
 
 def summary_outputs(study: Study) -> list[str]:
-    cols = main_outputs(study.circuit) + [s.column for s in study.spec] + ["supply_current_a"]
-    if study.circuit == "missing-pulse":
-        cols.insert(1, "timeout_margin_s")
-    if study.circuit in ("monostable", "missing-pulse", "bistable"):
+    circ = REGISTRY[study.circuit]
+    cols = (list(circ.main_outputs) + list(circ.after_main) + [s.column for s in study.spec]
+            + ["supply_current_a"])
+    if circ.has_idle:
         cols.append("idle_current_a")
     if study.battery_capacity_ah is not None:
         cols.append("battery_life_h")
@@ -59,7 +54,7 @@ def timer_bands(study: Study, which: str = "typ") -> tuple[float, float, float]:
     """(initial accuracy, drift per K, supply sensitivity per V) of the main timing, typical
     (which="typ") or maximum (which="max"), from the timer-model file [ds-bip], [ds-cmos]."""
     t = study.timer
-    kind = "monostable" if study.circuit in ("monostable", "missing-pulse") else "astable"
+    kind = REGISTRY[study.circuit].timer_band or "astable"
     m = "_max" if which == "max" else ""
     return (getattr(t, f"accuracy_{kind}{m}"), getattr(t, f"drift_{kind}{m}_ppm_per_k") * 1e-6,
             getattr(t, f"supply_sensitivity_{kind}{m}_per_v"))

@@ -15,6 +15,7 @@ import pandas as pd
 
 from . import values as qv
 from .engine import axis_values, evaluate_block
+from .physics import REGISTRY
 from .study import Study
 
 #: the columns of bom.csv, in order
@@ -110,13 +111,14 @@ def bill_of_materials(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
                 add("timing", REFS[a.key], v, "ohm",
                     f"resistor, {p.resistor_tempco_per_k * 1e6:g} ppm/K", resistor_rating(need),
                     p.resistor_tolerance, _note(own, a.key, v))
-        if study.circuit == "astable-diode":
+        extras = REGISTRY[study.circuit].bom_extra
+        if "diode" in extras:
             kind = ("fixed drop " + f"{p.diode_drop_v:g} V" if p.diode_drop_v is not None
                     else "Schottky" if p.diode == "schottky" else "small-signal silicon")
             v_rev = next_rating(vcc_max * DERATE, VOLTAGE_RATINGS)
             add("diode", "D1", f"{kind} diode", "", f"{kind} diode across RB (anode at the "
                 "discharge pin)", f"reverse voltage at least {v_rev:g} V (supply up to {vcc_max:g} V)")
-        if study.circuit == "missing-pulse":
+        if "discharge-transistor" in extras:
             # the transistor across C that each input pulse turns on to empty it [book]
             add("discharge", "Q1", "small-signal PNP transistor", "", "emitter to C, collector to "
                 "ground, base driven by the input pulse (with the trigger pin)",

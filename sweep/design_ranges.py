@@ -48,6 +48,8 @@ TECH_RANGE_F = {"C0G": (1e-12, 100e-9), "X7R": (100e-12, 100e-6), "X5R": (100e-1
 
 _KEYS = {"astable": ("ra", "rb"), "astable-diode": ("ra", "rb"), "astable-symmetric": ("r",),
          "monostable": ("r",)}
+#: the circuits whose closed forms this module inverts (a spec-first study: `from_spec`, `new`)
+INVERTIBLE = tuple(_KEYS)
 
 
 @dataclass(frozen=True)

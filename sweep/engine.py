@@ -14,7 +14,7 @@ from typing import Iterator
 
 import numpy as np
 
-from .physics import FLAG_BITS, evaluate, flag_names
+from .physics import FLAG_BITS, REGISTRY, evaluate, flag_names
 from .study import Axis, Study
 
 def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> bool:
@@ -105,11 +105,6 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
     return out
 
 
-#: circuits whose battery drain is the current while they wait (a monostable at rest, the latch
-#: in its worse state); the others drain their period-averaged supply current
-WAITING = ("monostable",)
-
-
 def battery_life_h(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
     """Hours a battery lasts: capacity [A h] x usable share / mean current [A] [derived]. The
     mean current is the period-averaged supply current of a running timer; a monostable is taken
@@ -117,7 +112,7 @@ def battery_life_h(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
     their share on top: see the README). NaN without [study] battery_capacity."""
     if study.battery_capacity_ah is None:
         return np.full(np.shape(out["supply_current_a"]), np.nan)
-    current = out["idle_current_a"] if study.circuit in WAITING else out["supply_current_a"]
+    current = out["idle_current_a"] if REGISTRY[study.circuit].waits else out["supply_current_a"]
     with np.errstate(all="ignore"):
         return study.battery_capacity_ah * study.battery_usable / current
 

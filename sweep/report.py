@@ -21,11 +21,27 @@ class SpecRow:
     target: float | None = None
 
 
+@dataclass(frozen=True)
+class CircuitText:
+    """What the writers say about the study's circuit (from the circuit registry)."""
+    title: str                       # "astable (free-running)"
+    timed: bool                      # False for a latch
+    free_running: bool               # has a period, a frequency and a duty cycle
+    main_outputs: tuple[str, ...]    # the columns the Check sheet checks
+    textbook: str = ""               # the textbook formulas in words [book]
+    check: dict = field(default_factory=dict)   # Check-sheet formula templates (see
+                                                # physics.circuits.base.Circuit.check)
+    check_inputs: tuple[str, ...] = ()           # extra Check input columns, e.g. diode_drop_v
+    check_hint: str = ""             # a bold line under the Check sheet's notes, or ""
+    waveform_text: str = ""          # what the waveform chart shows, or "" (three cycles)
+
+
 @dataclass
 class Report:
     name: str                        # file-name stem, e.g. "bike-light"
     title: str                       # user text: escape it in HTML, never a formula in XLSX
     circuit: str                     # a name of sweep.physics.CIRCUITS
+    circuit_text: CircuitText        # what to say about it
     timer_name: str                  # e.g. "generic bipolar 555"
     ideal: bool                      # --ideal run
     main_output: str | None          # "frequency_hz", "pulse_width_s", "timeout_s"; "supply_current_a" for a latch

@@ -9,7 +9,8 @@ from . import values as qv
 from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
                        timer_bands, yield_target)
 from .engine import axis_values, evaluate_block, nominal_conditions
-from .report import Report, SpecRow
+from .physics import REGISTRY
+from .report import CircuitText, Report, SpecRow
 from .study import Study, study_rows
 from .grades import TABLE as GRADE_TABLE, grade_values, study_for
 from .variables import AXES, VARIABLES, eng
@@ -102,7 +103,7 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
         lines.append(("Idle current", eng(best["idle_current_a_nom"], "idle_current_a")))
     if study.battery_capacity_ah is not None:
         lines.append(("Battery life", battery_text(study, best)))
-    if study.circuit == "missing-pulse" and "timeout_margin_s_wc_min" in best:
+    if "timeout_margin_s_wc_min" in best:
         m = best["timeout_margin_s_wc_min"]
         lines.append(("Timeout margin", f"{eng(m, 'timeout_margin_s')} in the worst case beyond the "
                       "slowest input period: a pulse may come that much late before the alarm"
@@ -111,6 +112,28 @@ def summary_lines(study: Study, designs: pd.DataFrame, screened: dict[str, int])
     for why, n in screened.items():
         lines.append(("No Monte Carlo", f"{n:,} designs: {why}"))
     return lines, meets
+
+
+def circuit_text(circuit: str, diode_drop_v: float | None = None) -> CircuitText:
+    """What the writers say about a circuit, from its registry record; diode_drop_v: the study's
+    fixed diode drop [V], if it gives one."""
+    c = REGISTRY[circuit]
+    hint = ""
+    if "diode_drop_v" in c.check_inputs:
+        if diode_drop_v is not None:
+            drop = f"the study's fixed drop, {qv.format_eng(diode_drop_v, 'V')}"
+        else:
+            drop = ("the diode's drop at the timing current: the engine treats it as a Shockley "
+                    "device, and a small-signal silicon diode drops about 0.35-0.5 V at microamps, "
+                    "0.6-0.7 V at milliamps; a Schottky about half of that")
+        hint = ("Textbook formulas. Diode drop Vd (blue) is 0, the ideal case the engine's ideal "
+                "figure uses, so 'formula vs ideal' stays exact. Type a drop into Vd "
+                f"({drop}) to see how much of the gap to the realistic figures the diode explains "
+                "(for the duty, most of it); the rest comes from the other non-idealities (see "
+                "Notes).")
+    return CircuitText(title=c.title, timed=c.timed, free_running=c.free_running,
+                       main_outputs=c.main_outputs, textbook=c.textbook, check=dict(c.check),
+                       check_inputs=c.check_inputs, check_hint=hint, waveform_text=c.waveform_text)
 
 
 def life_text(hours: float) -> str:
@@ -124,7 +147,7 @@ def battery_text(study: Study, best) -> str:
     """The pick's battery life at the nominal condition and in the worst case, and how."""
     cap = study.battery_capacity_ah
     drain = ("the idle current while it waits for triggers (pulses add their share)"
-             if study.circuit == "monostable" else "the mean supply current")
+             if REGISTRY[study.circuit].waits else "the mean supply current")
     return (f"{life_text(best.get('battery_life_h_nom', np.nan))} nominal, "
             f"{life_text(best.get('battery_life_h_wc_min', np.nan))} worst case: "
             f"{qv.format_eng(cap, 'Ah')} x {study.battery_usable * 100:g} % usable / {drain}. "
@@ -188,7 +211,7 @@ def discharge_surge_caution(study: Study, top: pd.DataFrame) -> str:
     series resistor between the discharge pin and the capacitor that brings the dump's peak down
     to the transistor's steady limit: R = V_threshold / I_limit - R_sat, next E12 value up
     [derived; E12 from IEC 60063]."""
-    if study.circuit != "monostable" or "flags" not in top or not top["flags"].astype(str).str.contains(
+    if not REGISTRY[study.circuit].discharge_resistor or "flags" not in top or not top["flags"].astype(str).str.contains(
             "discharge-current-over-limit").any():
         return ""
     timer = study.timer
@@ -468,7 +491,8 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
                     yield_target=yield_target(study), typical_sigma=study.typical_sigma,
                     spreads=spread_reading(study))
     return Report(
-        name=study.name, title=study.title, circuit=study.circuit, timer_name=study.timer.name,
+        name=study.name, title=study.title, circuit=study.circuit, circuit_text=circuit_text(study.circuit, study.parts.diode_drop_v),
+        timer_name=study.timer.name,
         ideal=ideal, main_output=chart_output(study),
         part_columns=[a.column for a in study.design],
         condition_columns=[a.column for a in study.conditions],

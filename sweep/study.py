@@ -21,9 +21,9 @@ from . import values as qv
 from .errors import InputError
 from .files import MAX_TEXT, read_bytes_limited
 from .models import load_timer
-from .physics import ASTABLES, CIRCUIT_PARTS, CIRCUITS, Load, Parts, TimerModel, capacitor_named
+from .physics import CIRCUITS, REGISTRY, TIMING_PARTS, Load, Parts, TimerModel, capacitor_named
 from .physics.parts import DIODES, CAPACITOR_ALIASES
-from .variables import AXES
+from .variables import AXES, VARIABLES
 
 # ---- the schema: section -> key -> (unit for parse_quantity, what it is) ----
 SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
@@ -81,9 +81,9 @@ SPEC_COLUMNS = {"frequency": "frequency_hz", "duty": "duty", "pulse_width": "pul
                 "output_current": "output_current_a", "power": "power_w",
                 "load_current": "output_current_a", "battery_life": "battery_life_h",
                 "timeout": "timeout_s"}
-SPEC_CIRCUITS = {"frequency": ASTABLES, "duty": ASTABLES, "pulse_width": ("monostable",),
-                 "idle_current": ("monostable", "missing-pulse", "bistable"),
-                 "timeout": ("missing-pulse",)}
+#: [spec] keys only some circuits have, and which (from the circuit registry)
+SPEC_CIRCUITS = {k: tuple(n for n, c in REGISTRY.items() if k in c.spec_keys)
+                 for k in dict.fromkeys(k for c in REGISTRY.values() for k in c.spec_keys)}
 SUPPLIES = ("regulated", "battery", "mains-derived")
 LOAD_KINDS = ("resistive", "led", "relay", "inductive", "mains-switching")
 RANGE_KEYS = ("min", "max", "steps", "per_decade", "series", "values", "nominal", "from_spec")
@@ -353,18 +353,12 @@ class _Parser:
             self.fail("conditions", k, f"'{k}' is in both [design] and [conditions]: it is either a "
                       "choice or something to survive, not both")
         given = {a.key for a in design + conditions}
-        needed = CIRCUIT_PARTS[circuit]
+        needed = REGISTRY[circuit].parts
         for k in needed:
             if k not in given:
                 self.fail("design", k, f"missing: circuit {circuit} needs {', '.join(needed)}")
-        if circuit == "missing-pulse" and "input_period" not in given:
-            self.fail("conditions", "input_period", "missing: the missing-pulse detector needs the "
-                      "input pulse train's period, e.g. input_period = { min = \"0.8\", max = \"1.2\", "
-                      "steps = 3 }")
-        if "input_period" in given and circuit != "missing-pulse":
-            sec = "design" if "input_period" in {a.key for a in design} else "conditions"
-            self.fail(sec, "input_period", "only the missing-pulse detector has an input pulse train")
-        for k in ("ra", "rb", "r", "c"):
+        self.circuit_conditions(circuit, design, given)
+        for k in TIMING_PARTS:
             if k in given and k not in needed:
                 sec = "design" if k in {a.key for a in design} else "conditions"
                 self.fail(sec, k, f"not used by circuit {circuit} (it uses "
@@ -446,10 +440,11 @@ class _Parser:
                                   or v["series"].strip().upper() not in qv.SERIES):
                 self.fail("design", f"{k}.series", f"unknown series; known: {', '.join(qv.SERIES)}")
         key0 = sorted(marked)[0]
-        if circuit not in ("astable", "astable-diode", "astable-symmetric", "monostable"):
+        from .design_ranges import INVERTIBLE
+        if circuit not in INVERTIBLE:
             self.fail("design", f"{key0}.from_spec", f"circuit {circuit} has no timing to aim at")
         spec = {s.key: s for s in self.spec(circuit)}
-        main = "pulse_width" if circuit == "monostable" else "frequency"
+        main = REGISTRY[circuit].spec_keys[0]
         if main not in spec or not (math.isfinite(spec[main].lo) and math.isfinite(spec[main].hi)):
             self.fail("design", f"{key0}.from_spec", f"needs [spec] {main} with a target and "
                       "tolerance (or a min and a max) to aim at")
@@ -486,6 +481,22 @@ class _Parser:
         given = self.data.get("design", {})
         return {k: (prop.values[k], prop.series[k]) for k in prop.values
                 if k in marked or k not in given}
+
+    def circuit_conditions(self, circuit: str, design, given: set) -> None:
+        """The [conditions] keys a circuit needs are given, and none that only other circuits
+        have."""
+        own = REGISTRY[circuit].conditions
+        for k in own:
+            if k not in given:
+                self.fail("conditions", k, f"missing: circuit {circuit} needs {k} "
+                          f"({VARIABLES[AXES[k][0]].description.lower()}), e.g. {k} = "
+                          "{ min = \"0.8\", max = \"1.2\", steps = 3 }")
+        for k in dict.fromkeys(k for c in REGISTRY.values() for k in c.conditions):
+            if k in given and k not in own:
+                users = [n for n, c in REGISTRY.items() if k in c.conditions]
+                sec = "design" if k in {a.key for a in design} else "conditions"
+                self.fail(sec, k, f"only the {', '.join(users)} circuit takes {k} "
+                          f"({VARIABLES[AXES[k][0]].description.lower()})")
 
     def axes(self, section: str, circuit: str,
              proposed: dict[str, tuple[np.ndarray, str]] | None = None) -> tuple[Axis, ...]:
@@ -642,7 +653,8 @@ class _Parser:
                 self.fail("parts", key, "must be greater than zero")
         self._diode(p, kw)
         if "discharge_resistor_ohm" in kw:
-            if self.data.get("study", {}).get("circuit") != "monostable":
+            circ = REGISTRY.get(self.data.get("study", {}).get("circuit"))
+            if circ is None or not circ.discharge_resistor:
                 self.fail("parts", "discharge_resistor", "applies to the monostable only (in an "
                           "astable RB already sits between the discharge pin and C)")
             if not 0 <= kw["discharge_resistor_ohm"] <= 10e3:

@@ -8,6 +8,7 @@ import pandas as pd
 from sweep.models import load_timer
 from sweep.physics import Load, Parts, evaluate
 from sweep.report import Report, SpecRow
+from sweep.reporting import circuit_text
 
 
 def make_report(title: str = "Demo flasher (invented scenario)", n_designs: int = 12) -> Report:
@@ -85,7 +86,8 @@ def make_report(title: str = "Demo flasher (invented scenario)", n_designs: int 
         points=pts, points_total=len(pts), points_note=f"All {len(pts)} points.",
         designs=designs, parts=pd.DataFrame(parts_rows), check=check,
         spec=[SpecRow("frequency", "frequency_hz", 1.8, 2.2, 2.0), SpecRow("duty", "duty", -np.inf, 0.7)],
-        study_rows=[("study", "title", f'"{title}"', "title"), ("study", "circuit", '"astable"', ""),
+        circuit_text=circuit_text("astable"),
+            study_rows=[("study", "title", f'"{title}"', "title"), ("study", "circuit", '"astable"', ""),
                     ("design", "ra", '["1k", "2.2k"]', "Ω a range of choices")],
         notes=[("Model", "Realistic 555 model."), ("Sources", "[book] RC law.")],
         run_info={"version": "test", "seed": 1},

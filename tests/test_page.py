@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from sweep.reporting import circuit_text
 from sweep.report import SpecRow
 from sweep.writers import page
 from sweep.writers.page import (HEADINGS, build_sections, map_states, pareto_frontier,
@@ -40,7 +41,7 @@ def bistable_report():
     """No timing output: no main output, no Monte Carlo, no temperature curves, no spec."""
     r = make_report()
     drop = [c for c in r.designs.columns if c.startswith(("frequency", "duty", "yield"))]
-    return dataclasses.replace(r, circuit="bistable", main_output=None, part_columns=[],
+    return dataclasses.replace(r, circuit="bistable", circuit_text=circuit_text("bistable"), main_output=None, part_columns=[],
                                mc_samples=None, temperature_curves=None, spec=[],
                                designs=r.designs.drop(columns=drop))
 
@@ -58,7 +59,7 @@ def latch_report():
     tc = pd.DataFrame([{"rank": 1, "vcc_v": v, "temperature_c": t, "value": v * 2.6e-3 + 1e-6 * t}
                        for v in (4.75, 5.0, 5.25) for t in (15.0, 25.0, 35.0)])
     return dataclasses.replace(
-        r, circuit="bistable", main_output="supply_current_a", part_columns=[], designs=designs,
+        r, circuit="bistable", circuit_text=circuit_text("bistable"), main_output="supply_current_a", part_columns=[], designs=designs,
         mc_samples=mc, temperature_curves=tc,
         spec=[SpecRow("supply_current", "supply_current_a", -np.inf, 0.04)],
         run_info={"version": "test", "seed": 1, "monte_carlo": 100, "conditions": 9})

@@ -19,6 +19,7 @@ import pandas as pd
 import pytest
 from scipy.integrate import solve_ivp
 
+from sweep.reporting import circuit_text
 from sweep.models import load_timer
 from sweep.physics import Load, Parts, evaluate
 from sweep.writers.workbook import (CAP_FORMAT, ENG_FORMAT, KM3_FORMAT, KM_FORMAT, PRINT_ROWS,
@@ -384,7 +385,8 @@ def _check_report(circuit: str, rows: list[dict]):
     """A report whose Check rows carry the engine's ideal and realistic figures for ``rows``."""
     rep = make_report()
     if circuit == "bistable":
-        return dataclasses.replace(rep, circuit=circuit, part_columns=[], main_output=None,
+        return dataclasses.replace(rep, circuit=circuit, circuit_text=circuit_text(circuit),
+                                   part_columns=[], main_output=None,
                                    check=pd.DataFrame())
     df = pd.DataFrame(rows)
     outs = _MAIN.get(circuit, ["frequency_hz", "duty"])
@@ -403,7 +405,8 @@ def _check_report(circuit: str, rows: list[dict]):
     for o in outs:
         check[f"ideal_{o}"] = ideal[o]
         check[f"real_{o}"] = real[o]
-    return dataclasses.replace(rep, circuit=circuit, part_columns=_PARTS[circuit],
+    return dataclasses.replace(rep, circuit=circuit, circuit_text=circuit_text(circuit),
+                               part_columns=_PARTS[circuit],
                                main_output=outs[0], check=check)
 
 

@@ -58,15 +58,6 @@ HEADINGS = {
 #: the section a study with part grades adds
 COST_HEADING = "Yield against the cost of part grades"
 
-CIRCUIT_TEXT = {
-    "astable": "astable (free-running)",
-    "astable-diode": "astable with a diode across RB (duty can go below 50 %)",
-    "astable-symmetric": "symmetric astable (one resistor from the output)",
-    "monostable": "monostable (one pulse per trigger)",
-    "missing-pulse": "missing-pulse detector (alarms when an input pulse is late)",
-    "bistable": "bistable (set/reset latch)",
-}
-
 _TEMPLATE = go.layout.Template(layout=dict(
     font=dict(family=FONT, size=13, color="#222222"),
     paper_bgcolor="white", plot_bgcolor="white", colorway=PALETTE,
@@ -643,7 +634,7 @@ def _duty_section(report: Report, ds: _Designs) -> Section:
         "pass; small grey dots have another verdict (hover for it). Prefer marks well inside the box to marks near its edge: "
         "tolerances, supply and temperature move every design around its mark."))
     d = ds.table
-    if not report.circuit.startswith("astable"):
+    if not report.circuit_text.free_running:
         sec.note = (f"only a free-running (astable) circuit has a duty cycle; this study is "
                     f"{html.escape(report.circuit)}.")
         return sec
@@ -748,7 +739,7 @@ def _mc_explain(report: Report) -> str:
     """What the histogram shows, in words true to this report (latch or timer, limits drawn)."""
     main = report.main_output
     label = html.escape(_var(main).label.lower())
-    if report.circuit == "bistable":
+    if not report.circuit_text.timed:
         what = (f"A latch has no timing, so the output followed is the {label} it draws (in "
                 "whichever state, set or reset, draws more). ")
     else:
@@ -1029,27 +1020,15 @@ def _sections(report: Report, ds: _Designs) -> list[Section]:
 
 
 # --- 7. waveforms of the pick ------------------------------------------------------------------
-_WAVE_TEXT = {
-    "missing-pulse": "three input pulses, each discharging the capacitor before it reaches the "
-                     "upper threshold, then a pulse that never comes: the capacitor climbs to the "
-                     "threshold and the output drops, raising the alarm one timeout after the last "
-                     "pulse",
-    "monostable": "one trigger, the pulse while the capacitor climbs to the upper threshold, "
-                  "and the recovery when the discharge transistor empties it",
-}
-
-
 def _waveform_section(report: Report) -> Section:
     sec = Section("waveform", HEADINGS["waveform"], "")
     tr = report.waveform
     if tr is None or tr.table.empty:
-        sec.note = ("a latch has no timing, so there is no waveform to draw." if report.circuit ==
-                    "bistable" else "the pick never completes a timing cycle, so there is no "
-                    "waveform to draw.")
+        sec.note = ("a latch has no timing, so there is no waveform to draw."
+                    if not report.circuit_text.timed else
+                    "the pick never completes a timing cycle, so there is no waveform to draw.")
         return sec
-    what = _WAVE_TEXT.get(report.circuit, "three cycles: the capacitor charges to the upper "
-                           "threshold with the output high, then discharges to the lower one with "
-                           "the output low")
+    what = report.circuit_text.waveform_text
     sec.explain = (f"What a probe on the pick's timing capacitor (solid) and output (dashed) would "
                    f"show: {what}. Blue is the nominal condition, vermillion the condition where "
                    "the pick's timing lies farthest from nominal; the dotted lines are the "
@@ -1167,7 +1146,7 @@ footer { color: var(--muted); font-size: 13px; margin-top: 24px; }
 
 def _header_html(report: Report, ds: _Designs) -> str:
     esc = html.escape
-    circuit = CIRCUIT_TEXT.get(report.circuit, report.circuit)
+    circuit = report.circuit_text.title
     facts = [("Circuit", esc(circuit)), ("Timer model", esc(report.timer_name))]
     facts.append(("Model", '<span class="badge">ideal: textbook formulas, no non-idealities</span>'
                   if report.ideal else "realistic (bias currents, output stage, drift, parts)"))

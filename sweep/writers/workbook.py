@@ -737,79 +737,32 @@ def _parts(ws, st: _Styles, report: Report) -> None:
     _page_setup(ws, 0)
 
 
-# Check-sheet formulas [book: any circuits text; the RC law]
-def _check_formulas(circuit: str, ref: dict) -> dict[str, str]:
-    """Live formulas (without '=') for one Check row. ref maps ra/rb/r/c/vcc/vc/vd/th/tl to
-    cells; the C cell holds picofarads. Every formula reads the control-pin cell: blank means
-    the internal divider, 2/3 of the supply."""
-    RA, RB, R, VCC, VD = (ref.get(k) for k in ("ra", "rb", "r", "vcc", "vd"))
-    C = f"({ref['c']}*1E-12)"
-    VC = f"IF(ISBLANK({ref['vc']}),2/3*{VCC},{ref['vc']})"
-    if circuit == "monostable":
-        return {"pulse_width_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
-    if circuit == "missing-pulse":
-        return {"timeout_s": f"{R}*{C}*LN({VCC}/({VCC}-{VC}))"}
-    if circuit == "astable":
-        th = f"({RA}+{RB})*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))"
-        tl = f"LN(2)*{RB}*{C}"
-    elif circuit == "astable-diode":
-        th = f"{RA}*{C}*LN(({VCC}-{VD}-{VC}/2)/({VCC}-{VD}-{VC}))"
-        tl = f"LN(2)*{RB}*{C}"
-    elif circuit == "astable-symmetric":
-        th = f"{R}*{C}*LN(({VCC}-{VC}/2)/({VCC}-{VC}))"
-        tl = f"LN(2)*{R}*{C}"
-    else:
-        return {}
-    TH, TL = ref["th"], ref["tl"]
-    return {"high_time_s": th, "low_time_s": tl, "frequency_hz": f"1/({TH}+{TL})",
-            "duty": f"{TH}/({TH}+{TL})"}
-
-
-_FORMULA_TEXT = {
-    "astable": "f = 1/(ln 2 · (RA + 2·RB) · C), duty = (RA + RB)/(RA + 2·RB); with a control "
-               "voltage Vc: tH = (RA + RB)·C·ln((VCC − Vc/2)/(VCC − Vc)), tL = ln 2 · RB · C",
-    "astable-diode": "tH = RA·C·ln((VCC − Vd − Vc/2)/(VCC − Vd − Vc)), tL = ln 2 · RB · C, "
-                     "f = 1/(tH + tL), duty = tH/(tH + tL); Vc = 2/3 VCC without a control voltage",
-    "astable-symmetric": "f = 1/(2 · ln 2 · R · C), duty = 50 % (rail-to-rail output); with a "
-                         "control voltage Vc: tH = R·C·ln((VCC − Vc/2)/(VCC − Vc)), tL = ln 2 · R · C",
-    "monostable": "pulse width = R·C·ln(VCC/(VCC − Vc)) = ln 3 · R · C with the internal divider",
-    "missing-pulse": "timeout after the last input pulse = R·C·ln(VCC/(VCC − Vc)) = ln 3 · R · C "
-                     "with the internal divider; no false alarm while the input period stays below it",
-}
-
-
-def _diode_line(report: Report) -> str:
-    """The Check sheet's hint for the diode drop cell: the study's fixed drop, or what a
-    Shockley diode drops at timing currents."""
-    given = [v for sec, key, v, _m in report.study_rows if key == "diode_drop"]
-    if given:
-        drop = f"the study's fixed drop, {given[0].strip().strip(chr(34))}"
-    else:
-        drop = ("the diode's drop at the timing current: the engine treats it as a Shockley "
-                "device, and a small-signal silicon diode drops about 0.35-0.5 V at microamps, "
-                "0.6-0.7 V at milliamps; a Schottky about half of that")
-    return ("Textbook formulas. Diode drop Vd (blue) is 0, the ideal case the engine's ideal "
-            "figure uses, so 'formula vs ideal' stays exact. Type a drop into Vd "
-            f"({drop}) to see how much of the gap to the realistic figures the diode explains "
-            "(for the duty, most of it); the rest comes from the other non-idealities (see "
-            "Notes).")
+def _check_formulas(templates: dict[str, str], ref: dict) -> dict[str, str]:
+    """Live formulas (without '=') for one Check row from the circuit's templates. ref maps
+    ra/rb/r/c/vcc/vc/vd/th/tl to cells; the C cell holds picofarads. Every formula reads the
+    control-pin cell: blank means the internal divider, 2/3 of the supply [book]."""
+    vcc = ref["vcc"]
+    cells = {"RA": ref.get("ra"), "RB": ref.get("rb"), "R": ref.get("r"), "VCC": vcc,
+             "VD": ref.get("vd"), "TH": ref.get("th"), "TL": ref.get("tl"),
+             "C": f"({ref['c']}*1E-12)",
+             "VC": f"IF(ISBLANK({ref['vc']}),2/3*{vcc},{ref['vc']})"}
+    return {out: t.format(**cells) for out, t in templates.items()}
 
 
 def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
-    circuit, chk = report.circuit, report.check
-    outputs = {"monostable": ["pulse_width_s"], "missing-pulse": ["timeout_s"]}.get(
-        circuit, ["frequency_hz", "duty"])
-    if circuit == "bistable" or report.main_output is None:
+    circuit, chk, about = report.circuit, report.check, report.circuit_text
+    outputs = list(about.main_outputs)
+    if not about.timed or report.main_output is None:
         _note_row(ws, st, 0, "Bistable (set/reset latch): there is no timing, so there is no "
                              "formula to check.")
         ws.set_column(0, 0, 90)
         return
     notes = [(_CHECK_NOTE, {}),
-             (f"Textbook formulas, {circuit} [book]: {_FORMULA_TEXT.get(circuit, '')}", {}),
+             (f"Textbook formulas, {circuit} [book]: {about.textbook}", {}),
              ("Engine ideal: every non-ideality off (the textbook case); engine realistic: the "
               "full model at this supply; formula vs ideal = formula / ideal - 1.", {})]
-    if circuit == "astable-diode":
-        notes.append((_diode_line(report), {"bold": True}))
+    if about.check_hint:
+        notes.append((about.check_hint, {"bold": True}))
     if chk is None or len(chk) == 0:
         for r, (text, props) in enumerate(notes):
             _text(ws, st, r, 0, text, italic=True, **props)
@@ -823,7 +776,7 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
             return np.full(n, default, float)
         return pd.to_numeric(chk[name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
 
-    helpers = circuit not in ("monostable", "missing-pulse")
+    helpers = "high_time_s" in about.check
     # layout: inputs, then (helpers), then per output: formula, ideal, realistic, difference
     layout = [("rank", "Rank", "int", "key"), ("design", "Design", "int", "key")]
     if "verdict" in chk.columns:
@@ -832,7 +785,7 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
     layout += [("vcc_v", column_header("vcc_v"), "fixed2", "input"),
                ("control_voltage_v", column_header("control_voltage_v") + " (blank: divider)",
                 "fixed2", "input")]
-    if circuit == "astable-diode":
+    if "diode_drop_v" in about.check_inputs:
         layout.append(("diode_drop_v", "Diode drop [V]", "fixed2", "input"))
     if helpers:
         layout += [("f:high_time_s", "High time [s] formula", "eng", "formula"),
@@ -885,7 +838,7 @@ def _check(ws, st: _Styles, report: Report, cached: bool) -> None:
                "c": cell.get("c_f"), "vcc": cell["vcc_v"], "vc": cell["control_voltage_v"],
                "vd": cell.get("diode_drop_v"), "th": cell.get("f:high_time_s"),
                "tl": cell.get("f:low_time_s")}
-        formulas = _check_formulas(circuit, ref)
+        formulas = _check_formulas(about.check, ref)
         for name, head, kind, role in layout:
             c = pos[name]
             if role in ("key", "input", "engine"):

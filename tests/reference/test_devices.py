@@ -14,7 +14,7 @@ from scipy.special import wrightomega
 
 from sweep.models import load_timer
 from sweep.physics import FLAG_BITS, Load, Parts, evaluate
-from sweep.physics.model import diode_feed_a
+from sweep.physics.network import diode_feed_a
 from sweep.physics.parts import (DIODES, leakage_conductance_s, leakage_max_a, saturation_at,
                                  thermal_voltage_v, wright_omega)
 
