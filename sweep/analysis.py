@@ -16,10 +16,11 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .engine import (TIMING, Variation, axis_values, evaluate_block, flag_text, nominal_conditions,
+from .case import axis_values
+from .engine import (TIMING, Variation, evaluate_block, flag_text,
                      spec_fail)
 from .physics import FLAG_BITS, REGISTRY
-from . import values as qv
+from . import grades, values as qv
 from .spreads import (build_spreads, draw_names, tolerance_of, varied_parts,
                       worst_case_corners)
 from .study import Study
@@ -131,10 +132,10 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
         row[a.column] = design[a.key]
 
     # 1. nominal parts over every condition
-    sweep = evaluate_block(study, design, cond, ideal=ideal)
+    sweep = evaluate_block(study.case, design, cond, ideal=ideal)
     mask = np.bitwise_or.reduce(sweep["flag_mask"][:, 0, :], axis=1)
     # 2. nominal parts at the nominal condition
-    nom = evaluate_block(study, design, {k: np.array([v]) for k, v in nominal_conditions(study).items()},
+    nom = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
                          ideal=ideal)
     for o in outs:
         v = sweep[o][:, 0, :]
@@ -146,7 +147,7 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     # timer's drift band
     parts = varied_parts(study)
     corners = worst_case_corners(study, cond, ideal)
-    wc = evaluate_block(study, design, cond, ideal=ideal, variation=corners.variation, with_spec=False)
+    wc = evaluate_block(study.case, design, cond, ideal=ideal, variation=corners.variation, with_spec=False)
     band = _band(study, cond, ideal)
     for o in outs:
         v = wc[o]
@@ -168,7 +169,7 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
             for s in (1 + SENS_STEP, 1 - SENS_STEP):
                 steps.append({q: (s if q == p else 1.0) for q in parts})
         var = Variation({p: np.array([st[p] for st in steps])[None, :, None] for p in parts})
-        ev = evaluate_block(study, design, {k: np.array([v]) for k, v in nominal_conditions(study).items()},
+        ev = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
                             ideal=ideal, variation=var, with_spec=False)[m][:, :, 0]
         with np.errstate(all="ignore"):
             for i, p in enumerate(parts):
@@ -182,7 +183,7 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     row["reach"] = reach
     row["screened"] = np.where(reach, "", "worst case entirely outside the spec")
     row["yield"] = np.where(reach, np.nan, 0.0)
-    nom_fail = spec_fail(study, nom)[:, 0, 0] if study.spec else np.zeros(nd, dtype=bool)
+    nom_fail = spec_fail(study.case, nom)[:, 0, 0] if study.spec else np.zeros(nd, dtype=bool)
     limits = (mask & LIMIT_BITS) != 0
     row["feasible"] = ~limits & ~nom_fail
     row["flag_mask"] = mask
@@ -270,12 +271,12 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
     shift = {o: None for o in outs}
     for b0 in range(0, n_mc, b_step):
         sl = slice(b0, min(n_mc, b0 + b_step))
-        out = evaluate_block(study, design, cond, ideal=ideal,
+        out = evaluate_block(study.case, design, cond, ideal=ideal,
                              variation=mc_variation(study, z, sl, cond, ideal), with_spec=False)
         full = (nd, sl.stop - sl.start, nc)       # an output may not vary along every axis
         out = {k: np.broadcast_to(v, full) for k, v in out.items()}
         if study.spec:
-            good = ~spec_fail(study, out).any(axis=2)
+            good = ~spec_fail(study.case, out).any(axis=2)
         else:
             main = main_outputs(study.circuit)
             good = np.isfinite(out[main[0]]).all(axis=2) if main else np.ones(out["flag_mask"].shape[:2], bool)
@@ -552,3 +553,47 @@ def analyse_designs(study: Study, start: int, stop: int, opt: Options = Options(
                                                   df["reach"].to_numpy(bool))
     df["verdict"] = verdicts(study, df, n_mc)
     return df
+
+
+# ------------------------------------------------------------------ part grades as design axes
+
+def graded_analyse_block(study, start: int, stop: int, opt=None):
+    """analyse_block over a study with part grades: each grade's piece runs on its own sub-study,
+    renumbered into the study's numbering, with the grade columns added."""
+    plain = analyse_block
+    opt = opt or Options()
+    if not study.grade_plan:
+        return plain(study, start, stop, opt)
+    frames, points = [], []
+    for g, a, b in grades.split(study, start, stop):
+        df, pts = plain(g.study, a, b, opt)
+        df["design"] = df["design"] + g.offset
+        for k, v in grades.grade_columns(study, df["design"].to_numpy()).items():
+            df[k] = v
+        frames.append(df)
+        if pts is not None:
+            pts["design"] = pts["design"] + g.offset
+            pts.insert(2, "grade", g.index + 1)
+            points.append(pts)
+    return (pd.concat(frames, ignore_index=True),
+            pd.concat(points, ignore_index=True) if points else None)
+
+
+def graded_monte_carlo_block(study, designs: np.ndarray, opt=None) -> pd.DataFrame:
+    """monte_carlo_block over a study with part grades, grade by grade, in the order given."""
+    plain = monte_carlo_block
+    opt = opt or Options()
+    designs = np.asarray(designs)
+    if not study.grade_plan:
+        return plain(study, designs, opt)
+    g = grades.grade_of(study, designs)
+    frames = []
+    for gi in np.unique(g):
+        sub = study.grade_plan[gi]
+        df = plain(sub.study, designs[g == gi] - sub.offset, opt)
+        df["design"] = df["design"] + sub.offset
+        frames.append(df)
+    out = pd.concat(frames, ignore_index=True)
+    order = pd.Series(np.arange(len(designs)), index=designs)
+    return out.iloc[np.argsort(order[out["design"].to_numpy()].to_numpy(), kind="stable")] \
+        .reset_index(drop=True)

@@ -14,7 +14,8 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .engine import axis_values, evaluate_block
+from .case import axis_values
+from .engine import evaluate_block
 from .physics import REGISTRY
 from .study import Study
 
@@ -50,7 +51,7 @@ def worst_figures(study: Study, designs: pd.DataFrame) -> dict[str, np.ndarray]:
     current [A] over every condition, with nominal parts."""
     design = {a.key: designs[a.column].to_numpy(float) for a in study.design}
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
-    out = evaluate_block(study, design, cond, with_spec=False)
+    out = evaluate_block(study.case, design, cond, with_spec=False)
     n = len(designs)
 
     def worst(k):

@@ -14,8 +14,11 @@ from typing import Iterator
 
 import numpy as np
 
+from .case import Case, axis_values
+
+__all__ = ["Case", "Variation", "axis_values", "battery_life_h", "design_blocks", "evaluate_block",
+           "flag_text", "keep_freed_heap", "spec_fail"]
 from .physics import FLAG_BITS, REGISTRY, evaluate, flag_names
-from .study import Axis, Study
 
 def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> bool:
     """Ask glibc's allocator to keep freed memory instead of returning the heap's top to the
@@ -35,19 +38,6 @@ TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s", "timeout_s")
 SPEC_MISS = np.uint32(FLAG_BITS["spec-miss"])
 
 
-def axis_values(axes: tuple[Axis, ...], index: np.ndarray) -> dict[str, np.ndarray]:
-    """Values of each axis (by study key) for flat combination numbers `index` (C order)."""
-    if not axes:
-        return {}
-    shape = tuple(len(a.values) for a in axes)
-    subs = np.unravel_index(index, shape)
-    return {a.key: a.values[s] for a, s in zip(axes, subs)}
-
-
-def nominal_conditions(study: Study) -> dict[str, float]:
-    return {a.key: float(a.nominal) for a in study.conditions}
-
-
 @dataclass(frozen=True)
 class Variation:
     """Part and timer deviations of builds or corners, each an array broadcast against
@@ -65,15 +55,16 @@ class Variation:
     stage: np.ndarray | float = 1.0      # output-stage drop relative to its typical curve
 
 
-def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
-                   *, ideal: bool = False, variation: Variation | None = None,
+def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
+                   *, ideal: bool | None = None, variation: Variation | None = None,
                    with_spec: bool = True) -> dict[str, np.ndarray]:
-    """Evaluate designs x [builds x] conditions. Inputs are 1-D arrays per study key; the result
-    arrays have shape (designs, builds, conditions) (builds = 1 without a variation)."""
-    if study.grade_plan and "grade" in design:      # part grades: each with its own parts
-        from .grades import evaluate_graded
-        return evaluate_graded(study, design, conditions, ideal=ideal, variation=variation,
-                               with_spec=with_spec)
+    """Evaluate designs x [builds x] conditions of one case. Inputs are 1-D arrays per study
+    key; the result arrays have shape (designs, builds, conditions) (builds = 1 without a
+    variation). ideal: every non-ideality off (default: the case's)."""
+    ideal = case.ideal if ideal is None else ideal
+    if case.grades and "grade" in design:      # part grades: each with its own parts
+        return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
+                                with_spec=with_spec)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
         kw[k] = np.asarray(v, dtype=float)[:, None, None]
@@ -87,40 +78,62 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
-    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **spreads, **kw)
+    out = evaluate(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
-        vnom = next((a.nominal for a in study.conditions if a.key == "vcc"), study.timer.typical_v)
         dt = kw.get("temperature", 25.0) - 25.0
-        dv = kw.get("vcc", vnom) - vnom
+        dv = kw.get("vcc", case.nominal_vcc_v) - case.nominal_vcc_v
         err = 1.0 + variation.accuracy + variation.drift_per_k * dt + variation.supply_per_v * dv
         for k in TIMING:
             out[k] = out[k] * err
         out["frequency_hz"] = out["frequency_hz"] / err
         if "input_period" in kw:
             out["timeout_margin_s"] = out["timeout_s"] - kw["input_period"]
-    out["battery_life_h"] = battery_life_h(study, out)
-    if with_spec and study.spec:
-        out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(study, out), SPEC_MISS, np.uint32(0))
+    out["battery_life_h"] = battery_life_h(case, out)
+    if with_spec and case.spec:
+        out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(case, out), SPEC_MISS, np.uint32(0))
     return out
 
 
-def battery_life_h(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
+def _evaluate_graded(case: Case, design: dict, conditions: dict, **kw) -> dict[str, np.ndarray]:
+    """evaluate_block for designs of several part grades (design["grade"], counted from 1):
+    each grade evaluated with its own case (its Parts), the results put back in the designs'
+    order."""
+    g = np.asarray(design["grade"]).astype(int) - 1
+    nd = len(g)
+    out: dict[str, np.ndarray] = {}
+    for gi in np.unique(g):
+        sel = g == gi
+        part = {k: np.asarray(v)[sel] for k, v in design.items() if k != "grade"}
+        res = evaluate_block(case.grades[gi], part, conditions, **kw)
+        for k, v in res.items():
+            v = np.asarray(v)
+            if k not in out:
+                out[k] = np.zeros((nd,) + v.shape[1:], dtype=v.dtype)
+            if v.shape[1:] != out[k].shape[1:]:          # a figure not varying along an axis
+                full = np.broadcast_shapes(v.shape[1:], out[k].shape[1:])
+                out[k] = np.broadcast_to(out[k], (nd,) + full).copy()
+                v = np.broadcast_to(v, (v.shape[0],) + full)
+            out[k][sel] = np.broadcast_to(v, (int(sel.sum()),) + out[k].shape[1:])
+    return out
+
+
+def battery_life_h(case: Case, out: dict[str, np.ndarray]) -> np.ndarray:
     """Hours a battery lasts: capacity [A h] x usable share / mean current [A] [derived]. The
     mean current is the period-averaged supply current of a running timer; a monostable is taken
     to wait for its triggers nearly all the time, so its idle current sets the life (pulses add
     their share on top: see the README). NaN without [study] battery_capacity."""
-    if study.battery_capacity_ah is None:
+    if case.battery_capacity_ah is None:
         return np.full(np.shape(out["supply_current_a"]), np.nan)
-    current = out["idle_current_a"] if REGISTRY[study.circuit].waits else out["supply_current_a"]
+    current = out["idle_current_a"] if REGISTRY[case.circuit].waits else out["supply_current_a"]
     with np.errstate(all="ignore"):
-        return study.battery_capacity_ah * study.battery_usable / current
+        return case.battery_capacity_ah * case.battery_usable / current
 
 
-def spec_fail(study: Study, out: dict[str, np.ndarray]) -> np.ndarray:
+def spec_fail(case: Case, out: dict[str, np.ndarray]) -> np.ndarray:
     """True where any [spec] limit is missed (a NaN output misses)."""
     fail = np.zeros(np.shape(out["flag_mask"]), dtype=bool)
-    for s in study.spec:
+    for s in case.spec:
         v = out[s.column]
         fail |= ~((v >= s.lo) & (v <= s.hi))
     return fail
@@ -133,7 +146,7 @@ def flag_text(mask: np.ndarray) -> np.ndarray:
     return labels[inv.ravel()]
 
 
-def design_blocks(study: Study, chunk_points: int = DEFAULT_CHUNK, per_design: int | None = None
+def design_blocks(study, chunk_points: int = DEFAULT_CHUNK, per_design: int | None = None
                   ) -> Iterator[tuple[int, int]]:
     """(start, stop) ranges of design numbers so that each block holds about chunk_points points."""
     per = per_design or study.n_conditions

@@ -10,7 +10,8 @@ import numpy as np
 
 from .analysis import Options, analyse_block, summary_outputs, varied_parts
 from .spreads import extra_spreads
-from .engine import DEFAULT_CHUNK, axis_values, evaluate_block
+from .case import axis_values
+from .engine import DEFAULT_CHUNK, evaluate_block
 from .errors import InputError
 from .study import Study
 
@@ -67,7 +68,7 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     cond = axis_values(study.conditions, np.arange(min(nc, sample)))
     design = axis_values(study.design, np.arange(k))
     t0 = time.perf_counter()
-    evaluate_block(study, design, cond)
+    evaluate_block(study.case, design, cond)
     rate = k * len(next(iter(cond.values()))) / max(time.perf_counter() - t0, 1e-6)
     # the Monte Carlo runs only on designs whose worst case can still meet the spec: the share
     # of the sample that can

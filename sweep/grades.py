@@ -19,9 +19,9 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from . import values as qv
+from .case import Axis, axis_values
 from .errors import InputError
 
 GRADE_KEYS = ("resistor_tolerance", "resistor_series", "capacitor", "capacitor_tolerance")
@@ -163,7 +163,6 @@ def _shown(sub, key: str) -> str:
 
 def design_values(study, index: np.ndarray) -> dict[str, np.ndarray]:
     """Values of each design axis (and "grade", 0-based) for 0-based design indexes."""
-    from .engine import axis_values
     if not study.grade_plan:
         return axis_values(study.design, index)
     index = np.asarray(index)
@@ -186,72 +185,6 @@ def split(study, start: int, stop: int):
         a, b = max(start, g.offset), min(stop, g.offset + g.n_designs)
         if a < b:
             yield g, a - g.offset, b - g.offset
-
-
-def analyse_block(study, start: int, stop: int, opt=None):
-    """analysis.analyse_block over a graded study: each grade's piece runs on its own sub-study,
-    renumbered into the study's numbering, with the grade columns added."""
-    from .analysis import Options, analyse_block as plain
-    opt = opt or Options()
-    if not study.grade_plan:
-        return plain(study, start, stop, opt)
-    frames, points = [], []
-    for g, a, b in split(study, start, stop):
-        df, pts = plain(g.study, a, b, opt)
-        df["design"] = df["design"] + g.offset
-        for k, v in grade_columns(study, df["design"].to_numpy()).items():
-            df[k] = v
-        frames.append(df)
-        if pts is not None:
-            pts["design"] = pts["design"] + g.offset
-            pts.insert(2, "grade", g.index + 1)
-            points.append(pts)
-    return (pd.concat(frames, ignore_index=True),
-            pd.concat(points, ignore_index=True) if points else None)
-
-
-def monte_carlo_block(study, designs: np.ndarray, opt=None) -> pd.DataFrame:
-    """analysis.monte_carlo_block over a graded study, grade by grade, in the order given."""
-    from .analysis import Options, monte_carlo_block as plain
-    opt = opt or Options()
-    designs = np.asarray(designs)
-    if not study.grade_plan:
-        return plain(study, designs, opt)
-    g = grade_of(study, designs)
-    frames = []
-    for gi in np.unique(g):
-        sub = study.grade_plan[gi]
-        df = plain(sub.study, designs[g == gi] - sub.offset, opt)
-        df["design"] = df["design"] + sub.offset
-        frames.append(df)
-    out = pd.concat(frames, ignore_index=True)
-    order = pd.Series(np.arange(len(designs)), index=designs)
-    return out.iloc[np.argsort(order[out["design"].to_numpy()].to_numpy(), kind="stable")] \
-        .reset_index(drop=True)
-
-
-def evaluate_graded(study, design: dict, conditions: dict, **kw) -> dict[str, np.ndarray]:
-    """engine.evaluate_block for designs of several grades: each grade evaluated with its own
-    sub-study (its Parts), the results put back in the designs' order."""
-    from .engine import evaluate_block
-    g = np.asarray(design["grade"]).astype(int) - 1       # the axis counts grades from 1
-    nd = len(g)
-    out: dict[str, np.ndarray] = {}
-    for gi in np.unique(g):
-        sel = g == gi
-        part = {k: np.asarray(v)[sel] for k, v in design.items() if k != "grade"}
-        res = evaluate_block(study.grade_plan[gi].study, part, conditions, **kw)
-        for k, v in res.items():
-            v = np.asarray(v)
-            if k not in out:
-                shape = (nd,) + v.shape[1:]
-                out[k] = np.zeros(shape, dtype=v.dtype)
-            if v.shape[1:] != out[k].shape[1:]:          # a figure not varying along an axis
-                full = np.broadcast_shapes(v.shape[1:], out[k].shape[1:])
-                out[k] = np.broadcast_to(out[k], (nd,) + full).copy()
-                v = np.broadcast_to(v, (v.shape[0],) + full)
-            out[k][sel] = np.broadcast_to(v, (int(sel.sum()),) + out[k].shape[1:])
-    return out
 
 
 # ------------------------------------------------------------------ the plan, at parse time
@@ -299,7 +232,6 @@ def parse_grades(raw_design: dict, fail) -> list[tuple[str, list]]:
 def build_plan(base, grades: list[tuple[str, list]], given_parts: dict, fail) -> tuple:
     """The grade plan of a study: one Grade per combination, each with its sub-study."""
     from .physics import CIRCUIT_PARTS
-    from .study import Axis
     table = load_table()
     plan = []
     offset = 0
@@ -353,5 +285,4 @@ def _label(key: str, value) -> str:
 
 
 def grade_axis(plan) -> "object":
-    from .study import Axis
     return Axis("grade", "grade", np.arange(1, len(plan) + 1, dtype=float), "design")

@@ -20,9 +20,11 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 from . import __version__
-from .analysis import (RANK_KEYS, Options, analyse_block, finish_keys, mc_columns,
+from .analysis import (RANK_KEYS, Options, analyse_block, finish_keys, graded_analyse_block,
+                       graded_monte_carlo_block, mc_columns,
                        monte_carlo_block, points_frame)
-from .engine import DEFAULT_CHUNK, axis_values, design_blocks, evaluate_block
+from .case import axis_values
+from .engine import DEFAULT_CHUNK, design_blocks, evaluate_block
 from .errors import InputError
 from . import grades
 from .reporting import build_report
@@ -125,7 +127,7 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
     o = Options(**{**opt.__dict__, "keep_points": stream})
     table = tmp_dir / f".designs-pass1-{os.getpid()}.parquet"
     keys = []
-    block_fn = grades.analyse_block if study.grade_plan else analyse_block
+    block_fn = graded_analyse_block if study.grade_plan else analyse_block
     results = (mapper(block_fn, study, o, blocks) if mapper else
                (block_fn(study, a, b, o) for a, b in blocks))
     with TableWriter(table, 1 << 16) as designs, TableWriter(points_path, 1 << 18) as points:
@@ -152,7 +154,7 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int = DEFAULT_CHUN
         numbers = np.sort(cand["design"].to_numpy())
         per = max(1, (1 << 20) // max(1, n_mc * study.n_conditions))
         jobs = [numbers[i:i + per] for i in range(0, len(numbers), per)]
-        mc_fn = grades.monte_carlo_block if study.grade_plan else monte_carlo_block
+        mc_fn = graded_monte_carlo_block if study.grade_plan else monte_carlo_block
         parts = (mapper(mc_fn, study, opt, jobs) if mapper and jobs else
                  (mc_fn(study, j, opt) for j in jobs))
         frames = []
@@ -223,7 +225,7 @@ def iter_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: boo
     for s in range(0, len(keep), step):
         d_idx = keep[s:s + step] - 1
         dd = grades.design_values(study, d_idx)
-        out = evaluate_block(study, dd, cond, ideal=ideal)
+        out = evaluate_block(study.case, dd, cond, ideal=ideal)
         df = points_frame(study, d_idx, c_idx, dd, cond, out).head(left)
         left -= len(df)
         yield df

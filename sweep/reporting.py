@@ -8,7 +8,8 @@ import pandas as pd
 from . import values as qv
 from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
                        timer_bands, yield_target)
-from .engine import axis_values, evaluate_block, nominal_conditions
+from .case import axis_values
+from .engine import evaluate_block
 from .physics import REGISTRY
 from .report import CircuitText, Report, SpecRow
 from .study import Study, study_rows
@@ -329,9 +330,9 @@ def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     """Top designs with the engine's ideal and realistic figures at the nominal condition."""
     top = designs.head(study.top)
     design = {a.key: top[a.column].to_numpy() for a in study.design}
-    nomc = {k: np.array([v]) for k, v in nominal_conditions(study).items()}
-    ideal = evaluate_block(study, design, nomc, ideal=True, with_spec=False)
-    real = evaluate_block(study, design, nomc, ideal=False, with_spec=False)
+    nomc = {k: np.array([v]) for k, v in study.case.nominal.items()}
+    ideal = evaluate_block(study.case, design, nomc, ideal=True, with_spec=False)
+    real = evaluate_block(study.case, design, nomc, ideal=False, with_spec=False)
     df = pd.DataFrame({"rank": top["rank"].to_numpy(), "design": top["design"].to_numpy()})
     if "verdict" in top:
         df["verdict"] = top["verdict"].to_numpy()
@@ -340,7 +341,7 @@ def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     for k in ("vcc", "control_voltage"):
         col = AXES[k][0]
         if col not in df:
-            df[col] = nominal_conditions(study).get(k, study.timer.typical_v if k == "vcc" else np.nan)
+            df[col] = study.case.nominal.get(k, study.timer.typical_v if k == "vcc" else np.nan)
     df["diode_drop_v"] = 0.0   # ideal mode: the textbook form without the diode drop [book]
     for m in main_outputs(study.circuit):
         df[f"ideal_{m}"] = ideal[m][:, 0, 0]
@@ -361,7 +362,7 @@ def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int =
     if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
         cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
     var = mc_variation(study, mc_draws(study, n), slice(None), cond, ideal)
-    v = evaluate_block(study, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]]
+    v = evaluate_block(study.case, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]]
     v = np.broadcast_to(v, (1, n, len(next(iter(cond.values()))))).ravel()
     if len(v) > cap:
         v = v[np.linspace(0, len(v) - 1, cap).astype(int)]
@@ -389,9 +390,9 @@ def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.D
     rows = []
     for v in vccs:
         cond = {"vcc": np.full(len(temps), v), "temperature": temps}
-        for k, val in nominal_conditions(study).items():
+        for k, val in study.case.nominal.items():
             cond.setdefault(k, np.full(len(temps), val))
-        out = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)[main[0]][:, 0, :]
+        out = evaluate_block(study.case, design, cond, ideal=ideal, with_spec=False)[main[0]][:, 0, :]
         # the chip's own drift and supply sensitivity, of unknown sign: a band around each line,
         # typical (one sigma as read) and maximum [ds-bip], [ds-cmos]
         bands = {}

@@ -39,7 +39,7 @@ def evaluate_point(options: dict[str, str], ideal: bool = False) -> dict:
         raise InputError("", option_name(e.key) if e.key else "", e.problem) from None
     design = {a.key: a.values for a in study.design}
     cond = {a.key: a.values for a in study.conditions}
-    out = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)
+    out = evaluate_block(study.case, design, cond, ideal=ideal, with_spec=False)
     row: dict = {"circuit": study.circuit, "timer": study.timer.name}
     for a in study.axes:
         row[a.column] = float(a.values[0])

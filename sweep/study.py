@@ -23,6 +23,7 @@ from .files import MAX_TEXT, read_bytes_limited
 from .models import load_timer
 from .physics import CIRCUITS, REGISTRY, TIMING_PARTS, Load, Parts, TimerModel, capacitor_named
 from .physics.parts import DIODES, CAPACITOR_ALIASES
+from .case import Axis, Case, SpecLimit
 from .variables import AXES, VARIABLES
 
 # ---- the schema: section -> key -> (unit for parse_quantity, what it is) ----
@@ -91,36 +92,6 @@ MAX_STEPS = 100_000
 MAX_POINTS_PER_AXIS = 100_000
 
 
-SERIES_ORDER = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
-
-
-@dataclass(frozen=True)
-class Axis:
-    key: str                 # study key, e.g. "ra"
-    column: str              # machine column, e.g. "ra_ohm"
-    values: np.ndarray       # SI units, ascending unless the user listed them otherwise
-    role: str                # "design" | "condition"
-    series: str | None = None
-    nominal: float | None = None
-
-    series_rank: np.ndarray = field(init=False, repr=False, compare=False)
-
-    def __post_init__(self):
-        # for each value, the coarsest IEC 60063 series holding it: 0 = E3 ... 6 = E192, 7 = none
-        rank = qv.series_rank(self.values) if self.key in ("ra", "rb", "r", "c") else \
-            np.full(len(self.values), len(SERIES_ORDER))
-        object.__setattr__(self, "series_rank", rank)
-
-
-@dataclass(frozen=True)
-class SpecLimit:
-    key: str
-    column: str
-    lo: float
-    hi: float
-    target: float | None = None
-
-
 @dataclass(frozen=True)
 class Study:
     path: str
@@ -146,6 +117,16 @@ class Study:
     battery_capacity_ah: float | None = None   # [study] battery_capacity [A h]
     battery_usable: float = 1.0          # [study] battery_usable, a fraction
     grade_plan: tuple = ()               # part grades as design axes (sweep.grades), else ()
+    case: Case = field(init=False, repr=False, compare=False)
+
+    def __post_init__(self):
+        # the engine's view of the study, built once: no text, no axes
+        nominal = {a.key: float(a.nominal) for a in self.conditions}
+        case = Case(circuit=self.circuit, timer=self.timer, parts=self.parts, load=self.load,
+                    spec=self.spec, nominal=nominal, battery_capacity_ah=self.battery_capacity_ah,
+                    battery_usable=self.battery_usable,
+                    grades=tuple(g.study.case for g in self.grade_plan))
+        object.__setattr__(self, "case", case)
 
     @property
     def axes(self) -> tuple[Axis, ...]:

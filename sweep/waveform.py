@@ -20,7 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .engine import axis_values, evaluate_block, nominal_conditions
+from .case import axis_values
+from .engine import evaluate_block
 from .physics import REGISTRY
 from .physics.traces import Probe
 from .study import Study
@@ -43,10 +44,10 @@ def worst_condition(study: Study, design: dict[str, np.ndarray], ideal: bool) ->
     value at the nominal condition, with nominal parts; None where it never times."""
     col = REGISTRY[study.circuit].cycle_output
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
-    v = np.broadcast_to(evaluate_block(study, design, cond, ideal=ideal, with_spec=False)[col],
+    v = np.broadcast_to(evaluate_block(study.case, design, cond, ideal=ideal, with_spec=False)[col],
                         (1, 1, study.n_conditions))[0, 0]
-    nomc = {k: np.array([x]) for k, x in nominal_conditions(study).items()}
-    v0 = float(np.ravel(evaluate_block(study, design, nomc, ideal=ideal, with_spec=False)[col])[0])
+    nomc = {k: np.array([x]) for k, x in study.case.nominal.items()}
+    v0 = float(np.ravel(evaluate_block(study.case, design, nomc, ideal=ideal, with_spec=False)[col])[0])
     with np.errstate(all="ignore"):
         dev = np.abs(np.log(v / v0))
     if not np.isfinite(v0) or not np.isfinite(dev).any():
@@ -55,7 +56,7 @@ def worst_condition(study: Study, design: dict[str, np.ndarray], ideal: bool) ->
 
 
 def _point(study: Study, design, cond, ideal) -> dict[str, float]:
-    out = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)
+    out = evaluate_block(study.case, design, cond, ideal=ideal, with_spec=False)
     return {k: float(np.ravel(v)[0]) for k, v in out.items()}
 
 
@@ -92,7 +93,7 @@ def pick_waveform(study: Study, designs: pd.DataFrame, ideal: bool = False) -> T
     worst = worst_condition(study, design, ideal)
     if worst is None:
         return None
-    nomc = {k: np.array([x]) for k, x in nominal_conditions(study).items()}
+    nomc = {k: np.array([x]) for k, x in study.case.nominal.items()}
     wc = {k: v[[worst]] for k, v in axis_values(study.conditions, np.arange(study.n_conditions)).items()}
     frames, thresholds, described = [], {}, {}
     for label, cond in ((NOMINAL, nomc), (WORST, wc)):

@@ -361,7 +361,7 @@ def test_monte_carlo_builds_stay_inside_the_brute_force_worst_case():
         df = analyse_designs(s, 0, 40, Options(monte_carlo=0))
         design = {a.key: df[a.column].to_numpy() for a in s.design}
         cond = axis_values(s.conditions, np.arange(s.n_conditions))
-        out = evaluate_block(s, design, cond, variation=mc_variation(s, mc_draws(s, 3000), slice(None)),
+        out = evaluate_block(s.case, design, cond, variation=mc_variation(s, mc_draws(s, 3000), slice(None)),
                              with_spec=False)
         for o in ("frequency_hz", "pulse_width_s", "supply_current_a"):
             if f"{o}_wc_min" not in df:
@@ -393,11 +393,11 @@ def test_latch_monte_carlo_covers_every_condition():
     from sweep.engine import Variation, axis_values, evaluate_block
     cond = axis_values(s.conditions, np.arange(s.n_conditions))
     ratio = s.timer.quiescent_max_ratio
-    lo = evaluate_block(s, {}, cond, with_spec=False, variation=Variation({}, iq=1 / ratio))
-    hi = evaluate_block(s, {}, cond, with_spec=False, variation=Variation({}, iq=ratio))
+    lo = evaluate_block(s.case, {}, cond, with_spec=False, variation=Variation({}, iq=1 / ratio))
+    hi = evaluate_block(s.case, {}, cond, with_spec=False, variation=Variation({}, iq=ratio))
     mean = df["supply_current_a_mc_mean"].iloc[0]
     assert lo["supply_current_a"].mean() < mean < hi["supply_current_a"].mean()
-    nom = evaluate_block(s, {}, cond, with_spec=False)["supply_current_a"].ravel()
+    nom = evaluate_block(s.case, {}, cond, with_spec=False)["supply_current_a"].ravel()
     assert df["supply_current_a_mc_std"].iloc[0] > nom.std() * 1.01
 
 

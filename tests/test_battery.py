@@ -51,14 +51,14 @@ def test_battery_life_is_usable_capacity_over_the_mean_current():
     assert s.spec[0].lo == pytest.approx(20 * 24)     # "20d" is 480 h
     d = axis_values(s.design, np.arange(s.n_designs))
     c = axis_values(s.conditions, np.arange(s.n_conditions))
-    out = evaluate_block(s, d, c)
+    out = evaluate_block(s.case, d, c)
     np.testing.assert_allclose(out["battery_life_h"], 0.220 * 0.8 / out["supply_current_a"], rtol=1e-15)
 
 
 def test_the_hand_figure_of_a_coin_cell_blinker():
     # 220 mAh at 0.277 mA is 794 h, about 33 days, by hand [derived: 220 / 0.277]
     s = parse_study(BLINKER.replace('battery_usable = "80%"\n', ""))
-    life = battery_life_h(s, {"supply_current_a": np.array([0.277e-3]),
+    life = battery_life_h(s.case, {"supply_current_a": np.array([0.277e-3]),
                               "idle_current_a": np.array([np.nan])})
     assert life[0] == pytest.approx(794.2, abs=0.1) and life[0] / 24 == pytest.approx(33.1, abs=0.05)
 
@@ -72,7 +72,7 @@ battery_capacity = 2.4
 r = "100k"
 c = "10u"
 """)
-    out = evaluate_block(s, {"r": np.array([100e3]), "c": np.array([10e-6])}, {"vcc": np.array([9.0]),
+    out = evaluate_block(s.case, {"r": np.array([100e3]), "c": np.array([10e-6])}, {"vcc": np.array([9.0]),
                          "temperature": np.array([25.0])})
     life, idle = out["battery_life_h"].item(), out["idle_current_a"].item()
     assert life == pytest.approx(2.4 / idle, rel=1e-15)

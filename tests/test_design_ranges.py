@@ -72,7 +72,7 @@ def test_symmetric_ranges_hold_the_rail_to_rail_solution(trial):
 
 @pytest.mark.parametrize("trial", range(6))
 def test_diode_ranges_hold_the_solution_for_any_drop_in_the_bracket(trial):
-    # [derived from the RC law, DOMAIN section 2] tH = RA C ln((V - Vd - Vc/2)/(V - Vd - Vc)),
+    # [derived from the RC law] tH = RA C ln((V - Vd - Vc/2)/(V - Vd - Vc)),
     # tL = ln2 RB C; a small-signal silicon diode drops 0.3-0.7 V [cp]
     f = 10 ** RNG.uniform(-0.5, 3)
     vd = RNG.uniform(0.3, 0.7)

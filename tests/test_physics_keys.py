@@ -51,7 +51,7 @@ def test_diode_keys_reach_the_model():
                         ("own", 'diode_saturation_current = "2.5n"\ndiode_ideality = 1.75')):
         st = parse_study(DIODE_STUDY.format(parts=parts), "d.toml")
         from sweep.engine import evaluate_block
-        out = evaluate_block(st, {a.key: a.values for a in st.design},
+        out = evaluate_block(st.case, {a.key: a.values for a in st.design},
                              {a.key: a.values for a in st.conditions}, with_spec=False)
         times[name] = float(out["high_time_s"].ravel()[0])
     assert times["schottky"] < times["silicon"] < times["fixed"]

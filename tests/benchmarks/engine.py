@@ -105,7 +105,7 @@ def measure(loop_points: int = 30_000, ode_points: int = 40) -> dict:
     f_sum = 0.0
     cond = axis_values(st.conditions, np.arange(st.n_conditions))
     for a, b in design_blocks(st):
-        out = evaluate_block(st, axis_values(st.design, np.arange(a, b)), cond, with_spec=False)
+        out = evaluate_block(st.case, axis_values(st.design, np.arange(a, b)), cond, with_spec=False)
         f_sum += float(np.nansum(out["frequency_hz"]))
     t_engine = time.perf_counter() - t0
     # plain loop over the first points, same model, same run
@@ -121,7 +121,7 @@ def measure(loop_points: int = 30_000, ode_points: int = 40) -> dict:
     t_loop = time.perf_counter() - t0
     loop_points = d_per * st.n_conditions
     # the loop must compute the same numbers, or the ratio means nothing
-    ref = evaluate_block(st, design, cond, with_spec=False)["frequency_hz"][:, 0, :].ravel()
+    ref = evaluate_block(st.case, design, cond, with_spec=False)["frequency_hz"][:, 0, :].ravel()
     assert np.allclose([g[0] for g in got], ref, rtol=1e-9), "plain loop disagrees with the engine"
     eng_rate, loop_rate = n / t_engine, loop_points / t_loop
     ode_rate = _ode_rate(st, design, cond, ode_points)
