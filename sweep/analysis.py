@@ -39,6 +39,12 @@ def main_outputs(circuit: str) -> list[str]:
     return list(REGISTRY[circuit].main_outputs)
 
 
+def chart_output(circuit: str) -> str:
+    """The output the charts follow: the main timing, or the supply current of a latch."""
+    main = main_outputs(circuit)
+    return main[0] if main else "supply_current_a"
+
+
 def summary_outputs(study: Study) -> list[str]:
     circ = REGISTRY[study.circuit]
     cols = (list(circ.main_outputs) + list(circ.after_main) + [s.column for s in study.spec]

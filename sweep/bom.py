@@ -14,8 +14,6 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .case import axis_values
-from .engine import evaluate_block
 from .physics import REGISTRY
 from .study import Study
 
@@ -46,22 +44,9 @@ def _pct(x: float) -> str:
     return f"{x * 100:.0f} %" if np.isfinite(x) else "-"
 
 
-def worst_figures(study: Study, designs: pd.DataFrame) -> dict[str, np.ndarray]:
-    """Per design (rows of `designs`): the largest timing-resistor dissipation [W] and load
-    current [A] over every condition, with nominal parts."""
-    design = {a.key: designs[a.column].to_numpy(float) for a in study.design}
-    cond = axis_values(study.conditions, np.arange(study.n_conditions))
-    out = evaluate_block(study.case, design, cond, with_spec=False)
-    n = len(designs)
-
-    def worst(k):
-        return np.nanmax(np.broadcast_to(out[k], (n,) + out[k].shape[1:]).reshape(n, -1), axis=1)
-    return {"ra_power_w": worst("ra_power_w"), "output_current_a": worst("output_current_a")}
-
-
-def bill_of_materials(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
+def bill_of_materials(study: Study, designs: pd.DataFrame, worst: dict[str, np.ndarray]) -> pd.DataFrame:
     """Every part of the top designs (study.top, in rank order), one row per part, with the
-    columns PARTS_COLUMNS."""
+    columns PARTS_COLUMNS; worst: their worst figures over the conditions (sweep.pick)."""
     top = designs.head(study.top)
     if top.empty:
         return pd.DataFrame(columns=PARTS_COLUMNS)
@@ -69,7 +54,6 @@ def bill_of_materials(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
     timer, load = study.timer, study.load
     vcc_axis = next((a for a in study.axes if a.key == "vcc"), None)
     vcc_max = float(np.max(vcc_axis.values)) if vcc_axis is not None else timer.typical_v
-    worst = worst_figures(study, top)
     forced_cv = any(a.key == "control_voltage" for a in study.axes)
     rows = []
     for i, (_, d) in enumerate(top.iterrows()):

@@ -27,7 +27,9 @@ from .case import axis_values
 from .engine import DEFAULT_CHUNK, design_blocks, evaluate_block
 from .errors import InputError
 from . import grades
+from .pick import pick_figures
 from .reporting import build_report
+from .variables import OUTPUTS
 from .spreads import extra_spreads, varied_parts
 from .study import Study
 
@@ -239,6 +241,23 @@ def points_of(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool)
     return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
 
 
+def stored_points(study: Study, path: Path, design_numbers: np.ndarray, limit: int
+                  ) -> pd.DataFrame | None:
+    """The rows of the given designs (in this order) up to `limit`, read back from the points
+    file the run wrote, so no point is evaluated twice; None where the file does not hold
+    every one of them."""
+    keep = [int(d) for d in design_numbers]
+    df = pq.read_table(path, filters=[("design", "in", keep)]).to_pandas()
+    columns = (["design", "condition"] + [a.column for a in study.design + study.conditions]
+               + OUTPUTS + ["flags", "ok"])
+    if set(df["design"].unique()) != set(keep) or set(df.columns) != set(columns):
+        return None
+    df = df[columns]
+    order = {d: i for i, d in enumerate(keep)}
+    df = df.iloc[np.argsort(df["design"].map(order).to_numpy(), kind="stable")]
+    return df.head(limit).reset_index(drop=True)
+
+
 def write_points(study: Study, design_numbers: np.ndarray, limit: int, ideal: bool, path: Path) -> int:
     """Stream the points of the given designs to parquet in row groups; returns the row count."""
     with TableWriter(path) as out:
@@ -405,7 +424,9 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
         # the sheet holds the points of the top designs (the parquet file holds every point):
         # writing every point's cells was most of a small study's run time [measured]
         sheet_designs = order[:max(1, study.top)]
-        wb_pts = points_of(study, sheet_designs, workbook_points, ideal)
+        wb_pts = stored_points(study, tmp["points"], sheet_designs, workbook_points) if streamed else None
+        if wb_pts is None:
+            wb_pts = points_of(study, sheet_designs, workbook_points, ideal)
         rank_of = dict(zip(order, ranked["rank"]))
         wb_pts.insert(0, "rank", wb_pts["design"].map(rank_of))
         wb_pts.insert(2, "verdict", wb_pts["design"].map(dict(zip(order, ranked["verdict"]))))
@@ -424,7 +445,8 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
                 "points_in_workbook": len(wb_pts), "designs_in_workbook": len(ranked),
                 "monte_carlo_designs": len(an.mc), "screened": an.screened,
                 "seconds_analysis": round(t_an, 3)}
-        report = build_report(study, ranked, wb_pts, note, ideal, info)
+        report = build_report(study, ranked, wb_pts, note, ideal, info,
+                              pick_figures(study, ranked, ideal))
         write_workbook(tmp["workbook"], report)
         write_page(tmp["page"], report)
         write_tables(report, tmp["bom"], tmp["waveform"])

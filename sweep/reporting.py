@@ -6,16 +6,14 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .analysis import (VERDICTS, main_outputs, mc_draws, mc_variation, spread_reading,
-                       timer_bands, yield_target)
-from .case import axis_values
-from .engine import evaluate_block
+from .analysis import VERDICTS, chart_output, main_outputs, spread_reading, yield_target
 from .physics import REGISTRY
+from .bom import bill_of_materials
+from .pick import PickFigures
 from .report import CircuitText, Report, SpecRow
 from .study import Study, study_rows
 from .grades import TABLE as GRADE_TABLE, grade_values, study_for
 from .variables import AXES, VARIABLES, eng
-from .waveform import pick_waveform
 
 REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C", "load_resistance": "RL"}
 UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
@@ -313,97 +311,11 @@ NOTES = [
 ]
 
 
-def parts_list(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
-    """The Parts sheet: the full bill of materials of the top designs (sweep.bom)."""
-    from .bom import bill_of_materials
-    return bill_of_materials(study, designs)
-
-
 def _part_note(study: Study, key: str, value: float) -> str:
     """The uncommon-part note of one part value, or ""."""
     from .analysis import uncommon_parts
     col = AXES[key][0]
     return str(uncommon_parts(study, pd.DataFrame({col: [value]}))[0])
-
-
-def check_table(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
-    """Top designs with the engine's ideal and realistic figures at the nominal condition."""
-    top = designs.head(study.top)
-    design = {a.key: top[a.column].to_numpy() for a in study.design}
-    nomc = {k: np.array([v]) for k, v in study.case.nominal.items()}
-    ideal = evaluate_block(study.case, design, nomc, ideal=True, with_spec=False)
-    real = evaluate_block(study.case, design, nomc, ideal=False, with_spec=False)
-    df = pd.DataFrame({"rank": top["rank"].to_numpy(), "design": top["design"].to_numpy()})
-    if "verdict" in top:
-        df["verdict"] = top["verdict"].to_numpy()
-    for a in study.design:
-        df[a.column] = top[a.column].to_numpy()
-    for k in ("vcc", "control_voltage"):
-        col = AXES[k][0]
-        if col not in df:
-            df[col] = study.case.nominal.get(k, study.timer.typical_v if k == "vcc" else np.nan)
-    df["diode_drop_v"] = 0.0   # ideal mode: the textbook form without the diode drop [book]
-    for m in main_outputs(study.circuit):
-        df[f"ideal_{m}"] = ideal[m][:, 0, 0]
-        df[f"real_{m}"] = real[m][:, 0, 0]
-    return df
-
-
-def pick_mc_samples(study: Study, designs: pd.DataFrame, ideal: bool, cap: int = 20000) -> pd.DataFrame | None:
-    main = [chart_output(study)]
-    if study.monte_carlo == 0:
-        return None
-    best = designs.iloc[0]
-    study = study_for(study, int(best["design"]))       # its grade's parts and tolerances
-    design = {a.key: np.array([best[a.column]]) for a in study.design}
-    cond = axis_values(study.conditions, np.arange(study.n_conditions))
-    n = study.monte_carlo
-    nc = study.n_conditions
-    if n * nc > 4_000_000:       # keep memory small: a subset of conditions is enough for a picture
-        cond = {k: v[:: max(1, nc * n // 4_000_000)] for k, v in cond.items()}
-    var = mc_variation(study, mc_draws(study, n), slice(None), cond, ideal)
-    v = evaluate_block(study.case, design, cond, ideal=ideal, variation=var, with_spec=False)[main[0]]
-    v = np.broadcast_to(v, (1, n, len(next(iter(cond.values()))))).ravel()
-    if len(v) > cap:
-        v = v[np.linspace(0, len(v) - 1, cap).astype(int)]
-    return pd.DataFrame({"value": v})
-
-
-def chart_output(study: Study) -> str:
-    """The output the charts follow: the main timing, or the supply current of a latch."""
-    main = main_outputs(study.circuit)
-    return main[0] if main else "supply_current_a"
-
-
-def temperature_curves(study: Study, designs: pd.DataFrame, ideal: bool) -> pd.DataFrame:
-    main = [chart_output(study)]
-    top = designs.head(5)
-    t_axis = next((a for a in study.conditions + study.design if a.key == "temperature"), None)
-    lo, hi = (float(t_axis.values.min()), float(t_axis.values.max())) if t_axis is not None else (25.0, 25.0)
-    if hi - lo < 1:
-        lo, hi = lo - 20, hi + 20
-    temps = np.linspace(lo, hi, 27)
-    v_axis = next(a for a in study.conditions + study.design if a.key == "vcc")
-    vccs = np.unique([v_axis.values.min(), v_axis.nominal or np.median(v_axis.values), v_axis.values.max()])
-    design = {a.key: top[a.column].to_numpy() for a in study.design}
-    v_nom = float(v_axis.nominal) if v_axis.nominal is not None else float(np.median(v_axis.values))
-    rows = []
-    for v in vccs:
-        cond = {"vcc": np.full(len(temps), v), "temperature": temps}
-        for k, val in study.case.nominal.items():
-            cond.setdefault(k, np.full(len(temps), val))
-        out = evaluate_block(study.case, design, cond, ideal=ideal, with_spec=False)[main[0]][:, 0, :]
-        # the chip's own drift and supply sensitivity, of unknown sign: a band around each line,
-        # typical (one sigma as read) and maximum [ds-bip], [ds-cmos]
-        bands = {}
-        for which in ("typ", "max"):
-            _acc, drift, sens = (0.0, 0.0, 0.0) if ideal else timer_bands(study, which)
-            scale = 1.0 / study.typical_sigma if which == "typ" else 1.0
-            bands[which] = scale * (drift * np.abs(temps - 25.0) + sens * abs(v - v_nom))
-        for i, r in enumerate(top["rank"].to_numpy()):
-            rows.append(pd.DataFrame({"rank": int(r), "vcc_v": v, "temperature_c": temps, "value": out[i],
-                                      "drift_typ": bands["typ"], "drift_max": bands["max"]}))
-    return pd.concat(rows, ignore_index=True)
 
 
 STATS = ("nom", "min", "max", "wc_min", "wc_max", "mc_mean", "mc_std")
@@ -476,7 +388,9 @@ def grade_lines(study: Study, grades: pd.DataFrame) -> list[tuple[str, str]]:
 
 
 def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, points_note: str,
-                 ideal: bool, run_info: dict) -> Report:
+                 ideal: bool, run_info: dict, figures: PickFigures) -> Report:
+    """The Report of a finished analysis: ranked designs, the points of the top ones and the
+    figures of the pick (sweep.pick), shaped into tables and text; nothing is evaluated here."""
     lines, meets = summary_lines(study, designs, run_info.get("screened", {}))
     grades = grade_table(study, designs)
     if grades is not None:
@@ -492,20 +406,20 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
                     yield_target=yield_target(study), typical_sigma=study.typical_sigma,
                     spreads=spread_reading(study))
     return Report(
-        name=study.name, title=study.title, circuit=study.circuit, circuit_text=circuit_text(study.circuit, study.parts.diode_drop_v),
-        timer_name=study.timer.name,
-        ideal=ideal, main_output=chart_output(study),
+        name=study.name, title=study.title, circuit=study.circuit,
+        circuit_text=circuit_text(study.circuit, study.parts.diode_drop_v), timer_name=study.timer.name,
+        ideal=ideal, main_output=chart_output(study.circuit),
         part_columns=[a.column for a in study.design],
         condition_columns=[a.column for a in study.conditions],
         summary=lines, cautions=cautions(study, designs), points=points,
         points_total=study.n_points, points_note=points_note,
         designs=designs_for_people(study, designs),
-        parts=parts_list(study, designs), check=check_table(study, designs),
+        parts=bill_of_materials(study, designs, figures.worst), check=figures.check,
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
         study_rows=study_rows(study),
         notes=NOTES + [("Timer spreads", spread_reading(study))]
         + ([("Part grades", GRADE_NOTE)] if study.grade_plan else [])
         + ([("Notes from the study", study.notes)] if study.notes else []),
-        run_info=run_info, mc_samples=pick_mc_samples(study, designs, ideal),
-        temperature_curves=temperature_curves(study, designs, ideal), verdicts=dict(VERDICTS),
-        waveform=pick_waveform(study, designs, ideal), grades=grades)
+        run_info=run_info, mc_samples=figures.mc_samples,
+        temperature_curves=figures.temperature_curves, verdicts=dict(VERDICTS),
+        waveform=figures.waveform, grades=grades)

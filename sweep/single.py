@@ -5,7 +5,8 @@ import numpy as np
 
 from .engine import evaluate_block, flag_text
 from .errors import InputError
-from .study import parse_study, toml_inline
+from .study import parse_study
+from .tomltext import toml_inline
 from .variables import OUTPUTS
 
 SECTION_OF = {"circuit": ("study", "circuit"), "timer": ("study", "timer"),

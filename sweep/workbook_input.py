@@ -12,6 +12,7 @@ from pathlib import Path
 
 from .errors import InputError
 from .files import read_bytes_limited
+from .tomltext import rows_to_toml
 
 MAX_FILE = 50 * 2**20            # bytes on disk
 MAX_UNPACKED = 200 * 2**20       # bytes once unzipped
@@ -58,7 +59,6 @@ def read_study_sheet(path: Path) -> tuple[str, dict[int, int]]:
     if not DEFUSEDXML:      # openpyxl parses through defusedxml whenever it is installed
         raise InputError(str(path), "", "refusing to read a workbook without defusedxml installed")
 
-    from .study import rows_to_toml
     data = _guard(path)
     fname = str(path)
     try:

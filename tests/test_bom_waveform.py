@@ -113,8 +113,9 @@ resistance = "400"
 kind = "relay"
 """)
     from sweep.bom import bill_of_materials
+    from sweep.pick import worst_figures
     d = pd.DataFrame({"rank": [1], "design": [1], "r_ohm": [100e3], "c_f": [10e-6], "verdict": ["pass"]})
-    bom = bill_of_materials(s, d)
+    bom = bill_of_materials(s, d, worst_figures(s, d.head(s.top)))
     assert {"K1", "D2"} <= set(bom["ref"]) and "RL" not in set(bom["ref"])
     assert "flyback" in bom.loc[bom["ref"] == "D2", "value_text"].iloc[0]
 

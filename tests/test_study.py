@@ -6,7 +6,8 @@ import pytest
 import eseries
 
 from sweep.errors import InputError
-from sweep.study import load_study, parse_study, rows_to_toml, study_rows
+from sweep.study import load_study, parse_study, study_rows
+from sweep.tomltext import rows_to_toml
 
 BASE = """
 [study]

@@ -48,7 +48,7 @@ def load_timer(spec: str, base_dir: Path | None = None, study_file: str = "") ->
             raise InputError(study_file, "study.timer", f"timer-model file {str(path)!r} not found")
     fname = str(path)
     from ..files import MAX_TEXT, read_bytes_limited
-    from ..study import check_toml_text
+    from ..tomltext import check_toml_text
     try:
         text = read_bytes_limited(path, MAX_TEXT, "a timer-model file").decode("utf-8")
         check_toml_text(text, fname)
