@@ -14,7 +14,8 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .physics import REGISTRY
+from .physics import REGISTRY, TIMING_PARTS
+from .variables import REFS
 from .study import Study
 
 #: the columns of bom.csv, in order
@@ -29,7 +30,6 @@ POWER_RATINGS = (0.063, 0.1, 0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0)
 VOLTAGE_RATINGS = (6.3, 10.0, 16.0, 25.0, 35.0, 50.0, 63.0, 100.0)
 DECOUPLING_SUPPLY_F = 100e-9     # across the supply pins, as close as possible [cp]
 DECOUPLING_CONTROL_F = 10e-9     # control pin to ground, against noise on the thresholds [cp]
-REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C"}
 
 
 def next_rating(need: float, ratings: tuple[float, ...]) -> float:
@@ -80,7 +80,7 @@ def bill_of_materials(study: Study, designs: pd.DataFrame, worst: dict[str, np.n
 
         # timing parts [book: the circuit's topology]
         for a in study.design:
-            if a.key not in REFS:
+            if a.key not in TIMING_PARTS:
                 continue
             v = float(d[a.column])
             if a.key == "c":

@@ -46,7 +46,6 @@ class Report:
     ideal: bool                      # --ideal run
     main_output: str | None          # "frequency_hz", "pulse_width_s", "timeout_s"; "supply_current_a" for a latch
     part_columns: list[str]          # design part columns, e.g. ["ra_ohm", "rb_ohm", "c_f"]
-    condition_columns: list[str]     # e.g. ["vcc_v", "temperature_c"]
     summary: list[tuple[str, str]]   # (label, text) lines: the pick, margins, yield, verdict
     cautions: list[str]              # safety and model cautions, shown on Summary and Notes
     points: pd.DataFrame             # design x condition rows (capped), machine columns

@@ -7,16 +7,14 @@ import pandas as pd
 
 from . import values as qv
 from .analysis import VERDICTS, chart_output, main_outputs, spread_reading, yield_target
-from .physics import REGISTRY
+from .physics import FLAGS, REGISTRY
 from .bom import bill_of_materials
 from .pick import PickFigures
 from .report import CircuitText, Report, SpecRow
 from .study import Study, study_rows
 from .grades import TABLE as GRADE_TABLE, grade_values, study_for
-from .variables import AXES, VARIABLES, eng
+from .variables import AXES, FLAG_TEXT, REFS, STATS as STAT_SUFFIXES, VARIABLES, eng
 
-REFS = {"ra": "RA", "rb": "RB", "r": "R", "c": "C", "load_resistance": "RL"}
-UNIT_OF = {"ohm": "Ω", "F": "F", "V": "V", "C": "°C"}
 
 
 def design_text(study: Study, row) -> str:
@@ -318,7 +316,9 @@ def _part_note(study: Study, key: str, value: float) -> str:
     return str(uncommon_parts(study, pd.DataFrame({col: [value]}))[0])
 
 
-STATS = ("nom", "min", "max", "wc_min", "wc_max", "mc_mean", "mc_std")
+STATS = tuple(suffix[1:] for suffix, _word in STAT_SUFFIXES)
+#: the Notes sheet's meaning of every flag code, in the stable order (sweep.physics.FLAGS)
+FLAG_NOTES = [(f"Flag {code}", FLAG_TEXT[code]) for code in FLAGS]
 
 
 def designs_for_people(study: Study, designs: pd.DataFrame) -> pd.DataFrame:
@@ -410,14 +410,13 @@ def build_report(study: Study, designs: pd.DataFrame, points: pd.DataFrame, poin
         circuit_text=circuit_text(study.circuit, study.parts.diode_drop_v), timer_name=study.timer.name,
         ideal=ideal, main_output=chart_output(study.circuit),
         part_columns=[a.column for a in study.design],
-        condition_columns=[a.column for a in study.conditions],
         summary=lines, cautions=cautions(study, designs), points=points,
         points_total=study.n_points, points_note=points_note,
         designs=designs_for_people(study, designs),
         parts=bill_of_materials(study, designs, figures.worst), check=figures.check,
         spec=[SpecRow(s.key, s.column, s.lo, s.hi, s.target) for s in study.spec],
         study_rows=study_rows(study),
-        notes=NOTES + [("Timer spreads", spread_reading(study))]
+        notes=NOTES + [("Timer spreads", spread_reading(study))] + FLAG_NOTES
         + ([("Part grades", GRADE_NOTE)] if study.grade_plan else [])
         + ([("Notes from the study", study.notes)] if study.notes else []),
         run_info=run_info, mc_samples=figures.mc_samples,

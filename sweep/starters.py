@@ -4,7 +4,7 @@ from __future__ import annotations
 import json
 
 from .errors import InputError
-from .physics import CIRCUITS, REGISTRY
+from .physics import CAPACITORS, CIRCUITS, REGISTRY
 
 _HEAD = '''# timer-sweep study: {what}
 # Quantities take SI prefixes ("4.7k", "100n", "2.2u") or IEC 60062 RKM codes ("4k7", "4n7");
@@ -27,7 +27,7 @@ temperature = {{ min = -10, max = 50, steps = 3, nominal = 25 }}
 [parts]
 # resistor_tolerance = "1%"     # default: implied by the series (E12 10 %, E24 5 %, E96 1 %)
 resistor_tempco = "100ppm"      # per kelvin
-capacitor = "X7R"               # C0G | X7R | X5R | Y5V | polypropylene | polyester | electrolytic | tantalum
+capacitor = "X7R"               # {capacitors}
 capacitor_tolerance = "10%"
 capacitor_voltage = "16V"       # rating, for DC-bias loss and leakage
 
@@ -51,7 +51,7 @@ def starter_text(circuit: str) -> str:
     own = REGISTRY[circuit].starter
     return (_HEAD.format(what=f"{'an' if circuit[0] in 'aeiou' else 'a'} {circuit} starter (edit every value)", title=f"My {circuit} timer",
                          circuit=circuit)
-            + own.design.format() + _TAIL.format(spec=own.spec.format()).replace(
+            + own.design.format() + _TAIL.format(spec=own.spec.format(), capacitors=" | ".join(CAPACITORS)).replace(
                 "nominal defaults to the middle\n", "nominal defaults to the middle\n"
                 + own.conditions.format(), 1))
 

@@ -21,11 +21,22 @@ from . import values as qv
 from .errors import InputError
 from .files import MAX_TEXT, read_bytes_limited
 from .models import load_timer
-from .physics import CIRCUITS, REGISTRY, TIMING_PARTS, Load, Parts, TimerModel, capacitor_named
+from .physics import (CAPACITORS, CIRCUITS, REGISTRY, TIMING_PARTS, Load, Parts, TimerModel,
+                      capacitor_named)
 from .physics.parts import DIODES, CAPACITOR_ALIASES
 from .case import Axis, Case, SpecLimit
 from .tomltext import check_toml_text, toml_inline
 from .variables import AXES, VARIABLES
+
+#: [spec] keys and the output column each limits (its unit is the column's)
+SPEC_COLUMNS = {"frequency": "frequency_hz", "duty": "duty", "pulse_width": "pulse_width_s",
+                "supply_current": "supply_current_a", "idle_current": "idle_current_a",
+                "output_current": "output_current_a", "power": "power_w",
+                "load_current": "output_current_a", "battery_life": "battery_life_h",
+                "timeout": "timeout_s"}
+_SPEC_MEANING = {"load_current": "the current through the load (an LED's brightness)",
+                 "battery_life": "hours, or days with d: { min = \"30d\" }",
+                 "timeout": "missing-pulse detector: time from the last pulse to the alarm"}
 
 # ---- the schema: section -> key -> (unit for parse_quantity, what it is) ----
 SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
@@ -47,8 +58,7 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
     "parts": {"resistor_tolerance": ("%", "default: implied by the resistor series, else 5 %"),
               "resistor_tempco": ("ppm/K", "default 100 ppm/K"),
               "resistor_power": ("W", "rating of each timing resistor, default 0.25 W"),
-              "capacitor": ("text", "C0G | X7R | X5R | Y5V | polypropylene | polyester | "
-                                    "electrolytic | tantalum"),
+              "capacitor": ("text", " | ".join(CAPACITORS)),
               "capacitor_tolerance": ("%", "default: implied by the capacitor series, else 10 %"),
               "capacitor_voltage": ("V", "rated voltage, default 50 V"),
               "stray_capacitance": ("F", "added to C, default 5 pF"),
@@ -64,12 +74,7 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
              "to": ("text", "ground (output sources current) | supply (output sinks it)"),
              "forward_voltage": ("V", "drop of an LED or diode in series with the load"),
              "kind": ("text", "resistive | led | relay | inductive | mains-switching (sets the cautions)")},
-    "spec": {"frequency": ("Hz", ""), "duty": ("", ""), "pulse_width": ("s", ""),
-             "supply_current": ("A", ""), "idle_current": ("A", ""), "output_current": ("A", ""),
-             "power": ("W", ""), "load_current": ("A", "the current through the load (an LED's "
-                                                   "brightness)"),
-             "battery_life": ("h", "hours, or days with d: { min = \"30d\" }"),
-             "timeout": ("s", "missing-pulse detector: time from the last pulse to the alarm"),
+    "spec": {**{k: (VARIABLES[col].unit, _SPEC_MEANING.get(k, "")) for k, col in SPEC_COLUMNS.items()},
              "yield": ("%", "{ min = 0.99 }: the pick is the lowest-current design whose yield "
                             "interval reaches it")},
     "analysis": {"monte_carlo": ("int", "builds per design, default 1000"),
@@ -78,11 +83,6 @@ SCHEMA: dict[str, dict[str, tuple[str, str]]] = {
                  "typical_sigma": ("", "sigmas in a datasheet's typical spread, default 1"),
                  "top": ("int", "designs detailed in the parts list and checks, default 10")},
 }
-SPEC_COLUMNS = {"frequency": "frequency_hz", "duty": "duty", "pulse_width": "pulse_width_s",
-                "supply_current": "supply_current_a", "idle_current": "idle_current_a",
-                "output_current": "output_current_a", "power": "power_w",
-                "load_current": "output_current_a", "battery_life": "battery_life_h",
-                "timeout": "timeout_s"}
 #: [spec] keys only some circuits have, and which (from the circuit registry)
 SPEC_CIRCUITS = {k: tuple(n for n, c in REGISTRY.items() if k in c.spec_keys)
                  for k in dict.fromkeys(k for c in REGISTRY.values() for k in c.spec_keys)}
@@ -753,7 +753,6 @@ def study_rows(study: Study) -> list[tuple[str, str, str, str]]:
     for section, keys in study.raw.items():
         for key, value in keys.items():
             unit, meaning = SCHEMA[section][key]
-            hint = {"ohm": "Ω", "F": "F", "V": "V", "A": "A", "Hz": "Hz", "s": "s", "W": "W",
-                    "C": "°C", "%": "%", "ppm/K": "ppm/K"}.get(unit, "")
+            hint = "" if unit in ("text", "int", "") else qv.unit_symbol(unit)
             rows.append((section, key, toml_inline(value), (hint + " " + meaning).strip()))
     return rows

@@ -283,6 +283,11 @@ def parse_rkm_tolerance(text) -> float | None:
 
 # --- formatting --------------------------------------------------------------------------------
 _SYMBOL = {"ohm": "Ω", "C": "°C"}
+
+
+def unit_symbol(unit: str) -> str:
+    """The symbol people read for a parse unit: "ohm" -> "Ω", "C" -> "°C", others as they are."""
+    return _SYMBOL.get(unit, unit)
 _OUT_PREFIX = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
 
 
@@ -312,7 +317,7 @@ def format_eng(value: float, unit: str = "", digits: int = 3) -> str:
     v = float(value)
     if math.isnan(v):
         return ""
-    symbol = {"%": "%", "ppm/K": "ppm/K"}.get(unit, _SYMBOL.get(unit, unit))
+    symbol = unit_symbol(unit)
     if math.isinf(v):
         return ("-inf" if v < 0 else "inf") + (f" {symbol}" if symbol else "")
     if v == 0:

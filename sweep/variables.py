@@ -16,6 +16,9 @@ class Variable:
     fmt: str           # "eng" (engineering prefixes), "pct", "fixed2", "int", "text"
     description: str
     log: bool = False  # a chart axis reads better on a log scale
+    key: str | None = None         # the study key that sweeps it ([design] or [conditions])
+    parse: str | None = None       # the unit study text parses to (sweep.values.parse_quantity)
+    ref: str | None = None         # reference designator on a schematic, e.g. "RA"
 
     @property
     def header(self) -> str:
@@ -26,15 +29,15 @@ class Variable:
 _V = Variable
 VARIABLES: dict[str, Variable] = {v.name: v for v in [
     # inputs: parts and conditions
-    _V("ra_ohm", "RA", "Ω", "eng", "Timing resistor from the supply to the discharge pin", True),
-    _V("rb_ohm", "RB", "Ω", "eng", "Timing resistor from the discharge pin to the capacitor", True),
-    _V("r_ohm", "R", "Ω", "eng", "Timing resistor (monostable; output-to-capacitor in the symmetric astable)", True),
-    _V("c_f", "C", "F", "eng", "Timing capacitor, nominal value", True),
-    _V("vcc_v", "Supply", "V", "fixed2", "Supply voltage"),
-    _V("temperature_c", "Ambient", "°C", "fixed1", "Ambient temperature"),
-    _V("control_voltage_v", "Control pin", "V", "fixed2", "Voltage forced on the control pin (blank: internal divider)"),
-    _V("load_resistance_ohm", "Load resistor", "Ω", "eng", "Resistor of the load (an LED's series resistor), when swept", True),
-    _V("input_period_s", "Input period", "s", "eng", "Period of the input pulse train (missing-pulse detector)", True),
+    _V("ra_ohm", "RA", "Ω", "eng", "Timing resistor from the supply to the discharge pin", True, key="ra", parse="ohm", ref="RA"),
+    _V("rb_ohm", "RB", "Ω", "eng", "Timing resistor from the discharge pin to the capacitor", True, key="rb", parse="ohm", ref="RB"),
+    _V("r_ohm", "R", "Ω", "eng", "Timing resistor (monostable; output-to-capacitor in the symmetric astable)", True, key="r", parse="ohm", ref="R"),
+    _V("c_f", "C", "F", "eng", "Timing capacitor, nominal value", True, key="c", parse="F", ref="C"),
+    _V("vcc_v", "Supply", "V", "fixed2", "Supply voltage", key="vcc", parse="V"),
+    _V("temperature_c", "Ambient", "°C", "fixed1", "Ambient temperature", key="temperature", parse="C"),
+    _V("control_voltage_v", "Control pin", "V", "fixed2", "Voltage forced on the control pin (blank: internal divider)", key="control_voltage", parse="V"),
+    _V("load_resistance_ohm", "Load resistor", "Ω", "eng", "Resistor of the load (an LED's series resistor), when swept", True, key="load_resistance", parse="ohm", ref="RL"),
+    _V("input_period_s", "Input period", "s", "eng", "Period of the input pulse train (missing-pulse detector)", True, key="input_period", parse="s"),
     # outputs
     _V("high_time_s", "High time", "s", "eng", "Time the output is high per cycle (the pulse, for a monostable)", True),
     _V("low_time_s", "Low time", "s", "eng", "Time the output is low per cycle", True),
@@ -55,6 +58,11 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
     _V("timeout_margin_s", "Timeout margin", "s", "eng", "Timeout less the input period: how late a pulse may come before a false alarm (negative: false alarm)"),
     _V("battery_life_h", "Battery life", "h", "fixed1", "Usable battery capacity / mean current (the idle current for a monostable waiting for triggers)"),
     _V("junction_temp_c", "Junction", "°C", "fixed1", "Chip junction temperature, worst phase"),
+    # the timing node's phases, for the waveform (not table columns)
+    _V("wave_v_start_v", "Node start", "V", "fixed2", "Capacitor voltage where the timing cycle starts (after the low phase's run-on)"),
+    _V("wave_v_top_v", "Node top", "V", "fixed2", "Capacitor voltage where the high phase ends (after its run-on)"),
+    _V("wave_vinf_high_v", "High-phase aim", "V", "fixed2", "Voltage the capacitor heads for while the output is high (Thevenin source)"),
+    _V("wave_vinf_low_v", "Low-phase aim", "V", "fixed2", "Voltage the capacitor heads for while the output is low (Thevenin source)"),
     _V("flags", "Flags", "", "text", "Limits broken at this point (space-separated codes)"),
     _V("ok", "OK", "", "bool", "No flag at this point"),
     _V("design", "Design", "", "int", "Design number (row of the Designs table)"),
@@ -84,17 +92,9 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in [
 ]}
 
 #: study keys that can be swept, with the column that carries them and the SI unit they parse to
-AXES: dict[str, tuple[str, str]] = {
-    "ra": ("ra_ohm", "ohm"),
-    "rb": ("rb_ohm", "ohm"),
-    "r": ("r_ohm", "ohm"),
-    "c": ("c_f", "F"),
-    "vcc": ("vcc_v", "V"),
-    "temperature": ("temperature_c", "C"),
-    "control_voltage": ("control_voltage_v", "V"),
-    "load_resistance": ("load_resistance_ohm", "ohm"),
-    "input_period": ("input_period_s", "s"),
-}
+AXES: dict[str, tuple[str, str]] = {v.key: (v.name, v.parse) for v in VARIABLES.values() if v.key}
+#: reference designators of the parts a study can sweep, by study key
+REFS: dict[str, str] = {v.key: v.ref for v in VARIABLES.values() if v.key and v.ref}
 
 #: output columns in the order tables show them
 OUTPUTS = ["high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
@@ -102,12 +102,7 @@ OUTPUTS = ["high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pul
            "output_current_a", "discharge_peak_a", "discharge_dump_s", "ra_power_w", "junction_temp_c",
            "timeout_s", "timeout_margin_s", "battery_life_h"]
 
-#: stable flag codes, in the order they are reported
-FLAGS = ["supply-below-min", "supply-above-max", "supply-above-abs-max", "temperature-out-of-range",
-         "resistor-too-small", "resistance-too-large", "capacitor-too-small", "frequency-too-high",
-         "output-current-over-limit", "discharge-current-over-limit", "resistor-overpowered",
-         "junction-too-hot", "timing-stalls", "spec-miss", "false-alarm"]
-
+#: what each flag code (sweep.physics.FLAGS) means, for the Notes sheet and the help
 FLAG_TEXT = {
     "supply-below-min": "Supply below the timer's recommended minimum",
     "supply-above-max": "Supply above the timer's recommended maximum",
@@ -127,10 +122,10 @@ FLAG_TEXT = {
 }
 
 
-def header(name: str) -> str:
-    """Header text for a machine column name, falling back to the name itself."""
-    v = VARIABLES.get(name)
-    return v.header if v else name
+#: the per-design figures of an output column, by suffix, in the order tables show them
+STATS: tuple[tuple[str, str], ...] = (
+    ("_nom", "nominal"), ("_min", "min"), ("_max", "max"), ("_wc_min", "worst-case min"),
+    ("_wc_max", "worst-case max"), ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std"))
 
 
 def eng(value: float, column: str) -> str:

@@ -80,7 +80,6 @@ def make_report(title: str = "Demo flasher (invented scenario)", n_designs: int 
     return Report(
         name="demo", title=title, circuit="astable", timer_name=timer.name, ideal=False,
         main_output="frequency_hz", part_columns=["ra_ohm", "rb_ohm", "c_f"],
-        condition_columns=["vcc_v", "temperature_c"],
         summary=[("Pick", "design 1"), ("Yield", "97 %")],
         cautions=["An LED load: check its current rating."],
         points=pts, points_total=len(pts), points_note=f"All {len(pts)} points.",

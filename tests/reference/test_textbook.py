@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from sweep.models import load_timer
-from sweep.physics import Load, Parts, evaluate
+from sweep.physics import CIRCUIT_PARTS, Load, Parts, evaluate
 
 LN2 = math.log(2.0)
 LN3 = math.log(3.0)
@@ -41,8 +41,7 @@ def designs(name, seed):
 
 
 def ideal(circuit, name, d, *, parts=None, load=Load(), control_voltage=np.nan):
-    keys = {"astable": ("ra", "rb"), "astable-diode": ("ra", "rb"),
-            "astable-symmetric": ("r",), "monostable": ("r",)}[circuit]
+    keys = tuple(k for k in CIRCUIT_PARTS[circuit] if k != "c")
     return evaluate(circuit, TIMERS[name], parts or Parts(capacitor=str(d["capacitor"])), load,
                     vcc=d["vcc"], temperature=d["temperature"], c=d["c"],
                     control_voltage=control_voltage, ideal=True, **{k: d[k] for k in keys})
@@ -150,3 +149,35 @@ def test_diode_drop_is_not_negligible(name, vcc, ratio):
     # the discharge side keeps the textbook ln2 RB C (C0G insulation, 5 GOhm here, moves it
     # by RB/R_ins = 2e-5)
     assert float(o["low_time_s"]) == pytest.approx(LN2 * rb * c, rel=1e-4)
+
+
+@TIMER_NAMES
+def test_missing_pulse_timeout(name):
+    # [book] the missing-pulse detector times out as the monostable's pulse, ln3 R C after the
+    # last input pulse; with a control voltage R C ln(VCC/(VCC - Vc))
+    d = designs(name, 11)
+    timer = TIMERS[name]
+    kw = dict(vcc=d["vcc"], temperature=d["temperature"], c=d["c"], r=d["r"], ideal=True)
+    o = evaluate("missing-pulse", timer, Parts(capacitor=str(d["capacitor"])), Load(),
+                 input_period=1e-9, **kw)
+    assert_close(o["timeout_s"], LN3 * d["r"] * d["c"])
+    vc = d["cv_frac"] * d["vcc"]
+    o = evaluate("missing-pulse", timer, Parts(capacitor=str(d["capacitor"])), Load(),
+                 input_period=1e-9, control_voltage=vc, **kw)
+    assert_close(o["timeout_s"], d["r"] * d["c"] * np.log(d["vcc"] / (d["vcc"] - vc)))
+
+
+@TIMER_NAMES
+def test_bistable_drives_its_load_by_ohms_law(name):
+    # [book: Ohm's law] an ideal output high sits at the supply, so a load to ground carries
+    # VCC / RL, and the latch draws that on top of its quiescent current
+    d = designs(name, 13)
+    timer = TIMERS[name]
+    rl = log_uniform(np.random.default_rng(14), 100.0, 100e3, N)
+    o = evaluate("bistable", timer, Parts(), Load(resistance_ohm=1.0), vcc=d["vcc"],
+                 temperature=d["temperature"], load_resistance=rl, ideal=True)
+    assert_close(o["output_high_v"], d["vcc"])
+    assert_close(o["output_current_a"], d["vcc"] / rl)
+    assert_close(o["supply_current_a"],
+                 np.maximum(timer.quiescent_a(d["vcc"], output_high=True) + d["vcc"] / rl,
+                            timer.quiescent_a(d["vcc"], output_high=False)))
