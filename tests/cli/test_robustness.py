@@ -90,10 +90,11 @@ vcc = { min = 5, max = 15, steps = 11 }
     assert code == 0 and "points" in outp and "run refuses this without --yes" in outp
 
 
-def test_same_study_and_seed_give_identical_tables_and_hashes(tmp_path, capsys):
-    a, b = tmp_path / "a", tmp_path / "b"
-    for d in (a, b):
-        assert cli(["run", "studies/buzzer.toml", "--out", str(d), "-q"], capsys)[0] == 0
+@pytest.mark.slow
+def test_same_study_and_seed_give_identical_tables_and_hashes(examples, tmp_path, capsys):
+    a, b = examples["buzzer"].out, tmp_path / "b"        # the session's run, and one more
+    assert examples["buzzer"].code == 0
+    assert cli(["run", "studies/buzzer.toml", "--out", str(b), "-q"], capsys)[0] == 0
     ra, rb = (json.loads((d / "run.json").read_text()) for d in (a, b))
     for k in ("created", "seconds_analysis", "seconds_total"):
         ra.pop(k), rb.pop(k)
@@ -107,6 +108,7 @@ def test_same_study_and_seed_give_identical_tables_and_hashes(tmp_path, capsys):
 HOSTILE = '=HYPERLINK("http://example.invalid","x")<script>alert(1)</script>'
 
 
+@pytest.mark.slow
 def test_hostile_title_notes_and_file_name(tmp_path, capsys):
     name = tmp_path / "=cmd@+x <b>.toml"
     name.write_text(Path("studies/dosing-pump.toml").read_text(encoding="utf-8")
@@ -169,14 +171,15 @@ except KeyboardInterrupt:
     assert "Traceback" not in proc.stderr and "Exception ignored" not in proc.stderr
 
 
-def test_a_stop_the_run_did_not_see_still_keeps_the_previous_outputs(tmp_path):
+@pytest.mark.slow
+def test_a_stop_the_run_did_not_see_still_keeps_the_previous_outputs(examples, tmp_path):
     # a library may swallow the interrupt a stop signal raises (a bare except); the commit asks
     # whether a stop arrived and, if so, puts nothing in place [the all-or-nothing contract]
     from sweep.pipeline import run_study
     from sweep.study import load_study
     st = load_study("studies/jig-latch.toml")
-    out = tmp_path / "out"
-    run_study(st, out)
+    assert examples["jig-latch"].code == 0
+    out = examples["jig-latch"].copy_to(tmp_path / "out")     # the previous outputs
     before = {p.name: sha(p) for p in out.iterdir()}
     with pytest.raises(KeyboardInterrupt):
         run_study(st, out, stop_requested=lambda: True)
