@@ -12,3 +12,18 @@ def cli(args, capsys):
         code = e.code
     cap = capsys.readouterr()
     return code, cap.out, cap.err
+
+
+def wait_while_running(proc, ready, timeout: float, poll: float = 0.005) -> bool:
+    """Wait until ready() holds while the subprocess `proc` is still running (a readiness
+    condition, not a guessed delay); False if the process ended first or `timeout` seconds
+    passed. True means: the condition holds and the process had not ended a moment before."""
+    import time
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if proc.poll() is not None:
+            return False
+        if ready():
+            return proc.poll() is None
+        time.sleep(poll)
+    return False
