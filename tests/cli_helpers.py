@@ -14,6 +14,20 @@ def cli(args, capsys):
     return code, cap.out, cap.err
 
 
+def cli_captured(args):
+    """(exit code, stdout, stderr) of `timer-sweep ARGS`, captured without pytest's capsys (for
+    fixtures wider than one test)."""
+    import contextlib
+    import io
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        try:
+            code = main(args)
+        except SystemExit as e:
+            code = e.code
+    return code, out.getvalue(), err.getvalue()
+
+
 def wait_while_running(proc, ready, timeout: float, poll: float = 0.005) -> bool:
     """Wait until ready() holds while the subprocess `proc` is still running (a readiness
     condition, not a guessed delay); False if the process ended first or `timeout` seconds

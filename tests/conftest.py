@@ -3,8 +3,6 @@ session, through the command line, into one folder per study; the tests that rea
 outputs share that run instead of making their own."""
 from __future__ import annotations
 
-import contextlib
-import io
 import json
 import shutil
 from dataclasses import dataclass
@@ -49,17 +47,12 @@ class ExampleRuns:
 
     def __getitem__(self, name: str) -> ExampleRun:
         if name not in self.runs:
-            from sweep.cli import main
+            from tests.cli_helpers import cli_captured
             study = Path("studies") / f"{name}.toml"
             assert study.is_file(), f"no example study {study}"
             out = self.root / name
-            stdout, stderr = io.StringIO(), io.StringIO()
-            with contextlib.redirect_stdout(stdout), contextlib.redirect_stderr(stderr):
-                try:
-                    code = main(["run", str(study), "--out", str(out)])
-                except SystemExit as e:
-                    code = e.code
-            self.runs[name] = ExampleRun(name, study, out, code, stdout.getvalue(), stderr.getvalue())
+            code, stdout, stderr = cli_captured(["run", str(study), "--out", str(out)])
+            self.runs[name] = ExampleRun(name, study, out, code, stdout, stderr)
         return self.runs[name]
 
 

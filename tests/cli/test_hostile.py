@@ -81,6 +81,7 @@ def study_file(tmp_path, text=SMALL, name="small.toml") -> Path:
 
 # ------------------------------------------------------------------ all-or-nothing commit
 
+@pytest.mark.slow
 def test_a_folder_where_the_chart_page_goes_is_named_and_nothing_changes(tmp_path):
     study, out = study_file(tmp_path), tmp_path / "out"
     assert sweep(["run", study, "--out", out, "-q"], timeout=RUN_SECONDS)[0] == 0
@@ -214,6 +215,7 @@ STUDY_CASES = [
 ]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case_id,make,words", STUDY_CASES, ids=[c[0] for c in STUDY_CASES])
 def test_hostile_study_is_refused_quickly(case_id, make, words, tmp_path):
     p = tmp_path / "s.toml"
@@ -234,6 +236,7 @@ TIMER_CASES = [
 ]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case_id,make,words", TIMER_CASES, ids=[c[0] for c in TIMER_CASES])
 def test_hostile_timer_file_is_refused_quickly(case_id, make, words, tmp_path):
     make(tmp_path / "t.toml")
@@ -242,6 +245,7 @@ def test_hostile_timer_file_is_refused_quickly(case_id, make, words, tmp_path):
     refused(code, err, "t.toml", *words)
 
 
+@pytest.mark.slow
 def test_a_workbook_that_is_a_pipe_is_refused(tmp_path):
     os.mkfifo(tmp_path / "s.xlsx")
     code, _, err = sweep(["run", tmp_path / "s.xlsx", "--out", tmp_path / "out", "-q"])
@@ -249,6 +253,7 @@ def test_a_workbook_that_is_a_pipe_is_refused(tmp_path):
     assert not (tmp_path / "out").exists()          # refused before anything was written
 
 
+@pytest.mark.slow
 def test_ten_billion_conditions_are_refused_before_any_allocation(tmp_path):
     study = study_file(tmp_path, SMALL + "[conditions]\nvcc = { min = 5, max = 15, steps = 100000 }\n"
                        "temperature = { min = -40, max = 85, steps = 100000 }\n")
@@ -258,6 +263,7 @@ def test_ten_billion_conditions_are_refused_before_any_allocation(tmp_path):
     assert code == 0 and "run refuses this without --yes" in out, err
 
 
+@pytest.mark.slow
 def test_a_list_at_the_axis_limit_is_read_as_one_array(tmp_path):
     # 99 999 values, each checked (positive, finite, unique): the subprocess limit is the clock
     study = tmp_path / "s.toml"
@@ -304,6 +310,7 @@ def _greeting(frames_of=None) -> bytes:
     return struct.pack("Q", len(body)) + body
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("answer,words", [
     (lambda: None, ["did not greet within 5 s"]),
     (lambda: b"\xff" * 8 + b"HTTP/1.0 200 OK\r\n\r\n", ["not a Dask scheduler"]),
@@ -324,6 +331,7 @@ def test_a_scheduler_that_never_answers_or_answers_junk_is_refused_in_time(answe
     assert not out.exists()                          # a refusal writes nothing
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("address", ["not-an-address", "tcp://127.0.0.1:99999", "tcp://:8786",
                                      "http://127.0.0.1:8786", "tcp://127.0.0.1:8786/x"])
 def test_a_scheduler_address_is_checked_before_use(address, tmp_path):
@@ -335,6 +343,7 @@ def test_a_scheduler_address_is_checked_before_use(address, tmp_path):
 
 # ------------------------------------------------------------------ messages
 
+@pytest.mark.slow
 def test_escape_sequences_in_a_title_do_not_reach_the_terminal(tmp_path):
     study = study_file(tmp_path, SMALL.replace('title = "small"',
                                                'title = "\\u001b[2J\\u001b[31mred\\u0007"'))
@@ -344,6 +353,7 @@ def test_escape_sequences_in_a_title_do_not_reach_the_terminal(tmp_path):
     assert "\\x1b[2J" in out                          # shown, visibly
 
 
+@pytest.mark.slow
 def test_an_empty_out_never_writes_into_the_current_folder(tmp_path):
     unrelated = tmp_path / "run.json"
     unrelated.write_text('{"someone": "else"}')
