@@ -99,6 +99,7 @@ monte_carlo = 0
 """
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", range(6))
 def test_worst_case_equals_brute_force_enumeration(seed):
     # Brute force: every corner of every toleranced part at every condition point, each
@@ -350,6 +351,7 @@ typical_sigma = %r
     assert 0.5 < p < 0.999
 
 
+@pytest.mark.slow
 def test_monte_carlo_builds_stay_inside_the_brute_force_worst_case():
     # every Monte Carlo build (parts clipped at their tolerance, timer terms at their maximum)
     # lies inside the worst case, which equals brute-force corner enumeration [derived]

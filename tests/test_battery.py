@@ -167,6 +167,7 @@ def test_load_current_spec_and_battery_life_rank_the_swept_resistor():
     assert miss.any() and (df.loc[miss, "verdict"] == "spec miss").all()
 
 
+@pytest.mark.slow
 def test_the_summary_states_battery_life_and_the_cautions(tmp_path, capsys):
     study = tmp_path / "blinker.toml"
     study.write_text(BLINKER, encoding="utf-8")

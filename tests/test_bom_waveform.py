@@ -16,7 +16,7 @@ from sweep.physics import Load, Parts, evaluate
 from sweep.models import load_timer
 from sweep.study import parse_study
 from sweep.waveform import WAVEFORM_COLUMNS, pick_waveform, trace_of
-from tests.cli_helpers import cli
+from tests.cli_helpers import cli_captured
 
 STUDY = """
 [study]
@@ -42,13 +42,15 @@ SERIES = {"E3": eseries.E3, "E6": eseries.E6, "E12": eseries.E12, "E24": eseries
           "E48": eseries.E48, "E96": eseries.E96, "E192": eseries.E192}
 
 
-def _run(tmp_path, capsys, text=STUDY, name="flasher"):
-    study = tmp_path / f"{name}.toml"
-    study.write_text(text, encoding="utf-8")
-    out = tmp_path / "out"
-    code, _, err = cli(["run", str(study), "--out", str(out), "-q"], capsys)
+@pytest.fixture(scope="module")
+def flasher(tmp_path_factory):
+    """The outputs of one run of STUDY, shared by the tests of this file (read only)."""
+    tmp = tmp_path_factory.mktemp("flasher")
+    study = tmp / "flasher.toml"
+    study.write_text(STUDY, encoding="utf-8")
+    code, _, err = cli_captured(["run", str(study), "--out", str(tmp / "out"), "-q"])
     assert code == 0, err
-    return out
+    return tmp / "out"
 
 
 def _in_series(value: float, name: str) -> bool:
@@ -56,8 +58,9 @@ def _in_series(value: float, name: str) -> bool:
     return any(math.isclose(m, value, rel_tol=1e-9) for m in members)
 
 
-def test_bom_csv_opens_and_lists_every_part(tmp_path, capsys):
-    out = _run(tmp_path, capsys)
+@pytest.mark.slow
+def test_bom_csv_opens_and_lists_every_part(flasher):
+    out = flasher
     with open(out / "bom.csv", newline="", encoding="utf-8") as f:
         rows = list(csv.DictReader(f))
     assert list(rows[0]) == BOM_COLUMNS
@@ -90,8 +93,9 @@ def test_bom_csv_opens_and_lists_every_part(tmp_path, capsys):
         assert _in_series(v, "E192") or _in_series(v, "E24")
 
 
-def test_parts_sheet_shows_the_bill_of_materials(tmp_path, capsys):
-    out = _run(tmp_path, capsys)
+@pytest.mark.slow
+def test_parts_sheet_shows_the_bill_of_materials(flasher):
+    out = flasher
     rows = list(load_workbook(out / "flasher.xlsx", read_only=True)["Parts"].iter_rows(values_only=True))
     head = list(rows[0])
     body = [r for r in rows[1:] if r[head.index("Design")] is not None]
@@ -120,8 +124,9 @@ kind = "relay"
     assert "flyback" in bom.loc[bom["ref"] == "D2", "value_text"].iloc[0]
 
 
-def test_waveform_csv_has_both_conditions(tmp_path, capsys):
-    out = _run(tmp_path, capsys)
+@pytest.mark.slow
+def test_waveform_csv_has_both_conditions(flasher):
+    out = flasher
     with open(out / "waveform.csv", newline="", encoding="utf-8") as f:
         assert next(csv.reader(f)) == WAVEFORM_COLUMNS
     w = pd.read_csv(out / "waveform.csv")

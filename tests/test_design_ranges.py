@@ -107,6 +107,7 @@ NEW_ARGS = {
 }
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("circuit", list(NEW_ARGS))
 def test_new_from_spec_runs_and_a_quarter_is_on_target(circuit, tmp_path, capsys):
     path = tmp_path / "s.toml"

@@ -57,6 +57,7 @@ CASES = [  # (grade key, grades, the key fixed at 0 %, yield target)
 ]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("key,grades,fixed,target", CASES)
 def test_the_cheapest_grade_that_reaches_the_target_is_picked(key, grades, fixed, target, tmp_path):
     table = load_table()[key]
@@ -82,6 +83,7 @@ def test_the_cheapest_grade_that_reaches_the_target_is_picked(key, grades, fixed
     assert pick["verdict"] == "pass"
 
 
+@pytest.mark.slow
 def test_each_grade_equals_its_own_plain_study(tmp_path):
     # the grade axis must route each design to its own parts: every grade's figures equal those
     # of a separate study with that grade in [parts]
@@ -128,6 +130,7 @@ monte_carlo = 200
     assert spread[got["capacitor"] == "Y5V"].min() > spread[got["capacitor"] == "C0G"].max()
 
 
+@pytest.mark.slow
 def test_resistor_series_grade_takes_the_series_values(tmp_path):
     import eseries
     st = parse_study("""
@@ -151,6 +154,7 @@ pulse_width = { target = "30ms", tolerance = "5%" }
     assert st.n_designs == len(r12) + len(r96)
 
 
+@pytest.mark.slow
 def test_outputs_show_yield_against_cost(tmp_path):
     st = parse_study(grade_study("resistor_tolerance", ["1%", "5%", "10%"], "capacitor_tolerance",
                                  0.95, 1024), str(tmp_path / "g.toml"))
@@ -195,6 +199,7 @@ c = ["1u"]
     assert code == 2 and words in err and "bad.toml" in err and "Traceback" not in err
 
 
+@pytest.mark.slow
 def test_grades_in_two_processes_equal_serial(tmp_path):
     from sweep.parallel import process_mapper
     text = grade_study("resistor_tolerance", ["1%", "5%", "10%"], "capacitor_tolerance", 0.95, 256)

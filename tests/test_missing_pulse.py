@@ -63,6 +63,7 @@ def test_bad_missing_pulse_studies_name_the_key(text, key, words):
     assert e.value.key == key and words in e.value.problem
 
 
+@pytest.mark.slow
 def test_missing_pulse_runs_end_to_end(tmp_path, capsys):
     study = tmp_path / "alarm.toml"
     study.write_text(STUDY, encoding="utf-8")

@@ -23,12 +23,14 @@ def study():
 
 
 @pytest.fixture(scope="module")
-def serial(study, tmp_path_factory):
-    d = tmp_path_factory.mktemp("serial")
-    run_study(study, d, chunk=4096)
-    return outputs(d)
+def serial(examples):
+    """The example's serial run of the session (default blocks): the parallel runs below use
+    other blocks, and results must not depend on block boundaries either."""
+    assert examples["buzzer"].code == 0, examples["buzzer"].stderr
+    return outputs(examples["buzzer"].out)
 
 
+@pytest.mark.slow
 def test_two_local_processes_equal_serial(study, serial, tmp_path):
     run_study(study, tmp_path, chunk=4096, mapper=process_mapper(2))
     got = outputs(tmp_path)
@@ -37,6 +39,7 @@ def test_two_local_processes_equal_serial(study, serial, tmp_path):
     assert got[2] == serial[2]
 
 
+@pytest.mark.slow
 def test_two_worker_dask_cluster_on_loopback_equals_serial(study, serial, tmp_path):
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, host="127.0.0.1",

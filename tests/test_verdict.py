@@ -32,32 +32,38 @@ def _page_verdicts(html_text: str) -> tuple[dict[str, str], dict[str, set[str]]]
     return verdict, states
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("extra", ["", '\n[spec]\nyield = { min = 0.9999 }\n'])
-def test_workbook_page_and_run_record_agree_design_by_design(extra, tmp_path, capsys):
-    text = Path("studies/bike-light.toml").read_text(encoding="utf-8")
-    text = text.replace("monte_carlo = 500", "monte_carlo = 200")
-    if extra:   # below 100 % of 200 builds, no Wilson interval reaches 99.99 % [derived]: every
+def test_workbook_page_and_run_record_agree_design_by_design(extra, examples, tmp_path, capsys):
+    if not extra:                 # the example study as it ships, from the session's shared run
+        run = examples["bike-light"]
+        assert run.code == 0, run.stderr
+        out, stem = run.out, "bike-light"
+    else:
+        text = Path("studies/bike-light.toml").read_text(encoding="utf-8")
+        text = text.replace("monte_carlo = 500", "monte_carlo = 200")
+        # below 100 % of 200 builds, no Wilson interval reaches 99.99 % [derived]: every
         # design is at best a low yield
         text = text.replace("[spec]\n", "[spec]\nyield = { min = 0.9999 }\n")
         # and the typical spreads read as half a sigma: twice as wide, no build set is perfect
         text = text.replace("[analysis]\n", "[analysis]\ntypical_sigma = 0.5\n")
-    study = tmp_path / "bike.toml"
-    study.write_text(text, encoding="utf-8")
-    out = tmp_path / "o"
-    code, _, err = cli(["run", str(study), "--out", str(out), "-q"], capsys)
-    assert code == 0, err
+        study = tmp_path / "bike.toml"
+        study.write_text(text, encoding="utf-8")
+        out, stem = tmp_path / "o", "bike"
+        code, _, err = cli(["run", str(study), "--out", str(out), "-q"], capsys)
+        assert code == 0, err
     table = pd.read_parquet(out / "designs.parquet")
     assert set(table["verdict"]) <= set(VERDICTS)
     want = dict(zip(table["design"].astype(str), table["verdict"]))
     # the workbook's Designs sheet
-    ws = load_workbook(out / "bike.xlsx", read_only=True)["Designs"]
+    ws = load_workbook(out / f"{stem}.xlsx", read_only=True)["Designs"]
     rows = ws.iter_rows(values_only=True)
     head = list(next(rows))
     d, v = head.index("Design"), head.index("Verdict")
     sheet = {str(r[d]): r[v] for r in rows if r[d] is not None}
     assert sheet == want
     # every other sheet that lists designs: Points (header in row 2), Parts, Check (row 5)
-    book = load_workbook(out / "bike.xlsx", read_only=True)
+    book = load_workbook(out / f"{stem}.xlsx", read_only=True)
     for name, header_row in (("Points", 2), ("Parts", 1), ("Check", 5)):
         rows = list(book[name].iter_rows(min_row=header_row, values_only=True))
         head = list(rows[0])
@@ -65,7 +71,7 @@ def test_workbook_page_and_run_record_agree_design_by_design(extra, tmp_path, ca
         seen = {str(r[d]): r[v] for r in rows[1:] if r[d] is not None}
         assert seen and all(want[k] == w for k, w in seen.items()), name
     # the chart page: hover text and how each design is drawn
-    page, states = _page_verdicts((out / "bike.html").read_text(encoding="utf-8"))
+    page, states = _page_verdicts((out / f"{stem}.html").read_text(encoding="utf-8"))
     assert page and all(want[k] == w for k, w in page.items())
     assert states.get("meets", set()) == {k for k in page if want[k] == "pass"}
     # run.json: the pick's verdict, and meets_spec only for a pass
@@ -82,11 +88,11 @@ def test_workbook_page_and_run_record_agree_design_by_design(extra, tmp_path, ca
     reading = "0.5 sigma" if extra else "one sigma"
     assert info["typical_sigma"] == (0.5 if extra else 1.0) and reading in info["spreads"]
     # the Summary sheet says the same word and the reading of the spreads
-    summary = load_workbook(out / "bike.xlsx", read_only=True)["Summary"]
+    summary = load_workbook(out / f"{stem}.xlsx", read_only=True)["Summary"]
     lines = {r[0]: r[1] for r in summary.iter_rows(values_only=True) if r and r[0]}
     assert lines["Verdict"].split(":")[0].endswith(pick["verdict"]) or \
         f"verdict is {pick['verdict']}" in lines["Verdict"]
     assert reading in lines["Timer spreads"]
-    notes = load_workbook(out / "bike.xlsx", read_only=True)["Notes"]
+    notes = load_workbook(out / f"{stem}.xlsx", read_only=True)["Notes"]
     topics = {r[0]: r[1] for r in notes.iter_rows(values_only=True) if r and r[0]}
     assert reading in topics["Timer spreads"]

@@ -353,6 +353,7 @@ def deviations(circuit, m, sim):
     return {k: m[k] / w - 1.0 for k, w in want.items()}
 
 
+@pytest.mark.slow
 def test_model_matches_simulation():
     worst, worst_case = 0.0, None
     compared, stalled, diode_off = {}, 0, 0

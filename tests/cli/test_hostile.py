@@ -20,7 +20,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.cli_helpers import cli
+from tests.cli_helpers import cli, wait_while_running
 
 MEMORY = 2 * 2**30        # bytes of address space a run may use [issue: 2 GiB]
 SECONDS = 10              # a refusal or a failure must come within this [issue: 10 s]
@@ -81,6 +81,7 @@ def study_file(tmp_path, text=SMALL, name="small.toml") -> Path:
 
 # ------------------------------------------------------------------ all-or-nothing commit
 
+@pytest.mark.slow
 def test_a_folder_where_the_chart_page_goes_is_named_and_nothing_changes(tmp_path):
     study, out = study_file(tmp_path), tmp_path / "out"
     assert sweep(["run", study, "--out", out, "-q"], timeout=RUN_SECONDS)[0] == 0
@@ -128,27 +129,40 @@ def test_a_commit_killed_outright_is_rolled_back_by_the_next_run(tmp_path, capsy
 
 # ------------------------------------------------------------------ signals
 
+def long_study(tmp_path) -> Path:
+    """The buzzer example with 40 times its Monte Carlo builds: a run of a minute or more, so a
+    signal sent once it has started lands long before its end; stopped, it costs nothing more."""
+    text = Path("studies/buzzer.toml").read_text(encoding="utf-8")
+    assert "monte_carlo = 500" in text
+    return study_file(tmp_path, text.replace("monte_carlo = 500", "monte_carlo = 20000"), "buzzer.toml")
+
+
+@pytest.mark.slow
 @pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM, signal.SIGHUP])
-def test_a_signal_mid_run_exits_128_plus_its_number_and_keeps_the_outputs(sig, tmp_path):
-    study = tmp_path / "buzzer.toml"
-    study.write_text(Path("studies/buzzer.toml").read_text(encoding="utf-8"), encoding="utf-8")
-    out = tmp_path / "out"
-    assert sweep(["run", study, "--out", out, "-q"], timeout=RUN_SECONDS)[0] == 0
+def test_a_signal_mid_run_exits_128_plus_its_number_and_keeps_the_outputs(sig, examples, tmp_path):
+    from sweep.pipeline import STAGING
+    study = long_study(tmp_path)
+    assert examples["buzzer"].code == 0
+    out = examples["buzzer"].copy_to(tmp_path / "out")          # the previous outputs
     before = snapshot(out)
     proc = subprocess.Popen([sys.executable, "-m", "sweep", "run", str(study), "--out", str(out), "-q"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             preexec_fn=_limits)
-    staging = out / f".timer-sweep-run-{proc.pid}"
-    deadline = time.monotonic() + RUN_SECONDS
-    while not staging.exists() and proc.poll() is None and time.monotonic() < deadline:
-        time.sleep(0.02)
-    assert staging.exists(), "the run never started writing"       # stage marker: mid-run
+    staging = out / f"{STAGING}{proc.pid}"
+    # the run made its staging folder (its stop handlers are in place by then) and is still going
+    if not wait_while_running(proc, staging.exists, RUN_SECONDS):
+        proc.kill()
+        _, err = proc.communicate(timeout=RUN_SECONDS)
+        pytest.fail(f"the run ended (exit {proc.returncode}) before it was seen running: {err}")
     proc.send_signal(sig)
     _, err = proc.communicate(timeout=RUN_SECONDS)
-    assert proc.returncode == 128 + sig, err
+    # stopped by the signal: 128 + its number [POSIX shell convention], never 0 (a run that
+    # finished before the signal landed fails here), and it says the run did not finish
+    assert proc.returncode == 128 + sig, (proc.returncode, err)
     assert len(err.strip().splitlines()) == 1 and "stopped by" in err
-    assert "previous outputs were kept" in err and "Traceback" not in err
-    assert snapshot(out) == before                   # the run did not finish: nothing new
+    assert "the run did not finish" in err and "previous outputs were kept" in err
+    assert "Traceback" not in err
+    assert snapshot(out) == before                   # nothing written: the previous set, whole
     assert not staging.exists()
 
 
@@ -201,6 +215,7 @@ STUDY_CASES = [
 ]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case_id,make,words", STUDY_CASES, ids=[c[0] for c in STUDY_CASES])
 def test_hostile_study_is_refused_quickly(case_id, make, words, tmp_path):
     p = tmp_path / "s.toml"
@@ -221,6 +236,7 @@ TIMER_CASES = [
 ]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case_id,make,words", TIMER_CASES, ids=[c[0] for c in TIMER_CASES])
 def test_hostile_timer_file_is_refused_quickly(case_id, make, words, tmp_path):
     make(tmp_path / "t.toml")
@@ -229,6 +245,7 @@ def test_hostile_timer_file_is_refused_quickly(case_id, make, words, tmp_path):
     refused(code, err, "t.toml", *words)
 
 
+@pytest.mark.slow
 def test_a_workbook_that_is_a_pipe_is_refused(tmp_path):
     os.mkfifo(tmp_path / "s.xlsx")
     code, _, err = sweep(["run", tmp_path / "s.xlsx", "--out", tmp_path / "out", "-q"])
@@ -236,6 +253,7 @@ def test_a_workbook_that_is_a_pipe_is_refused(tmp_path):
     assert not (tmp_path / "out").exists()          # refused before anything was written
 
 
+@pytest.mark.slow
 def test_ten_billion_conditions_are_refused_before_any_allocation(tmp_path):
     study = study_file(tmp_path, SMALL + "[conditions]\nvcc = { min = 5, max = 15, steps = 100000 }\n"
                        "temperature = { min = -40, max = 85, steps = 100000 }\n")
@@ -245,6 +263,7 @@ def test_ten_billion_conditions_are_refused_before_any_allocation(tmp_path):
     assert code == 0 and "run refuses this without --yes" in out, err
 
 
+@pytest.mark.slow
 def test_a_list_at_the_axis_limit_is_read_as_one_array(tmp_path):
     # 99 999 values, each checked (positive, finite, unique): the subprocess limit is the clock
     study = tmp_path / "s.toml"
@@ -291,6 +310,7 @@ def _greeting(frames_of=None) -> bytes:
     return struct.pack("Q", len(body)) + body
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("answer,words", [
     (lambda: None, ["did not greet within 5 s"]),
     (lambda: b"\xff" * 8 + b"HTTP/1.0 200 OK\r\n\r\n", ["not a Dask scheduler"]),
@@ -311,6 +331,7 @@ def test_a_scheduler_that_never_answers_or_answers_junk_is_refused_in_time(answe
     assert not out.exists()                          # a refusal writes nothing
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("address", ["not-an-address", "tcp://127.0.0.1:99999", "tcp://:8786",
                                      "http://127.0.0.1:8786", "tcp://127.0.0.1:8786/x"])
 def test_a_scheduler_address_is_checked_before_use(address, tmp_path):
@@ -322,6 +343,7 @@ def test_a_scheduler_address_is_checked_before_use(address, tmp_path):
 
 # ------------------------------------------------------------------ messages
 
+@pytest.mark.slow
 def test_escape_sequences_in_a_title_do_not_reach_the_terminal(tmp_path):
     study = study_file(tmp_path, SMALL.replace('title = "small"',
                                                'title = "\\u001b[2J\\u001b[31mred\\u0007"'))
@@ -331,6 +353,7 @@ def test_escape_sequences_in_a_title_do_not_reach_the_terminal(tmp_path):
     assert "\\x1b[2J" in out                          # shown, visibly
 
 
+@pytest.mark.slow
 def test_an_empty_out_never_writes_into_the_current_folder(tmp_path):
     unrelated = tmp_path / "run.json"
     unrelated.write_text('{"someone": "else"}')

@@ -324,6 +324,7 @@ def _require_browser():
         pytest.skip(why)
 
 
+@pytest.mark.slow
 def test_page_draws_every_chart_in_headless_chromium(tmp_path):
     _require_browser()
     from playwright.sync_api import sync_playwright
@@ -399,6 +400,7 @@ LAYOUT_PROBLEMS = """() => {
 }"""
 
 
+@pytest.mark.slow
 def test_chart_labels_are_neither_cut_off_nor_overlapping_in_chromium(tmp_path):
     _require_browser()
     from playwright.sync_api import sync_playwright

@@ -192,6 +192,7 @@ def _slow_report():
     return rep
 
 
+@pytest.mark.slow
 def test_same_quantity_reads_the_same_way_on_every_sheet(tmp_path):
     rep = _slow_report()
     path = tmp_path / "slow.xlsx"
@@ -259,6 +260,7 @@ def _read_shown(text: str) -> tuple[float, float]:
     return float(t) * scale, step
 
 
+@pytest.mark.slow
 def test_numbers_render_as_plain_or_engineering_text(tmp_path):
     rep = _slow_report()
     pts = rep.points.copy()
@@ -466,6 +468,7 @@ def _recalculate(files: list[Path], tmp_path: Path) -> dict[str, Path]:
     return got
 
 
+@pytest.mark.slow
 def test_check_formulas_recalculate_to_engine_ideal(tmp_path):
     src = tmp_path / "src"
     src.mkdir()
@@ -630,6 +633,7 @@ def _area(ws) -> tuple[int, int]:
     return row, openpyxl.utils.column_index_from_string(col)
 
 
+@pytest.mark.slow
 def test_print_setup_keeps_the_big_tables_short(big_book):
     rep, _, wb = big_book
     for name in ("Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes"):
@@ -663,6 +667,7 @@ def test_print_setup_keeps_the_big_tables_short(big_book):
     assert p.print_title_cols.replace("$", "") == "A:B"
 
 
+@pytest.mark.slow
 def test_big_workbook_prints_on_few_pages(big_book, tmp_path):
     # printed by an independent program: LibreOffice's PDF export honours the print setup
     _, path, _ = big_book

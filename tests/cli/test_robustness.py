@@ -6,7 +6,6 @@ import json
 import signal
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
@@ -38,33 +37,62 @@ def run_cmd(study, out):
     return [sys.executable, "-m", "sweep", "run", str(study), "--out", str(out), "--quiet"]
 
 
-@pytest.mark.parametrize("sig,delay", [(signal.SIGTERM, 0.8), (signal.SIGTERM, 2.0),
-                                       (signal.SIGINT, 2.0), (signal.SIGHUP, 1.5),
-                                       (signal.SIGKILL, 1.5)])
-def test_a_killed_run_leaves_the_previous_outputs_whole(sig, delay, tmp_path):
+def _in_monte_carlo(staging: Path) -> bool:
+    """Pass 1 is done (its points are in the staging folder) and the Monte Carlo is running."""
+    return (staging / "points.parquet").exists()
+
+
+def _writing_the_workbook(staging: Path) -> bool:
+    """The workbook is being written: its temporary file, not yet renamed, is in the staging
+    folder (the page, the tables and run.json follow)."""
+    return any(staging.glob(".buzzer.xlsx.*"))
+
+
+STAGES = {"monte-carlo": (_in_monte_carlo, "monte_carlo = 20000"),   # long: the signal lands early
+          "workbook": (_writing_the_workbook, "monte_carlo = 500")}  # the example as it ships
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("sig,stage", [(signal.SIGTERM, "workbook"), (signal.SIGTERM, "monte-carlo"),
+                                       (signal.SIGINT, "monte-carlo"), (signal.SIGHUP, "workbook"),
+                                       (signal.SIGKILL, "monte-carlo")])
+def test_a_killed_run_leaves_the_previous_outputs_whole(sig, stage, examples, tmp_path):
+    from sweep.pipeline import STAGING
+    from tests.cli_helpers import wait_while_running
+    ready, monte_carlo = STAGES[stage]
     study = tmp_path / "buzzer.toml"
-    study.write_text(Path("studies/buzzer.toml").read_text(encoding="utf-8"), encoding="utf-8")
-    out = tmp_path / "out"
-    subprocess.run(run_cmd(study, out), check=True, timeout=300)
+    text = Path("studies/buzzer.toml").read_text(encoding="utf-8")
+    assert "monte_carlo = 500" in text
+    study.write_text(text.replace("monte_carlo = 500", monte_carlo), encoding="utf-8")
+    assert examples["buzzer"].code == 0
+    out = examples["buzzer"].copy_to(tmp_path / "out")          # the previous outputs
     before = consistent(out)
     before_hash = {p.name: sha(p) for p in out.iterdir()}
     proc = subprocess.Popen(run_cmd(study, out), stderr=subprocess.PIPE, text=True)
-    time.sleep(delay)
+    staging = out / f"{STAGING}{proc.pid}"
+    # the run has reached the stage (a partial output shows it) and is still going
+    if not wait_while_running(proc, lambda: ready(staging), 300):
+        proc.kill()
+        _, err = proc.communicate(timeout=120)
+        pytest.fail(f"the run ended (exit {proc.returncode}) before it reached {stage}: {err}")
     proc.send_signal(sig)
     _, err = proc.communicate(timeout=120)
-    after = consistent(out)
     assert "Traceback" not in err
-    # a run takes seconds longer than the delay: it is stopped, never reported as done; before
-    # the handlers are installed (the first fraction of a second) the default action kills it
-    assert proc.returncode in (128 + sig, -sig), (proc.returncode, err)
-    if proc.returncode == 128 + sig:
-        assert "stopped by" in err
+    if sig == signal.SIGKILL:          # cannot be caught: killed where it stood, mid-run
+        assert proc.returncode == -sig, (proc.returncode, err)
+        assert staging.exists()        # its half-made outputs are still in the staging folder
+    else:
+        # stopped, never reported as done: 128 + the signal [POSIX shell convention], and the
+        # message says the run did not finish (a run that finished first exits 0 and fails)
+        assert proc.returncode == 128 + sig, (proc.returncode, err)
+        assert "stopped by" in err and "the run did not finish" in err, err
+    after = consistent(out)
     assert {p.name: sha(p) for p in out.iterdir() if not p.name.startswith(".")} == before_hash
     assert after == before
     if sig != signal.SIGKILL:
         assert not [p for p in out.iterdir() if p.name.startswith(".")]   # nothing partial
     else:                              # SIGKILL cannot be caught: the next run sweeps up
-        subprocess.run(run_cmd(study, out), check=True, timeout=300)
+        subprocess.run(run_cmd("studies/buzzer.toml", out), check=True, timeout=300)
         assert not [p for p in out.iterdir() if p.name.startswith(".")]
         consistent(out)
 
@@ -90,10 +118,11 @@ vcc = { min = 5, max = 15, steps = 11 }
     assert code == 0 and "points" in outp and "run refuses this without --yes" in outp
 
 
-def test_same_study_and_seed_give_identical_tables_and_hashes(tmp_path, capsys):
-    a, b = tmp_path / "a", tmp_path / "b"
-    for d in (a, b):
-        assert cli(["run", "studies/buzzer.toml", "--out", str(d), "-q"], capsys)[0] == 0
+@pytest.mark.slow
+def test_same_study_and_seed_give_identical_tables_and_hashes(examples, tmp_path, capsys):
+    a, b = examples["buzzer"].out, tmp_path / "b"        # the session's run, and one more
+    assert examples["buzzer"].code == 0
+    assert cli(["run", "studies/buzzer.toml", "--out", str(b), "-q"], capsys)[0] == 0
     ra, rb = (json.loads((d / "run.json").read_text()) for d in (a, b))
     for k in ("created", "seconds_analysis", "seconds_total"):
         ra.pop(k), rb.pop(k)
@@ -107,6 +136,7 @@ def test_same_study_and_seed_give_identical_tables_and_hashes(tmp_path, capsys):
 HOSTILE = '=HYPERLINK("http://example.invalid","x")<script>alert(1)</script>'
 
 
+@pytest.mark.slow
 def test_hostile_title_notes_and_file_name(tmp_path, capsys):
     name = tmp_path / "=cmd@+x <b>.toml"
     name.write_text(Path("studies/dosing-pump.toml").read_text(encoding="utf-8")
@@ -142,6 +172,7 @@ def test_bad_run_options(args, words, capsys):
         assert w in err
 
 
+@pytest.mark.slow
 def test_a_stop_signal_that_lands_in_a_finaliser_still_stops_the_run():
     # Python cannot raise an exception out of a finaliser (__del__): it prints "Exception
     # ignored" with a traceback and goes on. A stop signal that lands there must neither print
@@ -169,14 +200,15 @@ except KeyboardInterrupt:
     assert "Traceback" not in proc.stderr and "Exception ignored" not in proc.stderr
 
 
-def test_a_stop_the_run_did_not_see_still_keeps_the_previous_outputs(tmp_path):
+@pytest.mark.slow
+def test_a_stop_the_run_did_not_see_still_keeps_the_previous_outputs(examples, tmp_path):
     # a library may swallow the interrupt a stop signal raises (a bare except); the commit asks
     # whether a stop arrived and, if so, puts nothing in place [the all-or-nothing contract]
     from sweep.pipeline import run_study
     from sweep.study import load_study
     st = load_study("studies/jig-latch.toml")
-    out = tmp_path / "out"
-    run_study(st, out)
+    assert examples["jig-latch"].code == 0
+    out = examples["jig-latch"].copy_to(tmp_path / "out")     # the previous outputs
     before = {p.name: sha(p) for p in out.iterdir()}
     with pytest.raises(KeyboardInterrupt):
         run_study(st, out, stop_requested=lambda: True)

@@ -11,8 +11,7 @@ import pytest
 from openpyxl import load_workbook
 
 from tests.cli_helpers import cli
-
-EXAMPLES = sorted(Path("studies").glob("*.toml"))
+from tests.conftest import EXAMPLES
 MACHINE = ["design", "condition", "vcc_v", "temperature_c", "high_time_s", "low_time_s", "period_s",
            "frequency_hz", "duty", "pulse_width_s", "supply_current_a", "power_w", "output_high_v",
            "output_current_a", "discharge_peak_a", "ra_power_w", "junction_temp_c", "flags", "ok"]
@@ -20,35 +19,37 @@ MACHINE = ["design", "condition", "vcc_v", "temperature_c", "high_time_s", "low_
 
 
 
-@pytest.mark.parametrize("study", EXAMPLES, ids=[p.stem for p in EXAMPLES])
-def test_every_example_runs_end_to_end(study, tmp_path, capsys):
-    code, out, err = cli(["run", str(study), "--out", str(tmp_path)], capsys)
-    assert code == 0, err
-    name = study.stem
-    files = {p.name for p in tmp_path.iterdir()}
+@pytest.mark.slow
+@pytest.mark.parametrize("name", [p.stem for p in EXAMPLES])
+def test_every_example_runs_end_to_end(name, examples):
+    run = examples[name]
+    assert run.code == 0, run.stderr
+    out = run.out
+    files = {p.name for p in out.iterdir()}
     assert files == {f"{name}.xlsx", f"{name}.html", "points.parquet", "designs.parquet", "bom.csv",
                      "waveform.csv", "run.json"}
-    wb = load_workbook(tmp_path / f"{name}.xlsx", read_only=True)
+    wb = load_workbook(out / f"{name}.xlsx", read_only=True)
     assert wb.sheetnames == ["Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes"]
-    pts = pd.read_parquet(tmp_path / "points.parquet")
+    pts = pd.read_parquet(out / "points.parquet")
     assert set(MACHINE) <= set(pts.columns)
-    rec = json.loads((tmp_path / "run.json").read_text())
+    rec = run.record
     assert rec["points"] == len(pts) == rec["points_in_parquet"]
     assert len(rec["study_sha256"]) == 64 and rec["seed"] >= 0
-    designs = pd.read_parquet(tmp_path / "designs.parquet")       # every design, design order
+    designs = pd.read_parquet(out / "designs.parquet")       # every design, design order
     assert list(designs["design"]) == list(range(1, len(designs) + 1))
     assert sorted(designs["rank"]) == list(range(1, len(designs) + 1))
     assert rec["designs"] == len(designs)
-    assert "rank" in out and "wrote" in out                    # the terminal table
-    page = (tmp_path / f"{name}.html").read_text(encoding="utf-8")
+    assert "rank" in run.stdout and "wrote" in run.stdout     # the terminal table
+    page = (out / f"{name}.html").read_text(encoding="utf-8")
     assert "Plotly.newPlot" in page and '<script src="http' not in page
-    assert not list(tmp_path.glob(".*"))                        # no temporary left behind
+    assert not list(out.glob(".*"))                            # no temporary left behind
 
 
-def test_points_rows_agree_with_the_flags_and_ok_columns(tmp_path, capsys):
-    code, _, err = cli(["run", "studies/bike-light.toml", "--out", str(tmp_path), "-q"], capsys)
-    assert code == 0, err
-    pts = pd.read_parquet(tmp_path / "points.parquet")
+@pytest.mark.slow
+def test_points_rows_agree_with_the_flags_and_ok_columns(examples):
+    run = examples["bike-light"]
+    assert run.code == 0, run.stderr
+    pts = pd.read_parquet(run.out / "points.parquet")
     assert (pts["ok"] == (pts["flags"] == "")).all()
     # frequency = 1 / period and duty = high / period at every point [book: definitions]
     good = pts["period_s"].notna()
@@ -58,9 +59,10 @@ def test_points_rows_agree_with_the_flags_and_ok_columns(tmp_path, capsys):
     assert (pts.loc[good, "duty"] < 0.5).any()
 
 
-def test_workbook_study_sheet_round_trip(tmp_path, capsys):
-    a, b = tmp_path / "a", tmp_path / "b"
-    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+@pytest.mark.slow
+def test_workbook_study_sheet_round_trip(examples, tmp_path, capsys):
+    a, b = examples["dosing-pump"].out, tmp_path / "b"
+    assert examples["dosing-pump"].code == 0
     assert cli(["run", str(a / "dosing-pump.xlsx"), "--out", str(b), "-q"], capsys)[0] == 0
     da, db = pd.read_parquet(a / "designs.parquet"), pd.read_parquet(b / "designs.parquet")
     pd.testing.assert_frame_equal(da, db)
@@ -70,9 +72,10 @@ def test_workbook_study_sheet_round_trip(tmp_path, capsys):
         assert ra["sha256"][name] == rb["sha256"][name]
 
 
-def test_edited_workbook_changes_the_run(tmp_path, capsys):
-    a = tmp_path / "a"
-    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+@pytest.mark.slow
+def test_edited_workbook_changes_the_run(examples, tmp_path, capsys):
+    a = examples["dosing-pump"].out
+    assert examples["dosing-pump"].code == 0
     wb = load_workbook(a / "dosing-pump.xlsx")
     ws = wb["Study"]
     for row in ws.iter_rows(min_row=3):
@@ -133,6 +136,7 @@ def test_version_and_help(capsys):
         assert code == 0 and "Usage" in out
 
 
+@pytest.mark.slow
 def test_a_spec_no_design_can_meet_is_said_plainly_everywhere(tmp_path, capsys):
     study = tmp_path / "impossible.toml"
     study.write_text(Path("studies/buzzer.toml").read_text(encoding="utf-8")
@@ -149,18 +153,20 @@ def test_a_spec_no_design_can_meet_is_said_plainly_everywhere(tmp_path, capsys):
     assert json.loads((tmp_path / "o" / "run.json").read_text())["meets_spec"] is False
 
 
-def test_examples_show_a_pick_with_its_yield(tmp_path, capsys):
+@pytest.mark.slow
+def test_examples_show_a_pick_with_its_yield(examples):
     for study in EXAMPLES:
-        out = tmp_path / study.stem
-        assert cli(["run", str(study), "--out", str(out), "-q"], capsys)[0] == 0
+        out = examples[study.stem].out
+        assert examples[study.stem].code == 0
         best = pd.read_parquet(out / "designs.parquet").set_index("rank").loc[1]
         assert 0.0 <= best["yield"] <= 1.0                                     # a sampled yield
         assert "spec" in Path(study).read_text(encoding="utf-8")
 
 
-def test_a_mistake_in_an_edited_workbook_names_its_sheet_row(tmp_path, capsys):
-    a = tmp_path / "a"
-    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+@pytest.mark.slow
+def test_a_mistake_in_an_edited_workbook_names_its_sheet_row(examples, tmp_path, capsys):
+    a = examples["dosing-pump"].out
+    assert examples["dosing-pump"].code == 0
     wb = load_workbook(a / "dosing-pump.xlsx")
     ws = wb["Study"]
     row = next(r[0].row for r in ws.iter_rows(min_row=3) if r[1].value == "capacitor")
@@ -171,20 +177,23 @@ def test_a_mistake_in_an_edited_workbook_names_its_sheet_row(tmp_path, capsys):
     assert "tantalum" in err                                   # the suggestion
 
 
-def test_a_workbook_run_never_overwrites_its_own_input(tmp_path, capsys):
-    a = tmp_path / "a"
-    assert cli(["run", "studies/dosing-pump.toml", "--out", str(a), "-q"], capsys)[0] == 0
+@pytest.mark.slow
+def test_a_workbook_run_never_overwrites_its_own_input(examples, tmp_path, capsys):
+    assert examples["dosing-pump"].code == 0
+    a = examples["dosing-pump"].copy_to(tmp_path / "a")       # this run aims at the folder itself
     before = (a / "dosing-pump.xlsx").read_bytes()
     code, _, err = cli(["run", str(a / "dosing-pump.xlsx"), "--out", str(a), "-q"], capsys)
     assert code == 2 and "--out" in err and "overwrite" in err
     assert (a / "dosing-pump.xlsx").read_bytes() == before
 
 
-def test_summary_says_when_the_picks_worst_case_misses_the_spec(tmp_path, capsys):
-    assert cli(["run", "studies/bike-light.toml", "--out", str(tmp_path), "-q"], capsys)[0] == 0
-    rec = json.loads((tmp_path / "run.json").read_text())
-    best = pd.read_parquet(tmp_path / "designs.parquet").set_index("rank").loc[1]
-    wb = load_workbook(tmp_path / "bike-light.xlsx", read_only=True)
+@pytest.mark.slow
+def test_summary_says_when_the_picks_worst_case_misses_the_spec(examples):
+    run = examples["bike-light"]
+    assert run.code == 0, run.stderr
+    rec = run.record
+    best = pd.read_parquet(run.out / "designs.parquet").set_index("rank").loc[1]
+    wb = load_workbook(run.out / "bike-light.xlsx", read_only=True)
     text = " ".join(str(c) for row in wb["Summary"].iter_rows(values_only=True) for c in row if c)
     inside = best["frequency_hz_wc_min"] >= 1.7 and best["frequency_hz_wc_max"] <= 2.3
     assert rec["worst_case_in_spec"] == inside

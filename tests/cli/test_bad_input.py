@@ -230,7 +230,3 @@ def test_unwritable_output_folder(tmp_path, capsys):
     blocker.write_text("x")
     code, err = run_cli(["run", str(study), "--out", str(blocker / "sub"), "--quiet"], capsys)
     assert code == 2 and "--out" in err and "Traceback" not in err
-
-
-def test_battery_has_at_least_sixty_cases():
-    assert len(STUDY_CASES) + len(BAD_TIMERS) + len(FILE_CASES) + len(OPTION_CASES) + 1 >= 60
