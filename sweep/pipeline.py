@@ -402,12 +402,13 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     for path in final.values():
         check_target(path)
     staging = out_dir / f"{STAGING}{os.getpid()}"
-    try:
-        staging.mkdir(exist_ok=True)
-    except OSError as e:
-        raise InputError(str(out_dir), "--out", f"cannot write here: {e.strerror}") from None
     tmp = {k: staging / p.name for k, p in final.items()}
     try:
+        # made inside the try, so a stop signal landing right after it still removes it
+        try:
+            staging.mkdir(exist_ok=True)
+        except OSError as e:
+            raise InputError(str(out_dir), "--out", f"cannot write here: {e.strerror}") from None
         limit = study.n_points if all_points else parquet_points
         an = analyse(study, Options(ideal=ideal), staging, chunk, tmp["points"], limit, progress, mapper)
         t_an = time.perf_counter() - t0

@@ -8,8 +8,7 @@ import itertools
 import numpy as np
 import pytest
 
-from sweep.engine import (Variation, axis_values, design_blocks, evaluate_block, flag_text,
-                          nominal_conditions, spec_fail)
+from sweep.engine import Variation, axis_values, design_blocks, evaluate_block, flag_text, spec_fail
 from sweep.physics import FLAG_BITS, evaluate
 from sweep.study import parse_study
 
@@ -76,7 +75,7 @@ def test_a_block_equals_the_model_one_point_at_a_time(study, ideal):
     rng = np.random.default_rng(3)
     design = axis_values(study.design, rng.choice(study.n_designs, 5, replace=False))
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
-    block = evaluate_block(study, design, cond, ideal=ideal, with_spec=False)
+    block = evaluate_block(study.case, design, cond, ideal=ideal, with_spec=False)
     assert block["frequency_hz"].shape == (5, 1, study.n_conditions)
     for i in range(5):
         for j in range(study.n_conditions):
@@ -96,11 +95,11 @@ def test_a_block_equals_the_model_one_point_at_a_time(study, ideal):
 def test_a_part_variation_is_the_same_as_evaluating_the_changed_part(study):
     # a build with C 10 % high and RA 1 % low is the nominal design with those values
     design = axis_values(study.design, np.array([4, 17]))
-    cond = {k: np.array([v]) for k, v in nominal_conditions(study).items()}
+    cond = {k: np.array([v]) for k, v in study.case.nominal.items()}
     var = Variation(part={"c": np.array([[[1.10]]]), "ra": np.array([[[0.99]]])})
-    built = evaluate_block(study, design, cond, variation=var, with_spec=False)
+    built = evaluate_block(study.case, design, cond, variation=var, with_spec=False)
     changed = dict(design, c=design["c"] * 1.10, ra=design["ra"] * 0.99)
-    direct = evaluate_block(study, changed, cond, with_spec=False)
+    direct = evaluate_block(study.case, changed, cond, with_spec=False)
     np.testing.assert_allclose(built["high_time_s"], direct["high_time_s"], rtol=1e-12)
     np.testing.assert_allclose(built["supply_current_a"], direct["supply_current_a"], rtol=1e-12)
 
@@ -108,13 +107,13 @@ def test_a_part_variation_is_the_same_as_evaluating_the_changed_part(study):
 def test_the_spec_flag_marks_exactly_the_points_outside_the_spec(study):
     design = axis_values(study.design, np.arange(study.n_designs))
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
-    out = evaluate_block(study, design, cond)
+    out = evaluate_block(study.case, design, cond)
     f = out["frequency_hz"]
     outside = ~((f >= 100.0) & (f <= 2000.0))                    # the study's [spec], NaN misses
     assert outside.any() and (~outside).any()                    # both kinds are present
     miss = (out["flag_mask"] & FLAG_BITS["spec-miss"]) != 0
     assert np.array_equal(miss, outside)
-    assert np.array_equal(spec_fail(study, out), outside)
+    assert np.array_equal(spec_fail(study.case, out), outside)
 
 
 def test_flag_text_decodes_every_bit_of_a_mask():

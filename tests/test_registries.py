@@ -4,11 +4,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
 import pytest
 
-from sweep.models import load_timer
-from sweep.physics import FLAGS, REGISTRY, TIMING_PARTS, Load, Parts, evaluate
+from sweep.physics import FLAGS, REGISTRY, TIMING_PARTS
 from sweep.starters import starter_text
 from sweep.study import SPEC_COLUMNS, parse_study
 from sweep.values import unit_symbol
@@ -16,14 +14,6 @@ from sweep.variables import AXES, FLAG_TEXT, OUTPUTS, REFS, STATS, VARIABLES
 
 REFERENCE = Path(__file__).parent / "reference"
 CIRCUITS = sorted(REGISTRY)
-
-
-def _evaluate(name: str, ideal: bool = False):
-    kw = {k: np.array([10e3, 47e3]) for k in REGISTRY[name].parts if k != "c"}
-    if "c" in REGISTRY[name].parts:
-        kw["c"] = np.array([10e-9, 1e-6])
-    return evaluate(name, load_timer("cmos"), Parts(), Load(resistance_ohm=1e3), vcc=5.0,
-                    temperature=25.0, input_period=1e-3, ideal=ideal, **kw)
 
 
 @pytest.mark.parametrize("name", CIRCUITS)
@@ -52,17 +42,8 @@ def test_every_starter_is_a_valid_study_of_its_circuit(name):
     assert {a.key for a in st.design} >= set(REGISTRY[name].parts)
 
 
-@pytest.mark.parametrize("name", CIRCUITS)
-def test_every_output_the_model_returns_has_a_variable(name):
-    for ideal in (False, True):
-        out = _evaluate(name, ideal)
-        assert set(out) - {"flag_mask"} <= set(VARIABLES), set(out) - set(VARIABLES)
-        assert set(OUTPUTS) - {"battery_life_h"} <= set(out)   # the engine adds battery life
-
-
 def test_every_flag_has_a_text_and_no_text_is_orphaned():
     assert set(FLAG_TEXT) == set(FLAGS)
-    assert all(len(FLAG_TEXT[f]) > 10 for f in FLAGS)
 
 
 def test_units_agree_between_parsing_and_display():

@@ -7,8 +7,8 @@ import math
 import pytest
 
 from sweep.models import load_timer
-from sweep.physics import CIRCUIT_PARTS, CIRCUITS, FLAG_BITS, Load, Parts, evaluate
-from sweep.variables import AXES, FLAG_TEXT, FLAGS, OUTPUTS, VARIABLES, eng, header
+from sweep.physics import CIRCUIT_PARTS, CIRCUITS, FLAG_BITS, FLAGS, Load, Parts, evaluate
+from sweep.variables import AXES, FLAG_TEXT, OUTPUTS, VARIABLES, eng
 
 #: model results that are not columns of any output (the waveform's phase figures and the
 #: packed flags, which become the `flags` text) [DEVELOPERS.md, how data flows]
@@ -39,7 +39,7 @@ def test_every_output_the_model_returns_has_a_variable(circuit):
 
 
 def test_every_flag_the_model_can_raise_has_a_code_and_a_text():
-    assert list(FLAG_BITS) == FLAGS                  # the same codes in the same order
+    assert list(FLAG_BITS) == list(FLAGS)                 # the same codes in the same order
     for code in FLAG_BITS:
         assert FLAG_TEXT.get(code, "").strip(), code
     # the codes are lower-case words joined by hyphens (stable, used in every output)
@@ -55,9 +55,9 @@ def test_a_machine_name_with_a_unit_suffix_shows_that_unit(name):
     var = VARIABLES[name]
     if suffix in SUFFIX_UNIT:
         assert var.unit == SUFFIX_UNIT[suffix], (name, var.unit)
-        assert header(name) == f"{var.label} [{var.unit}]"
+        assert var.header == f"{var.label} [{var.unit}]"
     if var.unit == "":
-        assert header(name) == var.label                     # no empty brackets
+        assert var.header == var.label                    # no empty brackets
 
 
 def test_every_sweepable_key_names_a_registered_column_of_its_unit():
@@ -73,4 +73,3 @@ def test_eng_reads_values_as_a_person_would():
     assert eng(4700.0, "ra_ohm") == "4.7 kΩ" and eng(100e-9, "c_f") == "100 nF"
     assert eng(0.35, "duty") == "35.0 %"
     assert eng(math.nan, "frequency_hz") == "-" and eng(math.inf, "duty") == "-"
-    assert header("no_such_column") == "no_such_column"
