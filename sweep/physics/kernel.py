@@ -34,7 +34,7 @@ COMPILED = ("astable", "monostable", "missing-pulse")
 #: load cost 0.4-0.9 s (measured with tests/benchmarks/kernel.py), more than a small sweep takes
 MIN_POINTS = 200_000
 #: points per tile: the stages' buffers stay in the core's cache
-TILE_POINTS = 1 << 14
+TILE_POINTS = 1 << 12
 #: environment variable: "0" keeps every sweep on the numpy model
 ENV = "TIMER_SWEEP_KERNEL"
 
@@ -190,42 +190,55 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     nb, nc = shape3[1], shape3[2]
     rows = shape3[0] * nb
     step = max(1, TILE_POINTS // max(nc, 1))
-    e = _buffer("e", 2, step * nc)
-    lg = _buffer("lg", 3, step * nc)
+    width = step * nc
+    bufs = (_buffer("t", st.N_INPUTS, width), _buffer("e", 2, width), _buffer("lg", 3, width))
     with np.errstate(all="ignore"):       # NaN where a phase never ends, as in the reference
-        _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, e, lg, res, flags)
+        _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags)
     return _result(circuit, st, res, flags, shape, stage)
 
 
-def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, e, lg, res, flags):
-    """The stages over every tile of rows, numpy's exp and log between them."""
+def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
+    """The stages over every tile of rows, numpy's exp and log between them. The scratch
+    buffers are passed whole (the stages use their first m columns) so every call has the same
+    array types."""
+    t, e, lg = bufs
     astable = circuit == "astable"
     for r0 in range(0, rows, step):
         r1 = min(rows, r0 + step)
         m = (r1 - r0) * nc
-        et, lt = e[:, :m], lg[:, :m]
-        ot, ft = res[:, r0 * nc:r1 * nc], flags[r0 * nc:r1 * nc]
+        o = r0 * nc
+        st.gather(pool, ix, r0, r1, nb, nc, t)
+        e_m, lg_m = e[:, :m], lg[:, :m]
         if astable:
-            st.astable_exp1(pool, ix, sc, quad, r0, r1, nb, nc, et)
-            np.exp(et, out=et)
+            st.astable_exp1(t, sc, quad, m, e)
+            np.exp(e_m, out=e_m)
             if quad:
-                st.astable_exp2(pool, ix, sc, r0, r1, nb, nc, et)
-                np.exp(et, out=et)
-            st.astable_logs(pool, ix, sc, r0, r1, nb, nc, et, lt)
-            np.log(lt, out=lt)
-            st.astable_finish(pool, ix, sc, quad, r0, r1, nb, nc, et, lt, ot, ft)
+                st.astable_exp2(t, sc, m, e)
+                np.exp(e_m, out=e_m)
+            st.astable_logs(t, sc, m, e, lg)
+            np.log(lg_m, out=lg_m)
+            st.astable_high(t, sc, quad, m, e, lg, res, o)
+            st.astable_low(t, sc, quad, m, e, lg, res, o)
+            st.astable_sum(t, sc, m, res, o)
+            st.astable_rates(t, sc, m, res, flags, o)
+            st.astable_discharge(t, sc, quad, m, e, lg, res, flags, o)
+            st.astable_wave(t, sc, m, e, res, o)
         else:
-            e1, l2 = et[:1], lt[:2]
-            st.mono_exp1(pool, ix, sc, quad, r0, r1, nb, nc, e1, l2)
-            np.exp(e1, out=e1)
-            np.log(l2[:1], out=l2[:1])
+            st.mono_exp1(t, sc, quad, m, e, lg)
+            np.exp(e_m[0], out=e_m[0])
+            np.log(lg_m[0], out=lg_m[0])
             if quad:
-                st.mono_exp2(pool, ix, sc, r0, r1, nb, nc, e1)
-                np.exp(e1, out=e1)
-            st.mono_logs(pool, ix, sc, r0, r1, nb, nc, e1, l2)
-            np.log(l2[1:], out=l2[1:])
-            st.mono_finish(pool, ix, sc, quad, circuit == "missing-pulse", r0, r1, nb, nc, e1, l2,
-                           ot, ft)
+                st.mono_exp2(t, sc, m, e)
+                np.exp(e_m[0], out=e_m[0])
+            st.mono_logs(t, sc, m, e, lg)
+            np.log(lg_m[1], out=lg_m[1])
+            missing = circuit == "missing-pulse"
+            st.mono_pulse(t, sc, quad, m, e, lg, res, o)
+            if missing:
+                st.missing_supply(t, sc, m, lg, res, o)
+            st.mono_heat(t, sc, missing, m, res, flags, o)
+            st.mono_discharge(t, sc, quad, m, e, lg, res, flags, o)
+            st.mono_wave(t, sc, m, e, res, o)
 
 
 def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:

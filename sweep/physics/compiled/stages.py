@@ -9,7 +9,9 @@ whole tile at once; a stage recomputes cheap per-point quantities rather than st
 Inputs arrive in one pool of float64 values with an index (offset and element strides along
 designs, builds and conditions) per input, so every call has the same types, one compiled
 specialisation serves them all and the on-disk cache holds it; an input that does not vary
-along an axis has stride 0 there and is stored once. A tile is a range
+along an axis has stride 0 there and is stored once. `gather` lays a tile's inputs out as
+contiguous rows (a fill or a copy per grid row, both vectorised), so the stages read plain
+contiguous arrays and helpers take only scalars. A tile is a range
 of rows (design, build) with every condition of each row. The equations, their sources and their
 units are documented in `sweep.physics.model` and `sweep.physics.nodes`; nothing here is new
 physics.
@@ -53,9 +55,21 @@ N_MONO = 12
 
 
 @njit(**OPTS)
-def _g(pool, ix, n, i, j, k):
-    """Input n at point (i, j, k) of the 3-D grid."""
-    return pool[ix[n, 0] + i * ix[n, 1] + j * ix[n, 2] + k * ix[n, 3]]
+def gather(pool, ix, r0, r1, nb, nc, t):
+    """Every input of grid rows r0..r1 (row = design x build, all conditions) into t[input, p]."""
+    for n in range(N_INPUTS):
+        for r in range(r0, r1):
+            i = r // nb
+            j = r - i * nb
+            o = ix[n, 0] + i * ix[n, 1] + j * ix[n, 2]
+            base = (r - r0) * nc
+            if ix[n, 3] == 0:
+                v = pool[o]
+                for k in range(nc):
+                    t[n, base + k] = v
+            else:
+                for k in range(nc):
+                    t[n, base + k] = pool[o + k]
 
 
 @njit(**OPTS)
@@ -113,18 +127,12 @@ def _linear_time(quad, log, vinf, g, v0, v1, scale, stray, s0, s1, s2, a, h):
 # --- astable (RA, RB, C) ----------------------------------------------------------------------
 
 @njit(**OPTS)
-def _astable_point(pool, ix, sc, i, j, k):
+def _astable_nets(vcc, rf, ra, rb, g_leak, i_draw, rs, vs):
     """The astable's per-point networks: RA and RB at temperature, the discharge node's
-    Thevenin source and its line a + b V, both phases' (V_inf, g), and C and dC/dv at the two
-    thresholds."""
-    vcc = _g(pool, ix, VCC, i, j, k)
-    rf = _g(pool, ix, RF, i, j, k)
-    ra_t = _g(pool, ix, RA, i, j, k) * rf
-    rb_t = _g(pool, ix, RB, i, j, k) * rf
-    g_leak = _g(pool, ix, GLEAK, i, j, k)
-    i_draw = sc[IDRAW]
-    rs = sc[RS]
-    vs = sc[VS]
+    Thevenin source and its line a + b V, and both phases' (V_inf, g) [model._discharge_network,
+    model.node_source]."""
+    ra_t = ra * rf
+    rb_t = rb * rf
     v_d = (vcc * rs + vs * ra_t) / (ra_t + rs)
     r_d = ra_t * rs / (ra_t + rs)
     den = rs * rb_t + ra_t * rb_t + ra_t * rs
@@ -136,332 +144,407 @@ def _astable_point(pool, ix, sc, i, j, k):
     r_high = ra_t + rb_t
     g_h = 1.0 / r_high + g_leak
     vinf_h = (vcc / r_high - i_draw) / g_h
-    return vcc, ra_t, rb_t, g_leak, a_d, b_d, vinf_d, g_d, vinf_h, g_h
+    return ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h
 
 
 @njit(**OPTS)
-def _curve(pool, ix, sc, i, j, k):
-    scale = _g(pool, ix, C, i, j, k) * _g(pool, ix, CTF, i, j, k)
-    return (scale, sc[STRAY], _g(pool, ix, S0, i, j, k), _g(pool, ix, S1, i, j, k), _g(pool, ix, S2, i, j, k),
-            _g(pool, ix, A, i, j, k), _g(pool, ix, H, i, j, k))
-
-
-@njit(**OPTS)
-def astable_exp1(pool, ix, sc, quad, r0, r1, nb, nc, e):
+def astable_exp1(t, sc, quad, m, e):
     """Arguments of the first exponential of both run-ons (the low phase past Vc/2, the high
     phase past Vc)."""
-    tpd = sc[TPD]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            vcc, ra_t, rb_t, g_leak, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_point(pool, ix, sc, i, j, k)
-            scale, stray, s0, s1, s2, a, h = _curve(pool, ix, sc, i, j, k)
-            c_lo, dc_lo = _cap_at_fraction(quad, 1.0 / 3.0, scale, stray, s0, s1, s2, h)
-            c_up, dc_up = _cap_at_fraction(quad, 1.0, scale, stray, s0, s1, s2, h)
-            e[0, base + k] = -tpd * g_d / c_lo
-            e[1, base + k] = -tpd * g_h / c_up
+    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    for p in range(m):
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        scale = t[C, p] * t[CTF, p]
+        c_lo = _cap_at_fraction(quad, 1.0 / 3.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])[0]
+        c_up = _cap_at_fraction(quad, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])[0]
+        e[0, p] = -tpd * g_d / c_lo
+        e[1, p] = -tpd * g_h / c_up
 
 
 @njit(**OPTS)
-def astable_exp2(pool, ix, sc, r0, r1, nb, nc, e):
-    """Second exponential of both run-ons: C taken at the middle of the run [see nodes.run_on]."""
-    tpd = sc[TPD]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            vcc, ra_t, rb_t, g_leak, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_point(pool, ix, sc, i, j, k)
-            scale, stray, s0, s1, s2, a, h = _curve(pool, ix, sc, i, j, k)
-            v_up = _g(pool, ix, VUP, i, j, k)
-            v_lo = 0.5 * v_up
-            c_lo, dc_lo = _cap_at_fraction(True, 1.0 / 3.0, scale, stray, s0, s1, s2, h)
-            c_up, dc_up = _cap_at_fraction(True, 1.0, scale, stray, s0, s1, s2, h)
-            v_est = vinf_d - (vinf_d - v_lo) * e[0, base + k]
-            e[0, base + k] = -tpd * g_d / (c_lo + 0.5 * dc_lo * (v_est - v_lo))
-            v_est = vinf_h - (vinf_h - v_up) * e[1, base + k]
-            e[1, base + k] = -tpd * g_h / (c_up + 0.5 * dc_up * (v_est - v_up))
+def astable_exp2(t, sc, m, e):
+    """Second exponential of both run-ons: C taken at the middle of the run [nodes.run_on]."""
+    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    for p in range(m):
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        scale = t[C, p] * t[CTF, p]
+        v_up = t[VUP, p]
+        v_lo = 0.5 * v_up
+        c_lo, dc_lo = _cap_at_fraction(True, 1.0 / 3.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])
+        c_up, dc_up = _cap_at_fraction(True, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])
+        v_est = vinf_d - (vinf_d - v_lo) * e[0, p]
+        e[0, p] = -tpd * g_d / (c_lo + 0.5 * dc_lo * (v_est - v_lo))
+        v_est = vinf_h - (vinf_h - v_up) * e[1, p]
+        e[1, p] = -tpd * g_h / (c_up + 0.5 * dc_up * (v_est - v_up))
 
 
 @njit(**OPTS)
-def astable_logs(pool, ix, sc, r0, r1, nb, nc, e, lg):
+def astable_logs(t, sc, m, e, lg):
     """The node where the cycle starts (v_bot) and tops out (v_top) from the run-ons, and the
     arguments of the logarithms: both phases' RC law and the discharge surge's exponential
     tail. e[0], e[1] become v_bot and v_top."""
-    surge_a = sc[SURGE_A]
-    rs = sc[RS]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            vcc, ra_t, rb_t, g_leak, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_point(pool, ix, sc, i, j, k)
-            v_up = _g(pool, ix, VUP, i, j, k)
-            v_lo = 0.5 * v_up
-            v_bot = vinf_d - (vinf_d - v_lo) * e[0, base + k]
-            v_top = vinf_h - (vinf_h - v_up) * e[1, base + k]
-            e[0, base + k] = v_bot
-            e[1, base + k] = v_top
-            lg[0, base + k] = (vinf_h - v_bot) / (vinf_h - v_up)
-            lg[1, base + k] = (vinf_d - v_top) / (vinf_d - v_lo)
-            v_knee = _fmin(v_top, surge_a * (rs + rb_t))
-            lg[2, base + k] = _fmax(v_knee / (0.1 * v_top), 1.0)
+    i_draw, rs, vs, surge_a = sc[IDRAW], sc[RS], sc[VS], sc[SURGE_A]
+    for p in range(m):
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        v_up = t[VUP, p]
+        v_lo = 0.5 * v_up
+        v_bot = vinf_d - (vinf_d - v_lo) * e[0, p]
+        v_top = vinf_h - (vinf_h - v_up) * e[1, p]
+        e[0, p] = v_bot
+        e[1, p] = v_top
+        lg[0, p] = (vinf_h - v_bot) / (vinf_h - v_up)
+        lg[1, p] = (vinf_d - v_top) / (vinf_d - v_lo)
+        v_knee = _fmin(v_top, surge_a * (rs + rb_t))
+        lg[2, p] = _fmax(v_knee / (0.1 * v_top), 1.0)
+
+
+# The outputs are written by several loops, each with few output streams: a loop that writes
+# more than about five arrays does not vectorise (the compiler gives up on the runtime checks
+# that the streams do not overlap). Each recomputes the cheap networks it needs.
+
+@njit(**OPTS)
+def astable_high(t, sc, quad, m, e, lg, out, o):
+    """The high phase from v_bot to v_up and on to v_top [nodes.linear_phase]: its length [s]
+    into the high-time row and the mean current [A] the node draws over it (charge, leakage,
+    input currents) into the supply row; astable_sum finishes both."""
+    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    for p in range(m):
+        q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
+        g_leak = t[GLEAK, p]
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], g_leak, i_draw, rs, vs)
+        scale = t[C, p] * t[CTF, p]
+        s0, s1, s2, a, h = t[S0, p], t[S1, p], t[S2, p], t[A, p], t[H, p]
+        v_up = t[VUP, p]
+        v_bot = e[0, p]
+        v_top = e[1, p]
+        c_up = _cap_at_fraction(quad, 1.0, scale, stray, s0, s1, s2, h)[0]
+        tt, qc = _linear_time(quad, lg[0, p], vinf_h, g_h, v_bot, v_up, scale, stray, s0, s1, s2, a, h)
+        vt_h = vinf_h * tt - qc / g_h + 0.5 * (v_up + v_top) * tpd
+        time_h = tt + tpd
+        q_h = qc + c_up * (v_top - v_up) + g_leak * vt_h + i_draw * time_h
+        out[A_TH, q] = time_h
+        out[A_SUPPLY, q] = q_h / time_h
 
 
 @njit(**OPTS)
-def astable_finish(pool, ix, sc, quad, r0, r1, nb, nc, e, lg, out, flags):
-    """Both phases, currents, powers, the discharge surge, junction temperature and the
-    per-point flags [model._astable, model._surge, model._flags]."""
-    tpd = sc[TPD]
-    i_draw = sc[IDRAW]
-    surge_a = sc[SURGE_A]
-    r_sat = sc[RS]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            p = base + k
-            vcc, ra_t, rb_t, g_leak, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_point(pool, ix, sc, i, j, k)
-            scale, stray, s0, s1, s2, a, h = _curve(pool, ix, sc, i, j, k)
-            v_up = _g(pool, ix, VUP, i, j, k)
-            v_lo = 0.5 * v_up
-            v_bot = e[0, p]
-            v_top = e[1, p]
-            c_up = _cap_at_fraction(quad, 1.0, scale, stray, s0, s1, s2, h)[0]
-            c_lo = _cap_at_fraction(quad, 1.0 / 3.0, scale, stray, s0, s1, s2, h)[0]
-            # high phase: linear_phase from v_bot to v_up and on to v_top
-            t, q = _linear_time(quad, lg[0, p], vinf_h, g_h, v_bot, v_up, scale, stray, s0, s1, s2, a, h)
-            vt_h = vinf_h * t - q / g_h + 0.5 * (v_up + v_top) * tpd
-            time_h = t + tpd
-            charge_h = q + c_up * (v_top - v_up)
-            # low phase: from v_top to v_lo and on to v_bot
-            t, q = _linear_time(quad, lg[1, p], vinf_d, g_d, v_top, v_lo, scale, stray, s0, s1, s2, a, h)
-            vt_l = vinf_d * t - q / g_d + 0.5 * (v_lo + v_bot) * tpd
-            time_l = t + tpd
-            stalls = (vinf_h <= v_up) | (vinf_d >= v_lo)
-            t_h = np.nan if stalls else time_h
-            t_l = np.nan if stalls else time_l
-            period = t_h + t_l
-            q_h = charge_h + g_leak * vt_h + i_draw * time_h
-            vm_l = vt_l / time_l
-            vd_mean = a_d + b_d * vm_l
-            i_ra_l = (vcc - vd_mean) / ra_t
-            vd_top = a_d + b_d * v_top
-            dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
-            vd_bot = a_d + b_d * v_bot
-            steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
-            i_start = (vcc - v_bot) / (ra_t + rb_t)
-            p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
-            p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
-            iq_h = _g(pool, ix, IQH, i, j, k)
-            iq_l = _g(pool, ix, IQL, i, j, k)
-            v_high = _g(pool, ix, VHIGH, i, j, k)
-            v_low = _g(pool, ix, VLOW, i, j, k)
-            i_high = _g(pool, ix, IHIGH, i, j, k)
-            i_low = _g(pool, ix, ILOW, i, j, k)
-            i_h = iq_h + q_h / time_h + i_high
-            i_l = iq_l + i_ra_l + i_low
-            supply = (t_h * i_h + t_l * i_l) / period
-            p_chip_h = vcc * iq_h + (vcc - v_high) * i_high
-            p_chip_l = vcc * iq_l + v_low * i_low + p_dis_l
-            p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
-            # the discharge transistor's turn-on surge through RB [model._surge]
-            c_mean = _cap_at(quad, 0.5 * (v_lo + v_top), scale, stray, s0, s1, s2, a, h)
-            energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
-            r_eff = _fmax(r_sat, v_top / surge_a - rb_t)
-            e_tr = energy * r_eff / (r_eff + rb_t)
-            r_loop = r_sat + rb_t
-            v_knee = _fmin(v_top, surge_a * r_loop)
-            t_cc = c_mean * (v_top - v_knee) / surge_a
-            duration = t_cc + (c_mean * r_loop) * lg[2, p]      # lg holds the logarithm now
-            t_amb = _g(pool, ix, TAMB, i, j, k)
-            tj = t_amb + sc[THETA] * p_chip
-            freq = 1.0 / period
-            out[A_TH, p] = t_h
-            out[A_TL, p] = t_l
-            out[A_PER, p] = period
-            out[A_FREQ, p] = freq
-            out[A_DUTY, p] = t_h / period
-            out[A_SUPPLY, p] = supply
-            out[A_PEAK, p] = dis_peak
-            out[A_PRES, p] = p_res
-            out[A_VBOT, p] = v_bot
-            out[A_VTOP, p] = v_top
-            out[A_VINFH, p] = vinf_h
-            out[A_VINFL, p] = vinf_d
-            out[A_DUMP, p] = duration
-            out[A_POWER, p] = vcc * supply
-            out[A_TJ, p] = tj
-            m = np.uint32(_g(pool, ix, MASK_C, i, j, k)) | np.uint32(_g(pool, ix, MASK_D, i, j, k))
-            if _g(pool, ix, RA, i, j, k) + _g(pool, ix, RB, i, j, k) > _g(pool, ix, RMAX, i, j, k):
-                m |= TOO_LARGE
-            if (steady > sc[DIS_MAX]) | (e_tr > sc[SURGE_E_MAX]):
-                m |= DISCHARGE
-            if p_res > sc[P_MAX]:
-                m |= OVERPOWERED
-            if tj > sc[TJ_MAX]:
-                m |= HOT
-            if stalls:
-                m |= STALLS
-            if freq > sc[F_MAX]:
-                m |= FAST
-            flags[p] = m
+def astable_low(t, sc, quad, m, e, lg, out, o):
+    """The low phase from v_top to Vc/2 and on to v_bot [nodes.linear_phase]: its length [s]
+    into the low-time row, RA's mean current [A] into the power row and the discharge
+    transistor's mean dissipation [W] into the duty row; astable_sum and astable_rates use
+    them and write those rows' own figures."""
+    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            vcc, t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        scale = t[C, p] * t[CTF, p]
+        v_lo = 0.5 * t[VUP, p]
+        v_bot = e[0, p]
+        v_top = e[1, p]
+        tt, qc = _linear_time(quad, lg[1, p], vinf_d, g_d, v_top, v_lo, scale, stray, t[S0, p],
+                              t[S1, p], t[S2, p], t[A, p], t[H, p])
+        vt_l = vinf_d * tt - qc / g_d + 0.5 * (v_lo + v_bot) * tpd
+        time_l = tt + tpd
+        vm_l = vt_l / time_l
+        vd_mean = a_d + b_d * vm_l
+        i_ra_l = (vcc - vd_mean) / ra_t
+        out[A_TL, q] = time_l
+        out[A_POWER, q] = i_ra_l
+        out[A_DUTY, q] = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
+
+
+@njit(**OPTS)
+def astable_sum(t, sc, m, out, o):
+    """High and low time (NaN where the node stalls), period, the supply current, and the
+    chip's mean dissipation [W] where the junction temperature goes [model._astable]."""
+    i_draw, rs, vs = sc[IDRAW], sc[RS], sc[VS]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            vcc, t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        v_up = t[VUP, p]
+        stalls = (vinf_h <= v_up) | (vinf_d >= 0.5 * v_up)
+        time_h = out[A_TH, q]
+        t_h = np.nan if stalls else time_h
+        t_l = np.nan if stalls else out[A_TL, q]
+        period = t_h + t_l
+        iq_h = t[IQH, p]
+        iq_l = t[IQL, p]
+        i_high = t[IHIGH, p]
+        i_low = t[ILOW, p]
+        i_h = iq_h + out[A_SUPPLY, q] + i_high
+        i_l = iq_l + out[A_POWER, q] + i_low
+        p_chip_h = vcc * iq_h + (vcc - t[VHIGH, p]) * i_high
+        p_chip_l = vcc * iq_l + t[VLOW, p] * i_low + out[A_DUTY, q]
+        out[A_TH, q] = t_h
+        out[A_TL, q] = t_l
+        out[A_PER, q] = period
+        out[A_SUPPLY, q] = (t_h * i_h + t_l * i_l) / period
+        out[A_TJ, q] = (t_h * p_chip_h + t_l * p_chip_l) / period
+
+
+@njit(**OPTS)
+def astable_rates(t, sc, m, out, flags, o):
+    """Frequency, duty, power, junction temperature (from the chip's dissipation) and the
+    flags of limits and timing [model.evaluate, model._flags]."""
+    i_draw, rs, vs, theta, tj_max, f_max = sc[IDRAW], sc[RS], sc[VS], sc[THETA], sc[TJ_MAX], sc[F_MAX]
+    for p in range(m):
+        q = np.uint64(o + p)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        v_up = t[VUP, p]
+        stalls = (vinf_h <= v_up) | (vinf_d >= 0.5 * v_up)
+        period = out[A_PER, q]
+        freq = 1.0 / period
+        tj = t[TAMB, p] + theta * out[A_TJ, q]
+        out[A_FREQ, q] = freq
+        out[A_DUTY, q] = out[A_TH, q] / period
+        out[A_POWER, q] = t[VCC, p] * out[A_SUPPLY, q]
+        out[A_TJ, q] = tj
+        f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
+        f |= TOO_LARGE if t[RA, p] + t[RB, p] > t[RMAX, p] else np.uint32(0)
+        f |= HOT if tj > tj_max else np.uint32(0)
+        f |= STALLS if stalls else np.uint32(0)
+        f |= FAST if freq > f_max else np.uint32(0)
+        flags[q] = f
+
+
+@njit(**OPTS)
+def astable_discharge(t, sc, quad, m, e, lg, out, flags, o):
+    """The discharge transistor's peak and steady current, RA's dissipation and the turn-on
+    surge through RB, and their flags [model._astable, model._surge, model._flags], adding to
+    flags. lg[2] holds the surge's logarithm."""
+    i_draw, rs, vs, stray = sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    surge_a, dis_max, e_max, p_max = sc[SURGE_A], sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            vcc, t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        scale = t[C, p] * t[CTF, p]
+        v_lo = 0.5 * t[VUP, p]
+        v_bot = e[0, p]
+        v_top = e[1, p]
+        vd_top = a_d + b_d * v_top
+        dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
+        vd_bot = a_d + b_d * v_bot
+        steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
+        i_start = (vcc - v_bot) / (ra_t + rb_t)
+        p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
+        c_mean = _cap_at(quad, 0.5 * (v_lo + v_top), scale, stray, t[S0, p], t[S1, p], t[S2, p],
+                         t[A, p], t[H, p])
+        energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
+        r_eff = _fmax(rs, v_top / surge_a - rb_t)
+        e_tr = energy * r_eff / (r_eff + rb_t)
+        r_loop = rs + rb_t
+        v_knee = _fmin(v_top, surge_a * r_loop)
+        t_cc = c_mean * (v_top - v_knee) / surge_a
+        out[A_PEAK, q] = dis_peak
+        out[A_PRES, q] = p_res
+        out[A_DUMP, q] = t_cc + (c_mean * r_loop) * lg[2, p]
+        f = flags[q]
+        f |= DISCHARGE if (steady > dis_max) | (e_tr > e_max) else np.uint32(0)
+        f |= OVERPOWERED if p_res > p_max else np.uint32(0)
+        flags[q] = f
+
+
+@njit(**OPTS)
+def astable_wave(t, sc, m, e, out, o):
+    """The waveform's levels: where the node starts and tops out, where each phase heads."""
+    i_draw, rs, vs = sc[IDRAW], sc[RS], sc[VS]
+    for p in range(m):
+        q = np.uint64(o + p)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        out[A_VBOT, q] = e[0, p]
+        out[A_VTOP, q] = e[1, p]
+        out[A_VINFH, q] = vinf_h
+        out[A_VINFL, q] = vinf_d
 
 
 # --- monostable (R, C) and the missing-pulse detector -----------------------------------------
 
 @njit(**OPTS)
-def _mono_point(pool, ix, sc, i, j, k):
+def _mono_nets(vcc, r, rf, g_leak, i_draw, vs, r_sat):
     """The monostable's resting node v0 (R against the discharge transistor, leakage and the
     threshold input) and its timing network (V_inf, g) [model._monostable]."""
-    vcc = _g(pool, ix, VCC, i, j, k)
-    r_t = _g(pool, ix, R, i, j, k) * _g(pool, ix, RF, i, j, k)
-    g_leak = _g(pool, ix, GLEAK, i, j, k)
-    i_draw = sc[IDRAW]
-    r_sat = sc[R_SAT_MONO]
+    r_t = r * rf
     if r_sat > 0:
-        v0 = ((vcc / r_t + sc[VS] / r_sat - i_draw) / (1.0 / r_t + 1.0 / r_sat + g_leak))
+        v0 = ((vcc / r_t + vs / r_sat - i_draw) / (1.0 / r_t + 1.0 / r_sat + g_leak))
     else:
-        v0 = sc[VS] + 0.0 * vcc * r_t
+        v0 = vs + 0.0 * vcc * r_t
     g_c = 1.0 / r_t + g_leak
     vinf_c = (vcc / r_t - i_draw) / g_c
-    return vcc, r_t, g_leak, v0, vinf_c, g_c
+    return r_t, v0, vinf_c, g_c
 
 
 @njit(**OPTS)
-def mono_exp1(pool, ix, sc, quad, r0, r1, nb, nc, e, lg):
+def mono_exp1(t, sc, quad, m, e, lg):
     """The run-on's first exponential and the RC law's logarithm of the timing ramp."""
-    tpd = sc[TPD]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            vcc, r_t, g_leak, v0, vinf_c, g_c = _mono_point(pool, ix, sc, i, j, k)
-            scale, stray, s0, s1, s2, a, h = _curve(pool, ix, sc, i, j, k)
-            c_up = _cap_at_fraction(quad, 1.0, scale, stray, s0, s1, s2, h)[0]
-            e[0, base + k] = -tpd * g_c / c_up
-            lg[0, base + k] = (vinf_c - v0) / (vinf_c - _g(pool, ix, VUP, i, j, k))
+    tpd, i_draw, vs, r_sat, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    for p in range(m):
+        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        scale = t[C, p] * t[CTF, p]
+        c_up = _cap_at_fraction(quad, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])[0]
+        e[0, p] = -tpd * g_c / c_up
+        lg[0, p] = (vinf_c - v0) / (vinf_c - t[VUP, p])
 
 
 @njit(**OPTS)
-def mono_exp2(pool, ix, sc, r0, r1, nb, nc, e):
+def mono_exp2(t, sc, m, e):
     """The run-on's second exponential, C at the middle of the run."""
-    tpd = sc[TPD]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            vcc, r_t, g_leak, v0, vinf_c, g_c = _mono_point(pool, ix, sc, i, j, k)
-            scale, stray, s0, s1, s2, a, h = _curve(pool, ix, sc, i, j, k)
-            v_up = _g(pool, ix, VUP, i, j, k)
-            c_up, dc_up = _cap_at_fraction(True, 1.0, scale, stray, s0, s1, s2, h)
-            v_est = vinf_c - (vinf_c - v_up) * e[0, base + k]
-            e[0, base + k] = -tpd * g_c / (c_up + 0.5 * dc_up * (v_est - v_up))
+    tpd, i_draw, vs, r_sat, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    for p in range(m):
+        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        scale = t[C, p] * t[CTF, p]
+        v_up = t[VUP, p]
+        c_up, dc_up = _cap_at_fraction(True, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])
+        v_est = vinf_c - (vinf_c - v_up) * e[0, p]
+        e[0, p] = -tpd * g_c / (c_up + 0.5 * dc_up * (v_est - v_up))
 
 
 @njit(**OPTS)
-def mono_logs(pool, ix, sc, r0, r1, nb, nc, e, lg):
+def mono_logs(t, sc, m, e, lg):
     """v_top from the run-on (into e[0]) and the surge tail's logarithm argument (lg[1])."""
-    surge_a = sc[SURGE_A]
+    i_draw, vs, r_sat, surge_a = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[SURGE_A]
     r_loop = sc[RS] + sc[R_S]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            vcc, r_t, g_leak, v0, vinf_c, g_c = _mono_point(pool, ix, sc, i, j, k)
-            v_up = _g(pool, ix, VUP, i, j, k)
-            v_top = vinf_c - (vinf_c - v_up) * e[0, base + k]
-            e[0, base + k] = v_top
-            v_knee = _fmin(v_top, surge_a * r_loop)
-            lg[1, base + k] = _fmax(v_knee / (0.1 * v_top), 1.0)
+    for p in range(m):
+        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        v_up = t[VUP, p]
+        v_top = vinf_c - (vinf_c - v_up) * e[0, p]
+        e[0, p] = v_top
+        v_knee = _fmin(v_top, surge_a * r_loop)
+        lg[1, p] = _fmax(v_knee / (0.1 * v_top), 1.0)
 
 
 @njit(**OPTS)
-def mono_finish(pool, ix, sc, quad, missing, r0, r1, nb, nc, e, lg, out, flags):
-    """The pulse (or the detector's timeout), currents, powers, the capacitor dump, junction
-    temperature and the per-point flags [model._monostable, model._missing_pulse, model._surge,
-    model._flags]."""
-    tpd = sc[TPD]
-    surge_a = sc[SURGE_A]
-    r_sat = sc[RS]
-    r_s = sc[R_S]
-    for r in range(r0, r1):
-        i = r // nb
-        j = r - i * nb
-        base = (r - r0) * nc
-        for k in range(nc):
-            p = base + k
-            vcc, r_t, g_leak, v0, vinf_c, g_c = _mono_point(pool, ix, sc, i, j, k)
-            scale, stray, s0, s1, s2, a, h = _curve(pool, ix, sc, i, j, k)
-            v_up = _g(pool, ix, VUP, i, j, k)
-            v_top = e[0, p]
-            log = lg[0, p]
-            stalls = vinf_c <= v_up
-            t, q = _linear_time(quad, log, vinf_c, g_c, v0, v_up, scale, stray, s0, s1, s2, a, h)
-            vt = vinf_c * t - q / g_c + 0.5 * (v_up + v_top) * tpd
-            time = t + tpd
-            pw = np.nan if stalls else time
-            vm_h = vt / time
-            i_idle_r = (vcc - v0) / r_t
-            iq_h = _g(pool, ix, IQH, i, j, k)
-            iq_l = _g(pool, ix, IQL, i, j, k)
-            v_high = _g(pool, ix, VHIGH, i, j, k)
-            v_low = _g(pool, ix, VLOW, i, j, k)
-            i_high = _g(pool, ix, IHIGH, i, j, k)
-            i_low = _g(pool, ix, ILOW, i, j, k)
-            supply = iq_h + (vcc - vm_h) / r_t + i_high
-            idle = iq_l + i_idle_r + i_low
-            p_chip = _fmax(vcc * iq_h + (vcc - v_high) * i_high,
-                           vcc * iq_l + v_low * i_low + v0 * i_idle_r)
-            dump = _fmin((v_top - sc[VS]) / sc[R_SAT_DIV], surge_a)
-            p_res = (vcc - v0) * (vcc - v0) / r_t
-            c_mean = _cap_at(quad, 0.5 * (v0 + v_top), scale, stray, s0, s1, s2, a, h)
-            energy = 0.5 * c_mean * (v_top * v_top - v0 * v0)
-            r_eff = _fmax(r_sat, v_top / surge_a - r_s)
-            e_tr = energy * r_eff / (r_eff + r_s)
-            r_loop = r_sat + r_s
-            v_knee = _fmin(v_top, surge_a * r_loop)
-            t_cc = c_mean * (v_top - v_knee) / surge_a
-            duration = t_cc + (c_mean * r_loop) * lg[1, p]
-            tj = _g(pool, ix, TAMB, i, j, k) + sc[THETA] * p_chip
-            m = np.uint32(_g(pool, ix, MASK_C, i, j, k)) | np.uint32(_g(pool, ix, MASK_D, i, j, k))
-            if missing:
-                # the detector's timeout, and the mean current while pulses keep arriving
-                t_in = _g(pool, ix, TIN, i, j, k)
-                tau = pw / log
-                span = _fmin(t_in, pw)
-                v_mean = vinf_c - (vinf_c - v0) * tau / span * -math.expm1(-span / tau)
-                supply = iq_h + (vcc - v_mean) / r_t + i_high
-                if pw != pw:
-                    supply = np.nan
-                out[M_MARGIN, p] = pw - t_in
-                if pw < t_in:
-                    m |= FALSE_ALARM
-            out[M_PW, p] = pw
-            out[M_SUPPLY, p] = supply
-            out[M_IDLE, p] = idle
-            out[M_PEAK, p] = dump + i_idle_r
-            out[M_PRES, p] = p_res
-            out[M_V0, p] = v0
-            out[M_VTOP, p] = v_top
-            out[M_VINF, p] = vinf_c
-            out[M_DUMP, p] = duration
-            out[M_POWER, p] = vcc * supply
-            out[M_TJ, p] = tj
-            if _g(pool, ix, R, i, j, k) > _g(pool, ix, RMAX, i, j, k):
-                m |= TOO_LARGE
-            if (i_idle_r > sc[DIS_MAX]) | (e_tr > sc[SURGE_E_MAX]):
-                m |= DISCHARGE
-            if p_res > sc[P_MAX]:
-                m |= OVERPOWERED
-            if tj > sc[TJ_MAX]:
-                m |= HOT
-            if stalls:
-                m |= STALLS
-            flags[p] = m
+def mono_pulse(t, sc, quad, m, e, lg, out, o):
+    """The pulse (the detector's timeout), the supply current while timing, the idle current
+    and the power [model._monostable] into out[:, o:o+m]. lg[0] holds the ramp's logarithm."""
+    tpd, i_draw, vs, r_sat_m, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    for p in range(m):
+        q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
+        vcc = t[VCC, p]
+        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        scale = t[C, p] * t[CTF, p]
+        v_up = t[VUP, p]
+        v_top = e[0, p]
+        log = lg[0, p]
+        stalls = vinf_c <= v_up
+        tt, qc = _linear_time(quad, log, vinf_c, g_c, v0, v_up, scale, stray, t[S0, p], t[S1, p],
+                              t[S2, p], t[A, p], t[H, p])
+        vt = vinf_c * tt - qc / g_c + 0.5 * (v_up + v_top) * tpd
+        time = tt + tpd
+        pw = np.nan if stalls else time
+        vm_h = vt / time
+        iq_h = t[IQH, p]
+        i_high = t[IHIGH, p]
+        supply = iq_h + (vcc - vm_h) / r_t + i_high
+        out[M_PW, q] = pw
+        out[M_SUPPLY, q] = supply
+        out[M_IDLE, q] = t[IQL, p] + (vcc - v0) / r_t + t[ILOW, p]
+        out[M_POWER, q] = vcc * supply
+
+
+@njit(**OPTS)
+def missing_supply(t, sc, m, lg, out, o):
+    """The detector's supply current and power while pulses keep arriving: the node ramps for
+    one input period at a time [model._missing_pulse]. Its own loop: `expm1` has no vector
+    form, and a call keeps the others from vectorising."""
+    i_draw, vs, r_sat_m = sc[IDRAW], sc[VS], sc[R_SAT_MONO]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        pw = out[M_PW, q]
+        t_in = t[TIN, p]
+        tau = pw / lg[0, p]
+        span = _fmin(t_in, pw)
+        v_mean = vinf_c - (vinf_c - v0) * tau / span * -math.expm1(-span / tau)
+        supply = t[IQH, p] + (vcc - v_mean) / r_t + t[IHIGH, p]
+        if pw != pw:
+            supply = np.nan
+        out[M_SUPPLY, q] = supply
+        out[M_POWER, q] = vcc * supply
+
+
+@njit(**OPTS)
+def mono_heat(t, sc, missing, m, out, flags, o):
+    """Junction temperature, the detector's margin and the flags of limits, timing and false
+    alarms [model.evaluate, model._flags]."""
+    i_draw, vs, r_sat_m, theta, tj_max = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[THETA], sc[TJ_MAX]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        i_idle_r = (vcc - v0) / r_t
+        iq_h = t[IQH, p]
+        iq_l = t[IQL, p]
+        i_high = t[IHIGH, p]
+        i_low = t[ILOW, p]
+        p_chip = _fmax(vcc * iq_h + (vcc - t[VHIGH, p]) * i_high,
+                       vcc * iq_l + t[VLOW, p] * i_low + v0 * i_idle_r)
+        tj = t[TAMB, p] + theta * p_chip
+        out[M_TJ, q] = tj
+        f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
+        if missing:
+            pw = out[M_PW, q]
+            t_in = t[TIN, p]
+            out[M_MARGIN, q] = pw - t_in
+            f |= FALSE_ALARM if pw < t_in else np.uint32(0)
+        f |= TOO_LARGE if t[R, p] > t[RMAX, p] else np.uint32(0)
+        f |= HOT if tj > tj_max else np.uint32(0)
+        f |= STALLS if vinf_c <= t[VUP, p] else np.uint32(0)
+        flags[q] = f
+
+
+@njit(**OPTS)
+def mono_discharge(t, sc, quad, m, e, lg, out, flags, o):
+    """The capacitor's dump into the discharge transistor at the pulse's end, the steady
+    discharge current, R's dissipation, the surge and their flags [model._monostable,
+    model._surge, model._flags], adding to flags. lg[1] holds the surge's logarithm."""
+    i_draw, vs, r_sat_m, stray = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    surge_a, r_sat, r_s, r_div = sc[SURGE_A], sc[RS], sc[R_S], sc[R_SAT_DIV]
+    dis_max, e_max, p_max = sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        scale = t[C, p] * t[CTF, p]
+        v_top = e[0, p]
+        i_idle_r = (vcc - v0) / r_t
+        dump = _fmin((v_top - vs) / r_div, surge_a)
+        p_res = (vcc - v0) * (vcc - v0) / r_t
+        c_mean = _cap_at(quad, 0.5 * (v0 + v_top), scale, stray, t[S0, p], t[S1, p], t[S2, p],
+                         t[A, p], t[H, p])
+        energy = 0.5 * c_mean * (v_top * v_top - v0 * v0)
+        r_eff = _fmax(r_sat, v_top / surge_a - r_s)
+        e_tr = energy * r_eff / (r_eff + r_s)
+        r_loop = r_sat + r_s
+        v_knee = _fmin(v_top, surge_a * r_loop)
+        t_cc = c_mean * (v_top - v_knee) / surge_a
+        out[M_PEAK, q] = dump + i_idle_r
+        out[M_PRES, q] = p_res
+        out[M_DUMP, q] = t_cc + (c_mean * r_loop) * lg[1, p]
+        f = flags[q]
+        f |= DISCHARGE if (i_idle_r > dis_max) | (e_tr > e_max) else np.uint32(0)
+        f |= OVERPOWERED if p_res > p_max else np.uint32(0)
+        flags[q] = f
+
+
+@njit(**OPTS)
+def mono_wave(t, sc, m, e, out, o):
+    """The waveform's levels: the resting node, the top of the ramp, where the ramp heads."""
+    i_draw, vs, r_sat_m = sc[IDRAW], sc[VS], sc[R_SAT_MONO]
+    for p in range(m):
+        q = np.uint64(o + p)
+        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        out[M_V0, q] = v0
+        out[M_VTOP, q] = e[0, p]
+        out[M_VINF, q] = vinf_c
