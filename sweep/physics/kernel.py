@@ -203,11 +203,17 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
     array types."""
     t, e, lg = bufs
     astable = circuit == "astable"
+    need = [st.VCC, st.TAMB, st.C, st.VUP, st.RF, st.CTF, st.GLEAK, st.IQH, st.IQL, st.VHIGH,
+            st.VLOW, st.IHIGH, st.ILOW, st.RMAX, st.MASK_C, st.MASK_D]
+    need += [st.RA, st.RB] if astable else [st.R]
+    need += [st.S0, st.S1, st.S2, st.A, st.H] if quad else []
+    need += [st.TIN] if circuit == "missing-pulse" else []
+    need = np.array(need, dtype=np.int64)
     for r0 in range(0, rows, step):
         r1 = min(rows, r0 + step)
         m = (r1 - r0) * nc
         o = r0 * nc
-        st.gather(pool, ix, r0, r1, nb, nc, t)
+        st.gather(pool, ix, need, r0, r1, nb, nc, t)
         e_m, lg_m = e[:, :m], lg[:, :m]
         if astable:
             st.astable_exp1(t, sc, quad, m, e)

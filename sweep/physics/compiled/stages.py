@@ -55,21 +55,35 @@ N_MONO = 12
 
 
 @njit(**OPTS)
-def gather(pool, ix, r0, r1, nb, nc, t):
-    """Every input of grid rows r0..r1 (row = design x build, all conditions) into t[input, p]."""
-    for n in range(N_INPUTS):
+def gather(pool, ix, need, r0, r1, nb, nc, t):
+    """The inputs listed in need, at grid rows r0..r1 (row = design x build, all conditions),
+    into t[input, p]: one fill over the tile where an input is the same everywhere, else a fill
+    or a copy per row."""
+    m = (r1 - r0) * nc
+    for n in need:
+        o0, s_i, s_j, s_k = ix[n, 0], ix[n, 1], ix[n, 2], ix[n, 3]
+        if s_i == 0 and s_j == 0 and s_k == 0:
+            v = pool[o0]
+            for p in range(m):
+                t[n, p] = v
+            continue
+        i = r0 // nb
+        j = r0 - i * nb
+        base = 0
         for r in range(r0, r1):
-            i = r // nb
-            j = r - i * nb
-            o = ix[n, 0] + i * ix[n, 1] + j * ix[n, 2]
-            base = (r - r0) * nc
-            if ix[n, 3] == 0:
+            o = o0 + i * s_i + j * s_j
+            if s_k == 0:
                 v = pool[o]
                 for k in range(nc):
                     t[n, base + k] = v
             else:
                 for k in range(nc):
                     t[n, base + k] = pool[o + k]
+            base += nc
+            j += 1
+            if j == nb:
+                j = 0
+                i += 1
 
 
 @njit(**OPTS)
