@@ -99,6 +99,103 @@ def _pool(arrays: list, shape: tuple, shape3: tuple):
     return np.concatenate(parts), index
 
 
+def _fingerprint(*items):
+    """A key for the condition-level part of a call: the configuration records themselves (the
+    key keeps them alive, and equal records give equal results) and the condition arrays by
+    content; None (never cached) when an array is large."""
+    key = []
+    for x in items:
+        if isinstance(x, (TimerModel, Parts, Load)):
+            key.append(x)
+            continue
+        a = np.asarray(x)
+        if a.size > 4096:
+            return None
+        key.append((a.shape, a.dtype.str, a.tobytes()))
+    return tuple(key)
+
+
+def _cached(key, compute):
+    """The last call's condition-level results when its key matches (consecutive blocks of a
+    sweep share their conditions), else computed afresh."""
+    last = getattr(_buffers, "conditions", None)
+    if key is not None and last is not None and last[0] == key:
+        return last[1]
+    value = compute()
+    if key is not None:
+        _buffers.conditions = (key, value)
+    return value
+
+
+def _conditions(st, circuit, timer, parts, load, ideal, *, vcc, temperature, control_voltage,
+                load_resistance, load_factor, vf_shift, stage_factor, iq_factor, dc_bias_factor):
+    """Everything that depends on the conditions and builds only, by the reference's own
+    functions on their small shapes: thresholds, the output stage, the quiescent current,
+    the capacitance's temperature factor and curve shape, and the limit flags of supply,
+    temperature and output current [model.evaluate, model._capacitor, model._flags]."""
+    vcc = np.asarray(vcc, dtype=float)
+    t_amb = np.asarray(temperature, dtype=float)
+    cv = np.asarray(control_voltage, dtype=float)
+    rf = 1.0 + parts.resistor_tempco_per_k * (t_amb - 25.0)      # parts.resistor_at's factor
+    v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
+    stage = output_states(timer, load, vcc, t_amb, load_resistance, load_factor, vf_shift,
+                          1.0 if ideal else stage_factor)
+    iq_h = timer.quiescent_a(vcc, output_high=True) * iq_factor
+    iq_l = timer.quiescent_a(vcc, output_high=False) * iq_factor
+    cap = parts.technology
+    ctf = 1.0 if ideal else capacitance_temperature_factor(cap, t_amb)
+    loss = 0.0 if ideal else (cap.dc_bias_loss if parts.dc_bias_loss is None else parts.dc_bias_loss)
+    if loss != 0.0 and not (np.ndim(dc_bias_factor) == 0 and dc_bias_factor == 1.0):
+        loss = loss * np.asarray(dc_bias_factor, dtype=float)
+    timed_from_zero = circuit in ("monostable", "missing-pulse")
+    curve = node_capacitance(1.0, parts.stray_capacitance_f, loss, parts.capacitor_voltage_v,
+                             v_up, 0.0 if timed_from_zero else 0.25)
+    quad = curve.const is None
+    shape_arrays = list(curve.shape) + [curve.a, curve.h] if quad else [0.0, 0.0, 0.0, 0.0, 1.0]
+    bit = {k: np.uint32(v) for k, v in FLAG_BITS.items()}
+    zero = np.uint32(0)
+    mask_c = (np.where(vcc < timer.min_v, bit["supply-below-min"], zero)
+              | np.where(vcc > timer.max_v, bit["supply-above-max"], zero)
+              | np.where(vcc > timer.abs_max_v, bit["supply-above-abs-max"], zero)
+              | np.where((t_amb < timer.ambient_min_c) | (t_amb > timer.ambient_max_c),
+                         bit["temperature-out-of-range"], zero)
+              | np.where((stage.i_high > timer.source_max_a) | (stage.i_low > timer.sink_max_a),
+                         bit["output-current-over-limit"], zero))
+    if timer.threshold_current_max_a > 0:
+        r_max = timer.resistance_derating * (vcc - v_up) / timer.threshold_current_max_a
+    else:
+        r_max = np.inf
+    inputs = {st.VCC: vcc, st.TAMB: t_amb, st.VUP: v_up, st.RF: rf, st.CTF: ctf,
+              st.IQH: iq_h, st.IQL: iq_l, st.VHIGH: stage.v_high, st.VLOW: stage.v_low,
+              st.IHIGH: stage.i_high, st.ILOW: stage.i_low, st.RMAX: r_max, st.MASK_C: mask_c}
+    inputs.update(zip((st.S0, st.S1, st.S2, st.A, st.H), shape_arrays))
+    shape = np.broadcast_shapes(*(np.shape(x) for x in [
+        vcc, t_amb, v_up, rf, ctf, iq_h, iq_l, stage.v_high, stage.v_low, stage.i_high,
+        stage.i_low, *(shape_arrays if quad else [])]))
+    segments = {k: _segment(x) for k, x in inputs.items()} if len(shape) <= 3 else {}
+    return dict(t_amb=t_amb, v_up=v_up, stage=stage, quad=quad, shape=shape, inputs=inputs,
+                segments=segments)
+
+
+def _segment(x):
+    """An input of at most three axes as (its values, element strides along designs, builds,
+    conditions), its axes right-aligned to the grid's; 0 where it does not vary."""
+    a = np.ascontiguousarray(x, dtype=np.float64)
+    a3 = a.reshape((1,) * (3 - a.ndim) + a.shape)
+    return a3.ravel(), [0 if a3.shape[d] == 1 else a3.strides[d] // 8 for d in range(3)]
+
+
+def _join(segments):
+    """One pool of every segment's values and the index of (offset, strides) per input."""
+    index = np.zeros((len(segments), 4), dtype=np.int64)
+    offset = 0
+    for n, (values, strides) in enumerate(segments):
+        index[n, 0] = offset
+        index[n, 1:] = strides
+        offset += values.size
+    return np.concatenate([v for v, _ in segments]), index
+
+
 def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, temperature,
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
              leak_factor=1.0, dc_bias_factor=1.0, diode_is_factor=1.0, iq_factor=1.0,
@@ -116,73 +213,55 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
                               stage_factor=stage_factor, ideal=ideal,
                               load_resistance=load_resistance, input_period=input_period)
     st = _stages()
+    key = _fingerprint(circuit in ("monostable", "missing-pulse"), ideal, timer, parts, load, vcc,
+                       temperature, control_voltage, load_resistance, load_factor, vf_shift,
+                       stage_factor, iq_factor, dc_bias_factor)
     if ideal:
         timer, parts = timer.idealised(), parts.idealised()
-    # --- what depends on the conditions and builds: the reference's own functions -------------
-    vcc = np.asarray(vcc, dtype=float)
-    t_amb = np.asarray(temperature, dtype=float)
-    cv = np.asarray(control_voltage, dtype=float)
-    rf = 1.0 + parts.resistor_tempco_per_k * (t_amb - 25.0)      # parts.resistor_at's factor
-    v_up = np.where(np.isnan(cv), timer.threshold_fraction * vcc, cv)
-    stage = output_states(timer, load, vcc, t_amb, load_resistance, load_factor, vf_shift,
-                          1.0 if ideal else stage_factor)
-    iq_h = timer.quiescent_a(vcc, output_high=True) * iq_factor
-    iq_l = timer.quiescent_a(vcc, output_high=False) * iq_factor
+    cond = _cached(key, lambda: _conditions(
+        st, circuit, timer, parts, load, ideal, vcc=vcc, temperature=temperature,
+        control_voltage=control_voltage, load_resistance=load_resistance,
+        load_factor=load_factor, vf_shift=vf_shift, stage_factor=stage_factor,
+        iq_factor=iq_factor, dc_bias_factor=dc_bias_factor))
+    # --- what depends on the designs: the capacitor's leakage and the part-limit flags ---------
     cap = parts.technology
     c_nom = np.asarray(c, dtype=float)
-    ctf = 1.0 if ideal else capacitance_temperature_factor(cap, t_amb)
-    loss = 0.0 if ideal else (cap.dc_bias_loss if parts.dc_bias_loss is None else parts.dc_bias_loss)
-    if loss != 0.0 and not (np.ndim(dc_bias_factor) == 0 and dc_bias_factor == 1.0):
-        loss = loss * np.asarray(dc_bias_factor, dtype=float)
-    timed_from_zero = circuit in ("monostable", "missing-pulse")
-    curve = node_capacitance(1.0, parts.stray_capacitance_f, loss, parts.capacitor_voltage_v,
-                             v_up, 0.0 if timed_from_zero else 0.25)
-    quad = curve.const is None
-    shape_arrays = list(curve.shape) + [curve.a, curve.h] if quad else [0.0, 0.0, 0.0, 0.0, 1.0]
     g_leak = 0.0 if ideal else leak_factor * leakage_conductance_s(
-        cap, c_nom, parts.capacitor_voltage_v, t_amb, v_work_v=v_up)
-    i_trig = 0.0
-    if circuit in ASTABLES:
-        i_trig = -timer.trigger_current_a if timer.trigger_current_sources else timer.trigger_current_a
-    i_draw = timer.threshold_current_a + i_trig
+        cap, c_nom, parts.capacitor_voltage_v, cond["t_amb"], v_work_v=cond["v_up"])
     t_in = np.asarray(input_period, dtype=float)
-    # the limit flags that need no timing [model._flags]
-    bit = {k: np.uint32(v) for k, v in FLAG_BITS.items()}
     zero = np.uint32(0)
-    mask_c = (np.where(vcc < timer.min_v, bit["supply-below-min"], zero)
-              | np.where(vcc > timer.max_v, bit["supply-above-max"], zero)
-              | np.where(vcc > timer.abs_max_v, bit["supply-above-abs-max"], zero)
-              | np.where((t_amb < timer.ambient_min_c) | (t_amb > timer.ambient_max_c),
-                         bit["temperature-out-of-range"], zero)
-              | np.where((stage.i_high > timer.source_max_a) | (stage.i_low > timer.sink_max_a),
-                         bit["output-current-over-limit"], zero))
     r_in = np.asarray(ra if circuit == "astable" else r, dtype=float)
-    mask_d = (np.where(r_in < timer.min_resistance_ohm, bit["resistor-too-small"], zero)
-              | np.where(c_nom < timer.min_capacitance_f, bit["capacitor-too-small"], zero))
-    if timer.threshold_current_max_a > 0:
-        r_max = timer.resistance_derating * (vcc - v_up) / timer.threshold_current_max_a
-    else:
-        r_max = np.inf
+    mask_d = (np.where(r_in < timer.min_resistance_ohm, np.uint32(FLAG_BITS["resistor-too-small"]), zero)
+              | np.where(c_nom < timer.min_capacitance_f, np.uint32(FLAG_BITS["capacitor-too-small"]), zero))
     # --- the output's shape: every array the reference's outputs broadcast ---------------------
     timing = [ra, rb] if circuit == "astable" else [r]
     if circuit == "missing-pulse":
         timing.append(t_in)
-    shape = np.broadcast_shapes(*(np.shape(x) for x in [
-        vcc, t_amb, v_up, rf, c_nom, ctf, g_leak, iq_h, iq_l, stage.v_high, stage.v_low,
-        stage.i_high, stage.i_low, *timing, *(shape_arrays if quad else [])]))
+    shape = np.broadcast_shapes(cond["shape"], *(np.shape(x) for x in [c_nom, g_leak, *timing]))
     shape3 = _shape3(shape)
     n = int(np.prod(shape3))
+    quad = cond["quad"]
+    i_trig = 0.0
+    if circuit in ASTABLES:
+        i_trig = -timer.trigger_current_a if timer.trigger_current_sources else timer.trigger_current_a
     r_sat_mono = timer.saturation_ohm + parts.discharge_resistor_ohm
-    sc = np.array([timer.propagation_delay_s, parts.stray_capacitance_f, i_draw,
-                   timer.saturation_ohm, timer.saturation_v, timer.surge_current_a,
-                   timer.discharge_max_a, timer.surge_energy_max_j, parts.resistor_power_w,
-                   timer.theta_ja_c_per_w, timer.tj_max_c, timer.max_frequency_hz, r_sat_mono,
-                   parts.discharge_resistor_ohm, max(r_sat_mono, 1e-12)], dtype=np.float64)
-    inputs = [vcc, t_amb, ra, rb, r, c_nom, v_up, rf, ctf, g_leak, *shape_arrays, iq_h, iq_l,
-              stage.v_high, stage.v_low, stage.i_high, stage.i_low, r_max, t_in,
-              mask_c.astype(np.float64), mask_d.astype(np.float64)]
-    assert len(inputs) == st.N_INPUTS and len(sc) == st.N_SCALARS
-    pool, ix = _pool(inputs, shape, shape3)
+    sc = np.array([timer.propagation_delay_s, parts.stray_capacitance_f,
+                   timer.threshold_current_a + i_trig, timer.saturation_ohm, timer.saturation_v,
+                   timer.surge_current_a, timer.discharge_max_a, timer.surge_energy_max_j,
+                   parts.resistor_power_w, timer.theta_ja_c_per_w, timer.tj_max_c,
+                   timer.max_frequency_hz, r_sat_mono, parts.discharge_resistor_ohm,
+                   max(r_sat_mono, 1e-12)], dtype=np.float64)
+    assert len(sc) == st.N_SCALARS
+    design = {st.RA: ra, st.RB: rb, st.R: r, st.C: c_nom, st.GLEAK: g_leak, st.TIN: t_in,
+              st.MASK_D: mask_d}
+    if len(shape) <= 3:
+        segments = dict(cond["segments"])
+        segments.update((k, _segment(x)) for k, x in design.items())
+        pool, ix = _join([segments[k] for k in range(st.N_INPUTS)])
+    else:
+        inputs = dict(cond["inputs"])
+        inputs.update(design)
+        pool, ix = _pool([inputs[k] for k in range(st.N_INPUTS)], shape, shape3)
     # --- the per-point stages, tile by tile ---------------------------------------------------
     n_out = st.N_ASTABLE if circuit == "astable" else st.N_MONO
     res = np.empty((n_out, n))
@@ -194,7 +273,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     bufs = (_buffer("t", st.N_INPUTS, width), _buffer("e", 2, width), _buffer("lg", 3, width))
     with np.errstate(all="ignore"):       # NaN where a phase never ends, as in the reference
         _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags)
-    return _result(circuit, st, res, flags, shape, stage)
+    return _result(circuit, st, res, flags, shape, cond["stage"])
 
 
 def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
