@@ -14,7 +14,7 @@ from typing import Iterator
 
 import numpy as np
 
-from .physics import FLAG_BITS, evaluate, flag_names
+from .physics import FLAG_BITS, evaluate, flag_names, kernel
 from .study import Axis, Study
 
 def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> bool:
@@ -67,9 +67,11 @@ class Variation:
 
 def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
                    *, ideal: bool = False, variation: Variation | None = None,
-                   with_spec: bool = True) -> dict[str, np.ndarray]:
+                   with_spec: bool = True, compiled: bool | None = None) -> dict[str, np.ndarray]:
     """Evaluate designs x [builds x] conditions. Inputs are 1-D arrays per study key; the result
-    arrays have shape (designs, builds, conditions) (builds = 1 without a variation)."""
+    arrays have shape (designs, builds, conditions) (builds = 1 without a variation).
+    compiled: use the compiled kernel (None: when the study's sweep is big enough to pay for
+    loading it and the kernel covers the circuit, see physics.kernel.wanted)."""
     if study.grade_plan and "grade" in design:      # part grades: each with its own parts
         from .grades import evaluate_graded
         return evaluate_graded(study, design, conditions, ideal=ideal, variation=variation,
@@ -87,7 +89,11 @@ def evaluate_block(study: Study, design: dict[str, np.ndarray], conditions: dict
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
-    out = evaluate(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **spreads, **kw)
+    if compiled is None:
+        compiled = kernel.wanted(study.circuit, study.timer, study.parts, study.load, ideal,
+                                 study.n_points)
+    model = kernel.evaluate if compiled else evaluate
+    out = model(study.circuit, study.timer, study.parts, study.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
         vnom = next((a.nominal for a in study.conditions if a.key == "vcc"), study.timer.typical_v)
