@@ -270,7 +270,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     rows = shape3[0] * nb
     step = max(1, TILE_POINTS // max(nc, 1))
     width = step * nc
-    bufs = (_buffer("t", st.N_INPUTS, width), _buffer("e", 2, width), _buffer("lg", 3, width))
+    bufs = (_buffer("t", st.N_ROWS, width), _buffer("e", 2, width), _buffer("lg", 3, width))
     with np.errstate(all="ignore"):       # NaN where a phase never ends, as in the reference
         _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags)
     return _result(circuit, st, res, flags, shape, cond["stage"])
@@ -295,6 +295,7 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
         st.gather(pool, ix, need, r0, r1, nb, nc, t)
         e_m, lg_m = e[:, :m], lg[:, :m]
         if astable:
+            st.astable_nets(t, sc, m)
             st.astable_exp1(t, sc, quad, m, e)
             np.exp(e_m, out=e_m)
             if quad:
@@ -307,8 +308,13 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
             st.astable_sum(t, sc, m, res, o)
             st.astable_rates(t, sc, m, res, flags, o)
             st.astable_discharge(t, sc, quad, m, e, lg, res, flags, o)
-            st.astable_wave(t, sc, m, e, res, o)
+            # the waveform's levels: copies of rows the stages already hold
+            res[st.A_VBOT, o:o + m] = e[0, :m]
+            res[st.A_VTOP, o:o + m] = e[1, :m]
+            res[st.A_VINFH, o:o + m] = t[st.VINFH, :m]
+            res[st.A_VINFL, o:o + m] = t[st.VINFD, :m]
         else:
+            st.mono_nets(t, sc, m)
             st.mono_exp1(t, sc, quad, m, e, lg)
             np.exp(e_m[0], out=e_m[0])
             np.log(lg_m[0], out=lg_m[0])
@@ -323,7 +329,9 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
                 st.missing_supply(t, sc, m, lg, res, o)
             st.mono_heat(t, sc, missing, m, res, flags, o)
             st.mono_discharge(t, sc, quad, m, e, lg, res, flags, o)
-            st.mono_wave(t, sc, m, e, res, o)
+            res[st.M_V0, o:o + m] = t[st.V0, :m]
+            res[st.M_VTOP, o:o + m] = e[0, :m]
+            res[st.M_VINF, o:o + m] = t[st.VINFC, :m]
 
 
 def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:

@@ -40,6 +40,11 @@ FALSE_ALARM = np.uint32(FLAG_BITS["false-alarm"])
 VCC, TAMB, RA, RB, R, C, VUP, RF, CTF, GLEAK, S0, S1, S2, A, H, IQH, IQL, VHIGH, VLOW, IHIGH, \
     ILOW, RMAX, TIN, MASK_C, MASK_D = range(25)
 N_INPUTS = 25
+# per-point networks, computed once per tile into rows after the inputs (each has several
+# divisions, which would otherwise be repeated in every stage)
+RAT, RBT, AD, BD, VINFD, GD, VINFH, GH = range(N_INPUTS, N_INPUTS + 8)
+RT, V0, VINFC, GC = range(N_INPUTS, N_INPUTS + 4)
+N_ROWS = N_INPUTS + 8
 # positions of the scalars in the float vector
 TPD, STRAY, IDRAW, RS, VS, SURGE_A, DIS_MAX, SURGE_E_MAX, P_MAX, THETA, TJ_MAX, F_MAX, \
     R_SAT_MONO, R_S, R_SAT_DIV = range(15)
@@ -162,13 +167,38 @@ def _astable_nets(vcc, rf, ra, rb, g_leak, i_draw, rs, vs):
 
 
 @njit(**OPTS)
+def astable_nets(t, sc, m):
+    """The networks of every point of the tile into their rows (two loops of four rows each:
+    a loop writing more does not vectorise)."""
+    i_draw, rs, vs = sc[IDRAW], sc[RS], sc[VS]
+    for p in range(m):
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        t[RAT, p] = ra_t
+        t[RBT, p] = rb_t
+        t[AD, p] = a_d
+        t[BD, p] = b_d
+    for p in range(m):
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
+            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        t[VINFD, p] = vinf_d
+        t[GD, p] = g_d
+        t[VINFH, p] = vinf_h
+        t[GH, p] = g_h
+
+
+@njit(**OPTS)
+def _nets_a(t, p):
+    return t[RAT, p], t[RBT, p], t[AD, p], t[BD, p], t[VINFD, p], t[GD, p], t[VINFH, p], t[GH, p]
+
+
+@njit(**OPTS)
 def astable_exp1(t, sc, quad, m, e):
     """Arguments of the first exponential of both run-ons (the low phase past Vc/2, the high
     phase past Vc)."""
     tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
     for p in range(m):
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
         c_lo = _cap_at_fraction(quad, 1.0 / 3.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])[0]
         c_up = _cap_at_fraction(quad, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])[0]
@@ -181,8 +211,7 @@ def astable_exp2(t, sc, m, e):
     """Second exponential of both run-ons: C taken at the middle of the run [nodes.run_on]."""
     tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
     for p in range(m):
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
         v_up = t[VUP, p]
         v_lo = 0.5 * v_up
@@ -201,8 +230,7 @@ def astable_logs(t, sc, m, e, lg):
     tail. e[0], e[1] become v_bot and v_top."""
     i_draw, rs, vs, surge_a = sc[IDRAW], sc[RS], sc[VS], sc[SURGE_A]
     for p in range(m):
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         v_up = t[VUP, p]
         v_lo = 0.5 * v_up
         v_bot = vinf_d - (vinf_d - v_lo) * e[0, p]
@@ -228,8 +256,7 @@ def astable_high(t, sc, quad, m, e, lg, out, o):
     for p in range(m):
         q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
         g_leak = t[GLEAK, p]
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], g_leak, i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
         s0, s1, s2, a, h = t[S0, p], t[S1, p], t[S2, p], t[A, p], t[H, p]
         v_up = t[VUP, p]
@@ -254,8 +281,7 @@ def astable_low(t, sc, quad, m, e, lg, out, o):
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            vcc, t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
         v_lo = 0.5 * t[VUP, p]
         v_bot = e[0, p]
@@ -280,8 +306,7 @@ def astable_sum(t, sc, m, out, o):
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            vcc, t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         v_up = t[VUP, p]
         stalls = (vinf_h <= v_up) | (vinf_d >= 0.5 * v_up)
         time_h = out[A_TH, q]
@@ -310,8 +335,7 @@ def astable_rates(t, sc, m, out, flags, o):
     i_draw, rs, vs, theta, tj_max, f_max = sc[IDRAW], sc[RS], sc[VS], sc[THETA], sc[TJ_MAX], sc[F_MAX]
     for p in range(m):
         q = np.uint64(o + p)
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         v_up = t[VUP, p]
         stalls = (vinf_h <= v_up) | (vinf_d >= 0.5 * v_up)
         period = out[A_PER, q]
@@ -339,8 +363,7 @@ def astable_discharge(t, sc, quad, m, e, lg, out, flags, o):
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            vcc, t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
+        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
         v_lo = 0.5 * t[VUP, p]
         v_bot = e[0, p]
@@ -369,22 +392,6 @@ def astable_discharge(t, sc, quad, m, e, lg, out, flags, o):
 
 
 @njit(**OPTS)
-def astable_wave(t, sc, m, e, out, o):
-    """The waveform's levels: where the node starts and tops out, where each phase heads."""
-    i_draw, rs, vs = sc[IDRAW], sc[RS], sc[VS]
-    for p in range(m):
-        q = np.uint64(o + p)
-        ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _astable_nets(
-            t[VCC, p], t[RF, p], t[RA, p], t[RB, p], t[GLEAK, p], i_draw, rs, vs)
-        out[A_VBOT, q] = e[0, p]
-        out[A_VTOP, q] = e[1, p]
-        out[A_VINFH, q] = vinf_h
-        out[A_VINFL, q] = vinf_d
-
-
-# --- monostable (R, C) and the missing-pulse detector -----------------------------------------
-
-@njit(**OPTS)
 def _mono_nets(vcc, r, rf, g_leak, i_draw, vs, r_sat):
     """The monostable's resting node v0 (R against the discharge transistor, leakage and the
     threshold input) and its timing network (V_inf, g) [model._monostable]."""
@@ -399,11 +406,28 @@ def _mono_nets(vcc, r, rf, g_leak, i_draw, vs, r_sat):
 
 
 @njit(**OPTS)
+def mono_nets(t, sc, m):
+    """The networks of every point of the tile into their rows."""
+    i_draw, vs, r_sat = sc[IDRAW], sc[VS], sc[R_SAT_MONO]
+    for p in range(m):
+        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        t[RT, p] = r_t
+        t[V0, p] = v0
+        t[VINFC, p] = vinf_c
+        t[GC, p] = g_c
+
+
+@njit(**OPTS)
+def _nets_m(t, p):
+    return t[RT, p], t[V0, p], t[VINFC, p], t[GC, p]
+
+
+@njit(**OPTS)
 def mono_exp1(t, sc, quad, m, e, lg):
     """The run-on's first exponential and the RC law's logarithm of the timing ramp."""
     tpd, i_draw, vs, r_sat, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
     for p in range(m):
-        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         scale = t[C, p] * t[CTF, p]
         c_up = _cap_at_fraction(quad, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])[0]
         e[0, p] = -tpd * g_c / c_up
@@ -415,7 +439,7 @@ def mono_exp2(t, sc, m, e):
     """The run-on's second exponential, C at the middle of the run."""
     tpd, i_draw, vs, r_sat, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
     for p in range(m):
-        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         scale = t[C, p] * t[CTF, p]
         v_up = t[VUP, p]
         c_up, dc_up = _cap_at_fraction(True, 1.0, scale, stray, t[S0, p], t[S1, p], t[S2, p], t[H, p])
@@ -429,7 +453,7 @@ def mono_logs(t, sc, m, e, lg):
     i_draw, vs, r_sat, surge_a = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[SURGE_A]
     r_loop = sc[RS] + sc[R_S]
     for p in range(m):
-        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         v_up = t[VUP, p]
         v_top = vinf_c - (vinf_c - v_up) * e[0, p]
         e[0, p] = v_top
@@ -445,7 +469,7 @@ def mono_pulse(t, sc, quad, m, e, lg, out, o):
     for p in range(m):
         q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
         vcc = t[VCC, p]
-        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         scale = t[C, p] * t[CTF, p]
         v_up = t[VUP, p]
         v_top = e[0, p]
@@ -475,7 +499,7 @@ def missing_supply(t, sc, m, lg, out, o):
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
-        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         pw = out[M_PW, q]
         t_in = t[TIN, p]
         tau = pw / lg[0, p]
@@ -496,7 +520,7 @@ def mono_heat(t, sc, missing, m, out, flags, o):
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
-        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         i_idle_r = (vcc - v0) / r_t
         iq_h = t[IQH, p]
         iq_l = t[IQL, p]
@@ -529,7 +553,7 @@ def mono_discharge(t, sc, quad, m, e, lg, out, flags, o):
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
-        r_t, v0, vinf_c, g_c = _mono_nets(vcc, t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
+        r_t, v0, vinf_c, g_c = _nets_m(t, p)
         scale = t[C, p] * t[CTF, p]
         v_top = e[0, p]
         i_idle_r = (vcc - v0) / r_t
@@ -550,15 +574,3 @@ def mono_discharge(t, sc, quad, m, e, lg, out, flags, o):
         f |= DISCHARGE if (i_idle_r > dis_max) | (e_tr > e_max) else np.uint32(0)
         f |= OVERPOWERED if p_res > p_max else np.uint32(0)
         flags[q] = f
-
-
-@njit(**OPTS)
-def mono_wave(t, sc, m, e, out, o):
-    """The waveform's levels: the resting node, the top of the ramp, where the ramp heads."""
-    i_draw, vs, r_sat_m = sc[IDRAW], sc[VS], sc[R_SAT_MONO]
-    for p in range(m):
-        q = np.uint64(o + p)
-        r_t, v0, vinf_c, g_c = _mono_nets(t[VCC, p], t[R, p], t[RF, p], t[GLEAK, p], i_draw, vs, r_sat_m)
-        out[M_V0, q] = v0
-        out[M_VTOP, q] = e[0, p]
-        out[M_VINF, q] = vinf_c
