@@ -68,10 +68,12 @@ def _stages():
 
 
 def _buffer(name: str, rows: int, n: int) -> np.ndarray:
-    """A per-thread scratch matrix of at least rows x n floats, reused between calls."""
+    """A per-thread scratch matrix of at least rows x n floats, reused between calls. Each row
+    is one cache line longer than a power of two, so rows that a stage reads together do not
+    fall into the same cache set."""
     buf = getattr(_buffers, name, None)
     if buf is None or buf.shape[0] < rows or buf.shape[1] < n:
-        buf = np.empty((rows, max(n, TILE_POINTS)))
+        buf = np.empty((rows, max(n, TILE_POINTS) + 8))
         setattr(_buffers, name, buf)
     return buf
 
