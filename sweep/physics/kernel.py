@@ -30,9 +30,12 @@ from .timer import TimerModel
 #: circuits with compiled stages; the others (astable-diode, astable-symmetric, bistable) use
 #: the reference model
 COMPILED = ("astable", "monostable", "missing-pulse")
-#: a sweep (designs x conditions) smaller than this stays on numpy: numba's import and cached
-#: load cost 0.4-0.9 s (measured with tests/benchmarks/kernel.py), more than a small sweep takes
-MIN_POINTS = 200_000
+#: a sweep (designs x conditions) smaller than this stays on numpy. Loading numba and the cached
+#: stages costs about 0.5-0.7 s more than the numpy model's first call, and the kernel saves
+#: about 0.1 us per model evaluation (both measured with tests/benchmarks/kernel.py on a shared
+#: 2-core machine); a study's first pass evaluates about ten model points per swept point
+#: (nominal, corners, elasticities), so it pays from about half a million swept points
+MIN_POINTS = 500_000
 #: points per tile: the stages' buffers stay in the core's cache
 TILE_POINTS = 1 << 12
 #: environment variable: "0" keeps every sweep on the numpy model

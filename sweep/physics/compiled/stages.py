@@ -62,8 +62,8 @@ N_MONO = 12
 @njit(**OPTS)
 def gather(pool, ix, need, r0, r1, nb, nc, t):
     """The inputs listed in need, at grid rows r0..r1 (row = design x build, all conditions),
-    into t[input, p]: one fill over the tile where an input is the same everywhere, else a fill
-    or a copy per row."""
+    into t[input, p]: one fill over the tile where an input is the same everywhere, one row
+    copied by doubling where it is the same in every row, else a fill or a copy per row."""
     m = (r1 - r0) * nc
     for n in need:
         o0, s_i, s_j, s_k = ix[n, 0], ix[n, 1], ix[n, 2], ix[n, 3]
@@ -71,6 +71,17 @@ def gather(pool, ix, need, r0, r1, nb, nc, t):
             v = pool[o0]
             for p in range(m):
                 t[n, p] = v
+            continue
+        if s_i == 0 and s_j == 0:
+            # the same conditions in every row: one row, then doubling copies (long runs)
+            for k in range(nc):
+                t[n, k] = pool[o0 + k]
+            filled = nc
+            while filled < m:
+                run = min(filled, m - filled)
+                for p in range(run):
+                    t[n, filled + p] = t[n, p]
+                filled += run
             continue
         i = r0 // nb
         j = r0 - i * nb
