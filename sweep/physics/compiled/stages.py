@@ -4,15 +4,17 @@ rounding.
 
 Each stage is one simple loop over a tile of points that the compiler can vectorise. The
 exponentials and logarithms sit between stages, where numpy's vector `exp` and `log` evaluate a
-whole tile at once; a stage recomputes cheap per-point quantities rather than storing them.
+whole tile at once. Each point's networks (several divisions) are computed once per tile into
+rows of the tile buffer; cheaper quantities are recomputed where a stage needs them. A loop
+writes at most about five arrays: with more, the compiler gives up on the runtime checks that
+they do not overlap and the loop stays scalar.
 
 Inputs arrive in one pool of float64 values with an index (offset and element strides along
 designs, builds and conditions) per input, so every call has the same types, one compiled
 specialisation serves them all and the on-disk cache holds it; an input that does not vary
 along an axis has stride 0 there and is stored once. `gather` lays a tile's inputs out as
-contiguous rows (a fill or a copy per grid row, both vectorised), so the stages read plain
-contiguous arrays and helpers take only scalars. A tile is a range
-of rows (design, build) with every condition of each row. The equations, their sources and their
+contiguous rows, so the stages read plain contiguous arrays and helpers take only scalars. A
+tile is a range of rows (design, build) with every condition of each row. The equations, their sources and their
 units are documented in `sweep.physics.model` and `sweep.physics.nodes`; nothing here is new
 physics.
 """
