@@ -61,6 +61,7 @@ class Case:
     battery_usable: float = 1.0
     ideal: bool = False
     grades: tuple["Case", ...] = ()
+    points: int = 0           # points of the whole sweep: decides whether the compiled kernel pays
 
     @property
     def nominal_vcc_v(self) -> float:

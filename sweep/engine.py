@@ -15,10 +15,10 @@ from typing import Iterator
 import numpy as np
 
 from .case import Case, axis_values
+from .physics import FLAG_BITS, REGISTRY, evaluate, flag_names, kernel
 
 __all__ = ["Case", "Variation", "axis_values", "battery_life_h", "design_blocks", "evaluate_block",
            "flag_text", "keep_freed_heap", "spec_fail"]
-from .physics import FLAG_BITS, REGISTRY, evaluate, flag_names
 
 def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> bool:
     """Ask glibc's allocator to keep freed memory instead of returning the heap's top to the
@@ -57,14 +57,16 @@ class Variation:
 
 def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
                    *, ideal: bool | None = None, variation: Variation | None = None,
-                   with_spec: bool = True) -> dict[str, np.ndarray]:
+                   with_spec: bool = True, compiled: bool | None = None) -> dict[str, np.ndarray]:
     """Evaluate designs x [builds x] conditions of one case. Inputs are 1-D arrays per study
     key; the result arrays have shape (designs, builds, conditions) (builds = 1 without a
-    variation). ideal: every non-ideality off (default: the case's)."""
+    variation). ideal: every non-ideality off (default: the case's). compiled: use the compiled
+    kernel (None: when the case's sweep is big enough to pay for loading it and the kernel
+    covers the circuit, see physics.kernel.wanted)."""
     ideal = case.ideal if ideal is None else ideal
     if case.grades and "grade" in design:      # part grades: each with its own parts
         return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
-                                with_spec=with_spec)
+                                with_spec=with_spec, compiled=compiled)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
         kw[k] = np.asarray(v, dtype=float)[:, None, None]
@@ -78,7 +80,10 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
-    out = evaluate(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
+    if compiled is None:
+        compiled = kernel.wanted(case.circuit, case.timer, case.parts, case.load, ideal, case.points)
+    model = kernel.evaluate if compiled else evaluate
+    out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
         # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
         dt = kw.get("temperature", 25.0) - 25.0

@@ -126,7 +126,7 @@ class Study:
         case = Case(circuit=self.circuit, timer=self.timer, parts=self.parts, load=self.load,
                     spec=self.spec, nominal=nominal, battery_capacity_ah=self.battery_capacity_ah,
                     battery_usable=self.battery_usable,
-                    grades=tuple(g.study.case for g in self.grade_plan))
+                    grades=tuple(g.study.case for g in self.grade_plan), points=self.n_points)
         object.__setattr__(self, "case", case)
 
     @property

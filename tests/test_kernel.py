@@ -1,0 +1,220 @@
+"""The compiled kernel against the numpy model it compiles, and against the textbook.
+
+`sweep.physics.model.evaluate` is the reference: it is checked against published formulas and
+scipy's ODE solver in tests/reference. The kernel must return the same keys, shapes and dtypes,
+values within 1e-12 relative (NaN where the reference has NaN) and bit-identical flags, for every
+circuit it covers, both timers, every capacitor technology and load, the ideal mode, the
+variation factors as broadcast arrays, and inputs built to trip every flag. In ideal mode its
+timing must equal the textbook formulas [book: Horowitz & Hill, *The Art of Electronics*, the
+555 astable t_high = ln 2 (RA + RB) C, t_low = ln 2 RB C, and monostable t = ln 3 R C].
+"""
+from __future__ import annotations
+
+import math
+import zlib
+
+import numpy as np
+import pytest
+
+pytest.importorskip("numba")
+
+from sweep.models import load_timer                                   # noqa: E402
+from sweep.physics import FLAG_BITS, Load, Parts, kernel, model       # noqa: E402
+
+TIMERS = {name: load_timer(name) for name in ("bipolar", "cmos")}
+LOADS = {
+    "none": Load(),
+    "led-ground": Load(resistance_ohm=330.0, forward_voltage_v=2.0, kind="led"),
+    "resistor-supply": Load(resistance_ohm=1e3, to="supply"),
+    "heavy-ground": Load(resistance_ohm=10.0),                  # trips the output-current limit
+    "led-supply": Load(resistance_ohm=470.0, to="supply", forward_voltage_v=1.8, kind="led"),
+}
+CAPACITORS = ("X7R", "C0G", "Y5V", "electrolytic", "polyester")
+RTOL = 1e-12
+
+
+def assert_same(want: dict, got: dict) -> None:
+    """Same keys in the same order, shapes and dtypes; values within RTOL (NaN where NaN);
+    flags bit for bit."""
+    assert list(got) == list(want)
+    for k in want:
+        w, g = np.asarray(want[k]), np.asarray(got[k])
+        assert g.shape == w.shape, k
+        assert g.dtype == w.dtype, k
+        if k == "flag_mask":
+            bad = w != g
+            assert not bad.any(), (k, w[bad][:5], g[bad][:5])
+        else:
+            np.testing.assert_allclose(g, w, rtol=RTOL, atol=0.0, equal_nan=True, err_msg=k)
+
+
+def both(circuit, timer, parts, load, **kw):
+    want = model.evaluate(circuit, timer, parts, load, **kw)
+    got = kernel.evaluate(circuit, timer, parts, load, **kw)
+    assert_same(want, got)
+    return want
+
+
+def grid(timer, seed, n_designs=40):
+    """Random designs (d, 1, 1) over every part's whole range and conditions (1, 1, c) that
+    include the timer's supply and temperature limits and beyond, so every limit is crossed."""
+    rng = np.random.default_rng(seed)
+
+    def logu(lo, hi):
+        return (10.0 ** rng.uniform(math.log10(lo), math.log10(hi), n_designs))[:, None, None]
+    vcc = np.array([timer.min_v - 0.5, timer.min_v + 0.5, 9.0, timer.max_v + 0.5,
+                    timer.abs_max_v + 1.0])
+    temperature = np.array([timer.ambient_min_c - 10.0, 25.0, 160.0])
+    vcc, temperature = (a.ravel()[None, None, :] for a in np.meshgrid(vcc, temperature))
+    return dict(ra=logu(100.0, 3e7), rb=logu(100.0, 3e7), r=logu(100.0, 3e7), c=logu(1e-11, 1e-3),
+                vcc=vcc, temperature=temperature)
+
+
+@pytest.mark.parametrize("timer", TIMERS)
+@pytest.mark.parametrize("circuit", kernel.COMPILED)
+@pytest.mark.parametrize("cap", CAPACITORS)
+def test_agrees_on_random_designs(circuit, timer, cap):
+    tm = TIMERS[timer]
+    for i, load in enumerate(LOADS.values()):
+        kw = grid(tm, seed=zlib.crc32(f"{circuit} {timer} {cap} {i}".encode()))
+        if circuit == "missing-pulse":
+            kw["input_period"] = np.array([1e-5, 1e-3, 0.1, 10.0])[None, :, None]
+        both(circuit, tm, Parts(capacitor=cap), load, **kw)
+
+
+@pytest.mark.parametrize("timer", TIMERS)
+@pytest.mark.parametrize("circuit", kernel.COMPILED)
+def test_agrees_in_ideal_mode(circuit, timer):
+    kw = grid(TIMERS[timer], seed=3)
+    kw["input_period"] = 1e-3
+    both(circuit, TIMERS[timer], Parts(), LOADS["led-ground"], ideal=True, **kw)
+
+
+@pytest.mark.parametrize("timer", TIMERS)
+@pytest.mark.parametrize("circuit", kernel.COMPILED)
+def test_agrees_with_variation_factors_as_arrays(circuit, timer):
+    """Builds on their own axis (d, b, 1), as the worst case and the Monte Carlo pass them."""
+    tm = TIMERS[timer]
+    rng = np.random.default_rng(11)
+    kw = grid(tm, seed=5, n_designs=12)
+    b = 6
+    shape = (12, b, 1)
+    kw.update(leak_factor=rng.uniform(1.0, 5.0, shape), dc_bias_factor=rng.uniform(0.5, 1.5, shape),
+              iq_factor=rng.uniform(0.5, 2.0, (1, b, 1)), load_factor=rng.uniform(0.9, 1.1, shape),
+              vf_shift=rng.uniform(-0.1, 0.1, (1, b, 1)), stage_factor=rng.uniform(0.8, 1.3, shape),
+              diode_is_factor=rng.uniform(0.5, 2.0, shape), input_period=2e-3)
+    for load in ("led-ground", "resistor-supply", "none"):
+        for cap in ("X7R", "electrolytic"):
+            both(circuit, tm, Parts(capacitor=cap, capacitor_voltage_v=16.0), LOADS[load], **kw)
+
+
+@pytest.mark.parametrize("circuit", kernel.COMPILED)
+def test_agrees_on_swept_load_control_voltage_and_odd_shapes(circuit):
+    tm = TIMERS["bipolar"]
+    parts = Parts(capacitor="X7R", discharge_resistor_ohm=47.0)
+    # a swept load resistor and control voltage (NaN: the internal divider; above the supply:
+    # the node never reaches it)
+    both(circuit, tm, parts, LOADS["led-ground"], ra=np.array([1e3, 1e4, 1e5])[:, None],
+         rb=4.7e4, r=np.array([1e3, 1e4, 1e5])[:, None], c=1e-7, vcc=np.array([5.0, 9.0, 12.0]),
+         temperature=25.0, load_resistance=np.array([100.0, 1e3, np.nan]),
+         control_voltage=np.array([np.nan, 4.0, 20.0]), input_period=1e-3)
+    # scalars, one axis, and four axes
+    both(circuit, tm, parts, Load(), ra=1e4, rb=4.7e4, r=1e4, c=1e-7, vcc=9.0, temperature=25.0)
+    both(circuit, tm, parts, Load(), ra=1e4, rb=4.7e4, r=1e4, c=np.array([1e-9, 1e-7]), vcc=9.0,
+         temperature=25.0)
+    both(circuit, tm, parts, Load(), ra=np.full((2, 1, 1, 1), 1e4), rb=4.7e4, r=1e4,
+         c=np.array([1e-9, 1e-7])[:, None, None], vcc=np.array([5.0, 9.0])[:, None],
+         temperature=np.array([0.0, 25.0, 50.0]))
+    # nothing at all
+    both(circuit, tm, parts, Load(), ra=np.zeros((0, 1, 1)), rb=4.7e4, r=np.zeros((0, 1, 1)),
+         c=1e-7, vcc=np.array([9.0]), temperature=25.0)
+
+
+@pytest.mark.parametrize("timer", TIMERS)
+def test_every_flag_is_provoked_and_identical(timer):
+    """Inputs built to trip each flag; the reference must raise every one somewhere (so this
+    test means something) and the kernel the same bits everywhere."""
+    tm = TIMERS[timer]
+    seen = 0
+    for circuit in kernel.COMPILED:
+        for load in ("heavy-ground", "none"):
+            kw = grid(tm, seed=7, n_designs=60)
+            # 10 pF with 1 kOhm runs far above any top frequency; 100 uF at 100 Ohm overloads the
+            # discharge transistor and RA
+            kw["ra"][:2, 0, 0] = [1e3, 100.0]
+            kw["rb"][:2, 0, 0] = [1e3, 100.0]
+            kw["r"][:2, 0, 0] = [1e3, 100.0]
+            kw["c"][:2, 0, 0] = [1e-11, 1e-4]
+            kw["control_voltage"] = np.array([np.nan, 40.0])[None, :, None]   # 40 V: it stalls
+            kw["input_period"] = np.array([1e-6, 100.0])[None, :, None]       # 100 s: false alarm
+            want = both(circuit, tm, Parts(capacitor="X7R"), LOADS[load], **kw)
+            seen |= int(np.bitwise_or.reduce(want["flag_mask"], axis=None))
+    missing = [name for name, bit in FLAG_BITS.items() if not seen & bit and name != "spec-miss"]
+    assert missing == []
+
+
+@pytest.mark.parametrize("timer", TIMERS)
+def test_ideal_timing_is_the_textbook_formula(timer):
+    """[book: Horowitz & Hill] astable high ln 2 (RA + RB) C, low ln 2 RB C; monostable
+    ln 3 R C; rtol 1e-12 is rounding."""
+    rng = np.random.default_rng(1)
+    ra, rb, c = (10.0 ** rng.uniform(3, 6, 50), 10.0 ** rng.uniform(3, 6, 50),
+                 10.0 ** rng.uniform(-9, -5, 50))
+    tm = TIMERS[timer]
+    out = kernel.evaluate("astable", tm, Parts(), Load(), ra=ra, rb=rb, c=c, vcc=9.0,
+                          temperature=25.0, ideal=True)
+    np.testing.assert_allclose(out["high_time_s"], math.log(2.0) * (ra + rb) * c, rtol=1e-12)
+    np.testing.assert_allclose(out["low_time_s"], math.log(2.0) * rb * c, rtol=1e-12)
+    out = kernel.evaluate("monostable", tm, Parts(), Load(), r=ra, c=c, vcc=9.0, temperature=25.0,
+                          ideal=True)
+    np.testing.assert_allclose(out["pulse_width_s"], math.log(3.0) * ra * c, rtol=1e-12)
+
+
+@pytest.mark.parametrize("circuit", ["astable-diode", "astable-symmetric", "bistable"])
+def test_other_circuits_fall_back_to_the_reference(circuit):
+    tm = TIMERS["cmos"]
+    assert not kernel.supports(circuit, tm, Parts(), Load(), False)
+    kw = dict(ra=1e4, rb=4.7e4, r=1e4, c=1e-7, vcc=np.array([5.0, 9.0]), temperature=25.0)
+    want = model.evaluate(circuit, tm, Parts(), Load(), **kw)
+    got = kernel.evaluate(circuit, tm, Parts(), Load(), **kw)
+    assert list(got) == list(want)
+    for k in want:
+        np.testing.assert_array_equal(got[k], want[k])
+
+
+def test_the_switch(monkeypatch):
+    tm, parts, load = TIMERS["bipolar"], Parts(), Load()
+    monkeypatch.delenv(kernel.ENV, raising=False)
+    assert kernel.available()
+    assert kernel.wanted("astable", tm, parts, load, False, kernel.MIN_POINTS)
+    assert not kernel.wanted("astable", tm, parts, load, False, kernel.MIN_POINTS - 1)
+    assert not kernel.wanted("astable-diode", tm, parts, load, False, 10 * kernel.MIN_POINTS)
+    monkeypatch.setenv(kernel.ENV, "0")
+    assert not kernel.wanted("astable", tm, parts, load, False, 10 * kernel.MIN_POINTS)
+
+
+def test_engine_gives_the_same_block_either_way():
+    from sweep.engine import axis_values, evaluate_block
+    from sweep.study import parse_study
+    study = parse_study("""
+[study]
+circuit = "astable"
+timer = "bipolar"
+[design]
+ra = { series = "E12", min = "1k", max = "1M" }
+rb = { series = "E12", min = "1k", max = "1M" }
+c = ["1n", "100n"]
+[conditions]
+vcc = { min = 5, max = 15, steps = 3 }
+temperature = { min = -40, max = 85, steps = 3 }
+[load]
+resistance = "470"
+forward_voltage = "2.0V"
+[spec]
+frequency = { target = "1kHz", tolerance = "20%" }
+""")
+    design = axis_values(study.design, np.arange(study.n_designs))
+    cond = axis_values(study.conditions, np.arange(study.n_conditions))
+    want = evaluate_block(study.case, design, cond, compiled=False)
+    got = evaluate_block(study.case, design, cond, compiled=True)
+    assert_same(want, got)
