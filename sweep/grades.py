@@ -19,7 +19,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from . import values as qv
 from .errors import InputError
@@ -191,6 +190,7 @@ def split(study, start: int, stop: int):
 def analyse_block(study, start: int, stop: int, opt=None):
     """analysis.analyse_block over a graded study: each grade's piece runs on its own sub-study,
     renumbered into the study's numbering, with the grade columns added."""
+    import pandas as pd            # here: a study's parse (check, point) needs no pandas
     from .analysis import Options, analyse_block as plain
     opt = opt or Options()
     if not study.grade_plan:
@@ -212,6 +212,7 @@ def analyse_block(study, start: int, stop: int, opt=None):
 
 def monte_carlo_block(study, designs: np.ndarray, opt=None) -> pd.DataFrame:
     """analysis.monte_carlo_block over a graded study, grade by grade, in the order given."""
+    import pandas as pd
     from .analysis import Options, monte_carlo_block as plain
     opt = opt or Options()
     designs = np.asarray(designs)
