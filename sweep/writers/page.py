@@ -536,10 +536,34 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         fig.add_trace(_legend_only("The pick (rank 1)", "pick", mode="markers", marker=dict(
             symbol="star", size=17, color=YELLOW, line=dict(color=BLACK, width=1.5))))
 
+    _map_axes(fig, xax, yax, (xtitle, ytitle), nrows, ncols, len(groups) if facets else 1)
+    cax = _map_colour_axis(ccol, nomcol, craw, clog, err_span, main)
+    top = 80 if not facets else 50
+    plot_h = 360 * nrows
+    height = plot_h + top + 150
+    fig.update_layout(template=_template(), coloraxis=cax, height=height,
+                      legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
+                      margin=dict(l=90, r=30, t=top, b=150))
+    if not facets:
+        _map_dropdown(fig, spans, names, keys, flabel)
+    sec.figure = fig
+
+    sec.explain = _map_explain(report, (xcol, ycol, fcol), len(groups), facets, err_span,
+                               (nomcol, ccol), state, has_spec)
+    notes = [_cap_note(ds)]
+    if has_spec and not np.isin(state, [MAP_NEAR, MAP_MEETS]).any():
+        notes.append(f"No design shown has its nominal {html.escape(main_label)} inside the spec.")
+    sec.note = " ".join(n for n in notes if n)
+    return sec
+
+
+def _map_axes(fig, xax: dict, yax: dict, titles: tuple[str, str], nrows: int, ncols: int,
+              used: int) -> None:
+    """The map's axes: titles on the axes themselves, held off the tick labels, so long ticks
+    never cover them; the x ticks on the lowest panel of each column; unused panels hidden."""
+    xtitle, ytitle = titles
     fig.update_xaxes(**xax)
     fig.update_yaxes(**yax)
-    # axis titles on the axes themselves, held off the tick labels, so long ticks never cover them
-    used = len(groups) if facets else 1
     for i in range(nrows * ncols):
         row, col = i // ncols + 1, i % ncols + 1
         if i >= used:
@@ -551,6 +575,12 @@ def _map_section(report: Report, ds: _Designs) -> Section:
                              row=row, col=col)
         if col == 1:
             fig.update_yaxes(title=dict(text=html.escape(ytitle), standoff=12), row=row, col=col)
+
+
+def _map_colour_axis(ccol: str | None, nomcol: str | None, craw: np.ndarray, clog: bool,
+                     err_span: float | None, main: str | None) -> dict:
+    """The map's colour scale: the nominal error from the target on a diverging scale, else the
+    nominal value (or the yield) on a sequential one, with readable ticks."""
     cax = dict(colorscale=SEQUENTIAL, colorbar=dict(
         title=dict(text=html.escape(_header(ccol, "(nominal)") if nomcol else "Yield")
                    if ccol else "", side="right"), thickness=14, len=0.9))
@@ -567,31 +597,40 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         cax["colorbar"]["ticktext"] = [_fmt(t, ccol) for t in ticks]
         c0, c1 = (math.log10(fin.min()), math.log10(fin.max())) if clog else (fin.min(), fin.max())
         cax.update(cmin=c0 - 0.5, cmax=c1 + 0.5) if c0 == c1 else cax.update(cmin=c0, cmax=c1)
-    top = 80 if not facets else 50
-    plot_h = 360 * nrows
-    height = plot_h + top + 150
-    fig.update_layout(template=_template(), coloraxis=cax, height=height,
-                      legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
-                      margin=dict(l=90, r=30, t=top, b=150))
-    if not facets:
-        n = len(fig.data)
-        buttons = [dict(label=html.escape(name), method="update",
-                        args=[{"visible": [start <= k < stop or k >= keys for k in range(n)]}])
-                   for (start, stop), name in zip(spans, names)]
-        fig.update_layout(
-            updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
-                              yanchor="bottom", showactive=True, bgcolor="white",
-                              bordercolor="#9a9a9a")])
-        fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
-                           xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
-                           showarrow=False)
-    sec.figure = fig
+    return cax
 
+
+def _map_dropdown(fig, spans: list[tuple[int, int]], names: list[str], keys: int,
+                  flabel: str) -> None:
+    """One panel at a time: a list at the top left shows one value of the third part (the
+    legend traces, from index ``keys`` on, stay visible)."""
+    n = len(fig.data)
+    buttons = [dict(label=html.escape(name), method="update",
+                    args=[{"visible": [start <= k < stop or k >= keys for k in range(n)]}])
+               for (start, stop), name in zip(spans, names)]
+    fig.update_layout(
+        updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
+                          yanchor="bottom", showactive=True, bgcolor="white",
+                          bordercolor="#9a9a9a")])
+    fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
+                       xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
+                       showarrow=False)
+
+
+def _map_explain(report: Report, cols: tuple, n_groups: int, facets: bool,
+                 err_span: float | None, colour_cols: tuple, state: np.ndarray,
+                 has_spec: bool) -> str:
+    """How to read the map, in the words of its marks, panels and colour."""
+    xcol, ycol, fcol = cols
+    nomcol, ccol = colour_cols
+    main = report.main_output
+    main_label = _var(main).label.lower() if main else ""
+    flabel = _var(fcol).label if fcol else ""
     panels = ""
-    if fcol and facets and len(groups) > 1:
+    if fcol and facets and n_groups > 1:
         panels = f"; one panel per {html.escape(flabel)} value."
     elif fcol and not facets:
-        panels = (f". {html.escape(flabel)} takes {len(groups)} values: choose one in the list "
+        panels = (f". {html.escape(flabel)} takes {n_groups} values: choose one in the list "
                   "at the top left of the chart.")
     else:
         panels = "."
@@ -624,12 +663,7 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         text.append("Look for filled marks whose neighbours are filled or ringed too: there the "
                     "next standard value up or down still lands in spec, so tolerances and drift "
                     "have room.")
-    sec.explain = " ".join(text)
-    notes = [_cap_note(ds)]
-    if has_spec and not np.isin(state, [MAP_NEAR, MAP_MEETS]).any():
-        notes.append(f"No design shown has its nominal {html.escape(main_label)} inside the spec.")
-    sec.note = " ".join(n for n in notes if n)
-    return sec
+    return " ".join(text)
 
 
 # --- 2. duty against frequency -----------------------------------------------------------------
