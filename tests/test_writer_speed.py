@@ -62,3 +62,12 @@ def test_failing_row_text_stays_text(tmp_path, text):
     cells = [ws.cell(r, heads.index("Flags") + 1) for r in range(2, ws.max_row + 1)]
     hit = [c for c in cells if c.value == text]
     assert hit and all(c.data_type == "s" and c.quotePrefix for c in hit)
+
+
+def test_notes_say_designs_capped(tmp_path, monkeypatch):
+    monkeypatch.setattr(workbook, "DESIGNS_ROWS", 5)
+    write_workbook(tmp_path / "w.xlsx", make_report(n_designs=12))
+    ws = openpyxl.load_workbook(tmp_path / "w.xlsx")["Notes"]
+    printing = next(ws.cell(r, 2).value for r in range(1, ws.max_row + 1)
+                    if ws.cell(r, 1).value == "Printing")
+    assert "5 best-ranked of 12 designs" in printing and "designs.parquet" in printing

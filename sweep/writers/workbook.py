@@ -982,6 +982,15 @@ def _study(ws, st: _Styles, report: Report, file_name: str) -> None:
     _page_setup(ws, 1)
 
 
+def _designs_cap_line(report: Report) -> str:
+    """What the Notes sheet adds when the Designs sheet is capped, else nothing."""
+    total = len(report.designs)
+    if total <= DESIGNS_ROWS:
+        return ""
+    return (f" The Designs sheet holds the {DESIGNS_ROWS:,} best-ranked of {total:,} designs; "
+            "designs.parquet holds every design.")
+
+
 def _notes(ws, st: _Styles, report: Report) -> None:
     ws.set_column(0, 0, 20)
     ws.set_column(1, 1, 110)
@@ -991,7 +1000,8 @@ def _notes(ws, st: _Styles, report: Report) -> None:
     rows += [("Caution", x, {"bold": True}) for x in report.cautions]
     rows += [("Number formats", _FORMAT_LINE, {}),
              ("Verdict", _verdict_note(report)[len("Verdict: "):], {}),
-             ("Printing", _PRINT_LINE, {}), ("Safety", _SAFETY_LINE, {"bold": True})]
+             ("Printing", _PRINT_LINE + _designs_cap_line(report), {}),
+             ("Safety", _SAFETY_LINE, {"bold": True})]
     for i, (topic, text, props) in enumerate(rows):
         r = 1 + i
         ws.set_row(r, 15 * max(_lines(text, 110), _lines(topic, 20)))
