@@ -17,11 +17,15 @@ import math
 import tomllib
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from . import values as qv
 from .errors import InputError
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 GRADE_KEYS = ("resistor_tolerance", "resistor_series", "capacitor", "capacitor_tolerance")
 #: most grade combinations one study may compare: each is a sub-sweep of its own [cp: a
