@@ -386,7 +386,7 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
     previous outputs whole and no partial file behind. `on_commit` is called once the new set is
     in place. A full disk or a permission error is an InputError naming the output folder."""
     from .writers.page import write_page
-    from .writers.workbook import write_workbook
+    from .writers.workbook import DESIGNS_ROWS, write_workbook
 
     workbook = out_dir / f"{study.name}.xlsx"
     if workbook.exists() and Path(study.path).resolve() == workbook.resolve():
@@ -443,7 +443,8 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
                 "study_sha256": study.digest, "seed": study.seed, "monte_carlo": study.monte_carlo,
                 "ideal": ideal, "designs": study.n_designs, "conditions": study.n_conditions,
                 "points": study.n_points, "points_in_parquet": streamed,
-                "points_in_workbook": len(wb_pts), "designs_in_workbook": len(ranked),
+                "points_in_workbook": len(wb_pts),
+                "designs_in_workbook": min(len(ranked), DESIGNS_ROWS),
                 "monte_carlo_designs": len(an.mc), "screened": an.screened,
                 "seconds_analysis": round(t_an, 3)}
         report = build_report(study, ranked, wb_pts, note, ideal, info,

@@ -103,6 +103,43 @@ def spec_study_text(circuit: str, *, frequency: str | None = None, tolerance: st
     from .physics import capacitor_named
     from .study import SUPPLIES
 
+    f, pw, tol, d_lo, d_hi = _target_options(circuit, frequency, pulse_width, tolerance,
+                                             duty_min, duty_max)
+    for name, s in (("--series", series), ("--capacitor-series", capacitor_series)):
+        if str(s).upper() not in qv.SERIES:
+            raise InputError("", name, f"unknown series {s!r}; known: {', '.join(qv.SERIES)}")
+    series, capacitor_series = series.upper(), capacitor_series.upper()
+    try:
+        tech = capacitor_named(capacitor)
+    except KeyError:
+        raise InputError("", "--capacitor", f"unknown capacitor technology {capacitor!r}") from None
+    if supply not in SUPPLIES:
+        raise InputError("", "--supply", f"unknown supply {supply!r}; known: {', '.join(SUPPLIES)}")
+    if capacitors is not None and not 1 <= capacitors <= 12:
+        raise InputError("", "--capacitors", "must be from 1 to 12")
+    tm = load_timer(timer, None, "--timer")
+    v_lo, v_hi = _range_option(vcc, "--vcc", "V", (tm.typical_v * 0.9, tm.typical_v * 1.1))
+    if v_lo <= 0:
+        raise InputError("", "--vcc", "must be greater than zero")
+    t_lo, t_hi = _range_option(temperature, "--temperature", "C", (0.0, 50.0))
+    v_rated = 16.0 if v_hi <= 10 else (25.0 if v_hi <= 16 else 50.0)   # about 2x the supply [cp]
+    try:
+        p = propose(circuit, Target(f, d_lo, d_hi, pw, tol), tm, tech, vcc=(v_lo, v_hi),
+                    temperature=(t_lo, t_hi), r_series=series, c_series=capacitor_series,
+                    capacitor_voltage_v=v_rated, capacitors=capacitors)
+    except ValueError as e:
+        raise InputError("", "--frequency" if f else "--pulse-width", str(e)) from None
+
+    return _spec_study_lines(circuit, p, timer, supply, tech, (f, pw, tol, d_lo, d_hi),
+                             (v_lo, v_hi, v_rated), (t_lo, t_hi))
+
+
+def _target_options(circuit: str, frequency: str | None, pulse_width: str | None,
+                    tolerance: str, duty_min: str | None, duty_max: str | None) -> tuple:
+    """(frequency, pulse width, tolerance, duty min, duty max) of `timer-sweep new`'s spec
+    options, checked against the circuit; InputError naming the option on anything wrong."""
+    from . import values as qv
+
     if circuit not in CIRCUITS:
         raise InputError("", "circuit", f"unknown circuit {circuit!r}; known: {', '.join(CIRCUITS)}")
     if circuit == "bistable":
@@ -154,30 +191,19 @@ def spec_study_text(circuit: str, *, frequency: str | None = None, tolerance: st
                          "for less use astable-diode")
     if circuit == "astable-symmetric" and (d_lo is not None or d_hi is not None):
         raise InputError("", "--duty-max", "astable-symmetric runs near 50 %; its duty is not a choice")
-    for name, s in (("--series", series), ("--capacitor-series", capacitor_series)):
-        if str(s).upper() not in qv.SERIES:
-            raise InputError("", name, f"unknown series {s!r}; known: {', '.join(qv.SERIES)}")
-    series, capacitor_series = series.upper(), capacitor_series.upper()
-    try:
-        tech = capacitor_named(capacitor)
-    except KeyError:
-        raise InputError("", "--capacitor", f"unknown capacitor technology {capacitor!r}") from None
-    if supply not in SUPPLIES:
-        raise InputError("", "--supply", f"unknown supply {supply!r}; known: {', '.join(SUPPLIES)}")
-    if capacitors is not None and not 1 <= capacitors <= 12:
-        raise InputError("", "--capacitors", "must be from 1 to 12")
-    tm = load_timer(timer, None, "--timer")
-    v_lo, v_hi = _range_option(vcc, "--vcc", "V", (tm.typical_v * 0.9, tm.typical_v * 1.1))
-    if v_lo <= 0:
-        raise InputError("", "--vcc", "must be greater than zero")
-    t_lo, t_hi = _range_option(temperature, "--temperature", "C", (0.0, 50.0))
-    v_rated = 16.0 if v_hi <= 10 else (25.0 if v_hi <= 16 else 50.0)   # about 2x the supply [cp]
-    try:
-        p = propose(circuit, Target(f, d_lo, d_hi, pw, tol), tm, tech, vcc=(v_lo, v_hi),
-                    temperature=(t_lo, t_hi), r_series=series, c_series=capacitor_series,
-                    capacitor_voltage_v=v_rated, capacitors=capacitors)
-    except ValueError as e:
-        raise InputError("", "--frequency" if f else "--pulse-width", str(e)) from None
+    return f, pw, tol, d_lo, d_hi
+
+
+def _spec_study_lines(circuit: str, p, timer: str, supply: str, tech, target: tuple,
+                      supply_v: tuple, temperature: tuple) -> str:
+    """The study text of spec_study_text: the proposal ``p`` (design_ranges.propose) with its
+    notes, the conditions, parts and the spec."""
+    import textwrap
+
+    from . import values as qv
+    f, pw, tol, d_lo, d_hi = target
+    v_lo, v_hi, v_rated = supply_v
+    t_lo, t_hi = temperature
 
     def q(v, unit):
         return json.dumps(qv.format_eng(v, unit).replace(" ", "").replace("Ω", "").replace("F", "")
@@ -185,7 +211,6 @@ def spec_study_text(circuit: str, *, frequency: str | None = None, tolerance: st
     lines = [f"# timer-sweep study written from the spec by 'timer-sweep new {circuit}'.",
              "# The [design] ranges bracket the exact solutions of the timing formulas; how each",
              "# range was chosen:"]
-    import textwrap
     for n in p.notes:
         lines += textwrap.wrap(n, 96, initial_indent="#   ", subsequent_indent="#     ")
     what = (f"{qv.format_eng(f, 'Hz')}" if f else f"{qv.format_eng(pw, 's')} pulse")

@@ -15,16 +15,32 @@ import math
 import pathlib
 from dataclasses import dataclass
 
+import functools
+import importlib
+
 import numpy as np
 import pandas as pd
-import plotly.graph_objects as go
-import plotly.io as pio
-from plotly.subplots import make_subplots
 
 from sweep.report import Report
 from sweep.writers.atomic import atomic_path
 from sweep.values import format_eng
 from sweep.variables import VARIABLES, Variable
+
+
+class _OnFirstUse:
+    """A module imported when one of its names is first used: plotly takes a fifth of a second
+    to import, and commands that only read this module's constants (``check``) never draw."""
+
+    def __init__(self, name: str):
+        self._name = name
+
+    def __getattr__(self, attr: str):
+        return getattr(importlib.import_module(self._name), attr)
+
+
+go = _OnFirstUse("plotly.graph_objects")
+pio = _OnFirstUse("plotly.io")
+_subplots = _OnFirstUse("plotly.subplots")
 
 #: most designs drawn in any chart, the best-ranked first; the page says so when it cuts
 MAX_DESIGNS = 20_000
@@ -58,7 +74,13 @@ HEADINGS = {
 #: the section a study with part grades adds
 COST_HEADING = "Yield against the cost of part grades"
 
-_TEMPLATE = go.layout.Template(layout=dict(
+@functools.cache
+def _template():
+    """The page's chart template (made once, on first use)."""
+    return go.layout.Template(layout=_TEMPLATE_LAYOUT)
+
+
+_TEMPLATE_LAYOUT = dict(
     font=dict(family=FONT, size=13, color="#222222"),
     paper_bgcolor="white", plot_bgcolor="white", colorway=PALETTE,
     xaxis=dict(showgrid=True, gridcolor="#e8e8e8", showline=True, linecolor="#9a9a9a",
@@ -69,7 +91,7 @@ _TEMPLATE = go.layout.Template(layout=dict(
     hoverlabel=dict(bgcolor="white", bordercolor="#666666",
                     font=dict(family=FONT, size=12, color="#222222")),
     margin=dict(l=70, r=30, t=30, b=60),
-))
+)
 _CONFIG = {"displaylogo": False, "responsive": True,
            "modeBarButtonsToRemove": ["select2d", "lasso2d", "autoScale2d"]}
 
@@ -204,9 +226,18 @@ def _axis(name: str, title: str | None = None, values: np.ndarray | None = None,
     return ax
 
 
-def _html_div(fig: go.Figure, div_id: str, first: bool) -> str:
-    return pio.to_html(fig, include_plotlyjs=first, full_html=False, config=_CONFIG,
-                       div_id=div_id, default_width="100%")
+def _html_div(fig: go.Figure, div_id: str, first: bool, ds: "_Designs | None" = None) -> str:
+    """The chart's HTML. A trace showing the designs' hover text carries only their row
+    numbers while it is a figure object (plotly deep-copies every text cell of an object array
+    on each step: most of a big study's page time [measured]); the text goes straight into the
+    JSON here."""
+    d = fig.to_dict()
+    if ds is not None:
+        for trace, out in zip(fig.data, d.get("data", ())):
+            if _shows_designs(trace, ds):
+                out["customdata"] = ds.custom[np.asarray(trace.customdata, dtype=np.intp)]
+    return pio.to_html(d, validate=False, include_plotlyjs=first, full_html=False,
+                       config=_CONFIG, div_id=div_id, default_width="100%")
 
 
 def _finite(a) -> np.ndarray:
@@ -263,8 +294,9 @@ class _Designs:
 
     def hover(self, rows) -> dict:
         """Trace settings that show the hover text of ``rows`` (mask or indices). The layout is
-        written once per trace; each design carries only its formatted values."""
-        return dict(customdata=self.custom[rows], hovertemplate=self.template)
+        written once per trace; each design carries only its formatted values, put in place of
+        its row number when the chart is written (``_html_div``)."""
+        return dict(customdata=np.arange(len(self.custom))[rows], hovertemplate=self.template)
 
 
 def _designs(report: Report) -> _Designs:
@@ -460,7 +492,7 @@ def _map_section(report: Report, ds: _Designs) -> Section:
 
     xax, yax = _axis(xcol, values=x_all, discrete=True), _axis(ycol, values=y_all, discrete=True)
     xtitle, ytitle = xax.pop("title")["text"], yax.pop("title")["text"]
-    fig = make_subplots(rows=nrows, cols=ncols, shared_xaxes="all", shared_yaxes="all",
+    fig = _subplots.make_subplots(rows=nrows, cols=ncols, shared_xaxes="all", shared_yaxes="all",
                         subplot_titles=[html.escape(n) for n in names] if facets and fcol else None,
                         horizontal_spacing=0.06, vertical_spacing=0.16 if nrows > 1 else 0.1)
     spans = []
@@ -495,10 +527,34 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         fig.add_trace(_legend_only("The pick (rank 1)", "pick", mode="markers", marker=dict(
             symbol="star", size=17, color=YELLOW, line=dict(color=BLACK, width=1.5))))
 
+    _map_axes(fig, xax, yax, (xtitle, ytitle), nrows, ncols, len(groups) if facets else 1)
+    cax = _map_colour_axis(ccol, nomcol, craw, clog, err_span, main)
+    top = 80 if not facets else 50
+    plot_h = 360 * nrows
+    height = plot_h + top + 150
+    fig.update_layout(template=_template(), coloraxis=cax, height=height,
+                      legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
+                      margin=dict(l=90, r=30, t=top, b=150))
+    if not facets:
+        _map_dropdown(fig, spans, names, keys, flabel)
+    sec.figure = fig
+
+    sec.explain = _map_explain(report, (xcol, ycol, fcol), len(groups), facets, err_span,
+                               (nomcol, ccol), state, has_spec)
+    notes = [_cap_note(ds)]
+    if has_spec and not np.isin(state, [MAP_NEAR, MAP_MEETS]).any():
+        notes.append(f"No design shown has its nominal {html.escape(main_label)} inside the spec.")
+    sec.note = " ".join(n for n in notes if n)
+    return sec
+
+
+def _map_axes(fig, xax: dict, yax: dict, titles: tuple[str, str], nrows: int, ncols: int,
+              used: int) -> None:
+    """The map's axes: titles on the axes themselves, held off the tick labels, so long ticks
+    never cover them; the x ticks on the lowest panel of each column; unused panels hidden."""
+    xtitle, ytitle = titles
     fig.update_xaxes(**xax)
     fig.update_yaxes(**yax)
-    # axis titles on the axes themselves, held off the tick labels, so long ticks never cover them
-    used = len(groups) if facets else 1
     for i in range(nrows * ncols):
         row, col = i // ncols + 1, i % ncols + 1
         if i >= used:
@@ -510,6 +566,12 @@ def _map_section(report: Report, ds: _Designs) -> Section:
                              row=row, col=col)
         if col == 1:
             fig.update_yaxes(title=dict(text=html.escape(ytitle), standoff=12), row=row, col=col)
+
+
+def _map_colour_axis(ccol: str | None, nomcol: str | None, craw: np.ndarray, clog: bool,
+                     err_span: float | None, main: str | None) -> dict:
+    """The map's colour scale: the nominal error from the target on a diverging scale, else the
+    nominal value (or the yield) on a sequential one, with readable ticks."""
     cax = dict(colorscale=SEQUENTIAL, colorbar=dict(
         title=dict(text=html.escape(_header(ccol, "(nominal)") if nomcol else "Yield")
                    if ccol else "", side="right"), thickness=14, len=0.9))
@@ -526,31 +588,40 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         cax["colorbar"]["ticktext"] = [_fmt(t, ccol) for t in ticks]
         c0, c1 = (math.log10(fin.min()), math.log10(fin.max())) if clog else (fin.min(), fin.max())
         cax.update(cmin=c0 - 0.5, cmax=c1 + 0.5) if c0 == c1 else cax.update(cmin=c0, cmax=c1)
-    top = 80 if not facets else 50
-    plot_h = 360 * nrows
-    height = plot_h + top + 150
-    fig.update_layout(template=_TEMPLATE, coloraxis=cax, height=height,
-                      legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
-                      margin=dict(l=90, r=30, t=top, b=150))
-    if not facets:
-        n = len(fig.data)
-        buttons = [dict(label=html.escape(name), method="update",
-                        args=[{"visible": [start <= k < stop or k >= keys for k in range(n)]}])
-                   for (start, stop), name in zip(spans, names)]
-        fig.update_layout(
-            updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
-                              yanchor="bottom", showactive=True, bgcolor="white",
-                              bordercolor="#9a9a9a")])
-        fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
-                           xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
-                           showarrow=False)
-    sec.figure = fig
+    return cax
 
+
+def _map_dropdown(fig, spans: list[tuple[int, int]], names: list[str], keys: int,
+                  flabel: str) -> None:
+    """One panel at a time: a list at the top left shows one value of the third part (the
+    legend traces, from index ``keys`` on, stay visible)."""
+    n = len(fig.data)
+    buttons = [dict(label=html.escape(name), method="update",
+                    args=[{"visible": [start <= k < stop or k >= keys for k in range(n)]}])
+               for (start, stop), name in zip(spans, names)]
+    fig.update_layout(
+        updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
+                          yanchor="bottom", showactive=True, bgcolor="white",
+                          bordercolor="#9a9a9a")])
+    fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
+                       xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
+                       showarrow=False)
+
+
+def _map_explain(report: Report, cols: tuple, n_groups: int, facets: bool,
+                 err_span: float | None, colour_cols: tuple, state: np.ndarray,
+                 has_spec: bool) -> str:
+    """How to read the map, in the words of its marks, panels and colour."""
+    xcol, ycol, fcol = cols
+    nomcol, ccol = colour_cols
+    main = report.main_output
+    main_label = _var(main).label.lower() if main else ""
+    flabel = _var(fcol).label if fcol else ""
     panels = ""
-    if fcol and facets and len(groups) > 1:
+    if fcol and facets and n_groups > 1:
         panels = f"; one panel per {html.escape(flabel)} value."
     elif fcol and not facets:
-        panels = (f". {html.escape(flabel)} takes {len(groups)} values: choose one in the list "
+        panels = (f". {html.escape(flabel)} takes {n_groups} values: choose one in the list "
                   "at the top left of the chart.")
     else:
         panels = "."
@@ -583,12 +654,7 @@ def _map_section(report: Report, ds: _Designs) -> Section:
         text.append("Look for filled marks whose neighbours are filled or ringed too: there the "
                     "next standard value up or down still lands in spec, so tolerances and drift "
                     "have room.")
-    sec.explain = " ".join(text)
-    notes = [_cap_note(ds)]
-    if has_spec and not np.isin(state, [MAP_NEAR, MAP_MEETS]).any():
-        notes.append(f"No design shown has its nominal {html.escape(main_label)} inside the spec.")
-    sec.note = " ".join(n for n in notes if n)
-    return sec
+    return " ".join(text)
 
 
 # --- 2. duty against frequency -----------------------------------------------------------------
@@ -666,7 +732,7 @@ def _duty_section(report: Report, ds: _Designs) -> Section:
         fig.add_trace(_pick_trace(f[ds.pick], du[ds.pick], ds.hover(ds.pick)))
     xax = _axis("frequency_hz", _header("frequency_hz", "(nominal)"), values=f,
                 span=(10 ** xr[0], 10 ** xr[1]))
-    fig.update_layout(template=_TEMPLATE, height=480,
+    fig.update_layout(template=_template(), height=480,
                       xaxis=dict(**xax, range=list(xr)),
                       yaxis=dict(**_axis("duty", "Duty cycle (nominal)"), range=list(yr)),
                       legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
@@ -711,7 +777,7 @@ def _yield_section(report: Report, ds: _Designs) -> Section:
     xr = _padded(x, (np.nan, np.nan), log=True)
     xax = _axis(cur, _header(cur, "(highest)" if worst else "(nominal)"), values=x,
                 span=(10 ** xr[0], 10 ** xr[1]))
-    fig.update_layout(template=_TEMPLATE, height=480,
+    fig.update_layout(template=_template(), height=480,
                       xaxis=dict(**xax, range=list(xr)),
                       yaxis=dict(title=dict(text="Yield"), tickformat=".0%", range=[-0.04, 1.06]),
                       legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
@@ -791,7 +857,7 @@ def _mc_section(report: Report) -> Section:
     _spec_lines(fig, report, "x")
     xr = _padded(vals, _main_limits(report)[:2], log=False)
     xax = _axis(main, values=vals, span=xr, log=False, count=10)
-    fig.update_layout(template=_TEMPLATE, height=440, bargap=0.02,
+    fig.update_layout(template=_template(), height=440, bargap=0.02,
                       xaxis=dict(**xax, range=list(xr)),
                       yaxis=dict(title=dict(text="Results (build × condition)")),
                       legend=dict(orientation="h", x=0, y=-0.24, yanchor="top"),
@@ -860,7 +926,7 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
     yr = _padded(tc["value"].to_numpy(float), (lo, hi, np.nan if target is None else target),
                  log=False)
     rows = len(ranks) * (len(vccs) + 1) + 2          # legend lines: group titles, supplies, spec
-    fig.update_layout(template=_TEMPLATE, height=max(460, 190 + 21 * rows + 8 * len(ranks)),
+    fig.update_layout(template=_template(), height=max(460, 190 + 21 * rows + 8 * len(ranks)),
                       xaxis=dict(title=dict(text=_header("temperature_c")), ticksuffix=" °C"),
                       yaxis=dict(**_axis(main, values=tc["value"].to_numpy(float), span=yr,
                                          log=False, count=8), range=list(yr)),
@@ -975,7 +1041,7 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
     fig = go.Figure(go.Parcoords(dimensions=dims, line=line,
                                  labelfont=dict(size=13), tickfont=dict(size=11),
                                  rangefont=dict(size=1, color="rgba(0,0,0,0)")))
-    fig.update_layout(template=_TEMPLATE, height=540,
+    fig.update_layout(template=_template(), height=540,
                       margin=dict(l=max(80, int(half[0])), r=int(right), t=80, b=40))
     sec.figure = fig
     good = ("Colour is the yield: pale grey lines are designs with little or none, and the "
@@ -1008,8 +1074,20 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
 
 # --- the page ----------------------------------------------------------------------------------
 def build_sections(report: Report) -> list[Section]:
-    """The sections of the page, each with its figure or the reason it has none."""
-    return _sections(report, _designs(report))
+    """The sections of the page, each with its figure or the reason it has none; every trace
+    that shows the designs' hover text carries that text, as the page's JSON does."""
+    ds = _designs(report)
+    sections = _sections(report, ds)
+    for s in sections:
+        for trace in (s.figure.data if s.figure is not None else ()):
+            if _shows_designs(trace, ds):
+                trace.customdata = ds.custom[np.asarray(trace.customdata, dtype=np.intp)]
+    return sections
+
+
+def _shows_designs(trace, ds: _Designs) -> bool:
+    """The trace shows the designs' hover text (and carries their row numbers)."""
+    return getattr(trace, "hovertemplate", None) == ds.template and trace.customdata is not None
 
 
 def _sections(report: Report, ds: _Designs) -> list[Section]:
@@ -1045,7 +1123,7 @@ def _waveform_section(report: Report) -> Section:
                                  name=f"output, {name}", line=dict(color=colour, width=1.5, dash="dash")))
         for v in tr.thresholds.get(label, ()):
             fig.add_hline(y=v, line=dict(color=colour, width=1, dash="dot"))
-    fig.update_layout(template=_TEMPLATE, height=560,
+    fig.update_layout(template=_template(), height=560,
                       xaxis=dict(title=dict(text="Time [s]"), exponentformat="SI", ticksuffix="s"),
                       yaxis=dict(title=dict(text="Voltage [V]"), ticksuffix=" V"),
                       legend=dict(orientation="h", yanchor="top", y=-0.22, x=0),
@@ -1096,7 +1174,7 @@ def _cost_section(report: Report) -> Section:
         fig.add_hline(target * 100, line=dict(color=BLACK, width=1.5, dash="dash"))
         fig.add_trace(_legend_only(f"Yield target: {target * 100:g} %", "spec", mode="lines",
                                    line=dict(color=BLACK, width=1.5, dash="dash")))
-    fig.update_layout(template=_TEMPLATE, height=460, margin=dict(l=90, r=30, t=40, b=120),
+    fig.update_layout(template=_template(), height=460, margin=dict(l=90, r=30, t=40, b=120),
                       legend=dict(orientation="h", x=0, y=-0.25, yanchor="top"),
                       xaxis=dict(title="Relative cost index of the timing parts' grades "
                                        "(rough common-practice figures [cp], not quotes)"),
@@ -1200,7 +1278,7 @@ def render_page(report: Report) -> str:
             parts.append(f'<p class="how">{s.explain}</p>')
             if s.note:
                 parts.append(f'<p class="note">{s.note}</p>')
-            parts.append(f'<div class="chart">{_html_div(s.figure, f"chart-{s.key}", first)}</div>')
+            parts.append(f'<div class="chart">{_html_div(s.figure, f"chart-{s.key}", first, ds)}</div>')
             first = False
         parts.append("</section>")
     parts.append("</main>")

@@ -78,7 +78,7 @@ from sweep.variables import AXES, VARIABLES
 
 __all__ = ["write_workbook", "column_header", "column_format", "eng_number_format",
            "SHEETS", "KM_FORMAT", "KM3_FORMAT", "KM4_FORMAT", "ENG_FORMAT", "CAP_FORMAT",
-           "PRINT_ROWS"]
+           "PRINT_ROWS", "DESIGNS_ROWS"]
 
 SHEETS = ("Summary", "Designs", "Points", "Parts", "Check", "Study", "Notes")
 
@@ -100,6 +100,10 @@ CAP_SCALE = 1e12
 CAP_FORMAT = '[>=1000000]0.0#,," µF";[>=1000]0.0#," nF";0.0#" pF"'
 CAP_HEADER = "C [pF]"
 PRINT_ROWS = 200            # data rows of Designs and Points in the default print area
+#: rows of the Designs sheet, best-ranked first; designs.parquet holds every design. 10 000
+#: rows of 56 columns write in about 3 s on a loaded 2-core machine, most of it the
+#: spreadsheet library's own per-cell work [measured: tests/benchmarks/workbook_rows.py]
+DESIGNS_ROWS = 10_000
 _PART_COLUMNS = ("ra_ohm", "rb_ohm", "r_ohm", "c_f")
 _FIXED = {"pct": "0.0%", "fixed1": "0.0", "fixed2": "0.00", "fixed3": "0.000", "int": "0"}
 
@@ -228,7 +232,8 @@ def _quantity(name: str) -> str | None:
 def _quantity_formats(report: Report) -> dict[str, str]:
     """One display format per "eng" quantity, from every value of it the workbook shows."""
     values: dict[str, list[np.ndarray]] = {}
-    for frame in (report.designs, report.points, report.check):
+    shown = report.designs.head(DESIGNS_ROWS) if report.designs is not None else None
+    for frame in (shown, report.points, report.check):
         if frame is None:
             continue
         for name in frame.columns:
@@ -410,13 +415,57 @@ def _cell_objects(col: _Col, lo: int, hi: int) -> np.ndarray:
     return out
 
 
+class _TableFormats:
+    """Every format a table's cells take, made once per column before any row is written (a
+    per-cell style lookup was most of the Designs sheet's time [measured])."""
+
+    def __init__(self, st: _Styles, cols: list[_Col], fail_props: dict):
+        self.st = st
+        self.fail = []            # per column: its format in a failing row
+        self.text = []            # per column: {text value or None: format} of plain rows
+        self.why = []             # per column: (plain, failing) format of the empty-cell reason
+        for c in cols:
+            base = (c.text_props or {}) if c.kind == "text" else c.cell_props()
+            self.fail.append({**base, **fail_props, **(c.fail_extra or {})})
+            self.text.append({None: c.text_props or {}, **(c.value_props or {})})
+            why = {"italic": True, "align": "right"}
+            self.why.append((why, {**why, **fail_props, **(c.fail_extra or {})}))
+        self._made: dict = {}
+        self.fail_format = [self.get(props) for props in self.fail]
+
+    def get(self, props: dict, text=None):
+        """The format of a cell with ``props``; text that a spreadsheet could read as a formula
+        adds the quote prefix. One lookup per distinct (props, prefix) pair."""
+        danger = isinstance(text, str) and text.startswith(_DANGER)
+        key = (id(props), danger)
+        if key not in self._made:
+            self._made[key] = (props, self.st.get(**props, **({"quote_prefix": True} if danger
+                                                              else {})))
+        return self._made[key][1]
+
+
+def _write_failing_row(ws, fm: _TableFormats, r: int, row: list) -> None:
+    """A failing row: every cell with its column's failing format (made once)."""
+    fmts = fm.fail_format
+    for i, v in enumerate(row):
+        if v is None:
+            ws.write_blank(r, i, None, fmts[i])
+        elif isinstance(v, str):
+            ws.write_string(r, i, v, fm.get(fm.fail[i], v) if v.startswith(_DANGER) else fmts[i])
+        elif isinstance(v, bool):
+            ws.write_boolean(r, i, v, fmts[i])
+        else:
+            ws.write_number(r, i, v, fmts[i])
+
+
 def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
                  fail_props: dict | None = None) -> int:
     """Header at first_row, data below; returns the last row written (0-based).
 
     Rows are written strictly in order (constant_memory). Plain rows go through ``write_row``
     per run of numeric columns, taking each column's format from ``set_column``; text cells go
-    through ``write_string``; rows where ``fail`` is true are styled cell by cell."""
+    through ``write_string``; rows where ``fail`` is true take each column's failing format.
+    Every format is made once per column before the rows (``_TableFormats``)."""
     for i, c in enumerate(cols):
         ws.set_column(i, i, c.width, st.get(**c.cell_props()))
     _header_row(ws, st, first_row, [c.header for c in cols], [c.width for c in cols])
@@ -431,7 +480,7 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
         elif start is not None:
             runs.append((start, i))
             start = None
-    fail_props = fail_props or {}
+    fm = _TableFormats(st, cols, fail_props or {})
     for lo in range(0, n, _CHUNK):
         hi = min(n, lo + _CHUNK)
         block = np.empty((hi - lo, len(cols)), dtype=object)
@@ -441,25 +490,21 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
         fails = None if fail is None else np.asarray(fail[lo:hi], dtype=bool).tolist()
         r = first_row + 1 + lo
         for k, row in enumerate(rows):
-            if fails is not None and fails[k]:
-                for i, c in enumerate(cols):
-                    base = ((c.text_props or {}) if c.kind == "text"
-                            else c.cell_props())
-                    props = {**base, **fail_props, **(c.fail_extra or {})}
-                    _value(ws, st, r, i, row[i], **props)
+            failing = fails is not None and fails[k]
+            if failing:
+                _write_failing_row(ws, fm, r, row)
             else:
                 for a, b in runs:
                     ws.write_row(r, a, row[a:b])
                 for i in text_idx:
                     s = row[i]
                     if s:
-                        props = (cols[i].value_props or {}).get(s, cols[i].text_props)
-                        _text(ws, st, r, i, s, **(props or {}))
+                        texts = fm.text[i]
+                        ws.write_string(r, i, s, fm.get(texts.get(s, texts[None]), s))
             for i in why_idx:
                 if row[i] is None and cols[i].empty_text[lo + k]:
-                    extra = {**fail_props, **(cols[i].fail_extra or {})} if fails and fails[k] else {}
-                    _text(ws, st, r, i, cols[i].empty_text[lo + k],
-                          **{"italic": True, "align": "right", **extra})
+                    text = cols[i].empty_text[lo + k]
+                    ws.write_string(r, i, text, fm.get(fm.why[i][failing], text))
             r += 1
     return first_row + n
 
@@ -645,7 +690,14 @@ def _margin_why(df: pd.DataFrame) -> np.ndarray:
 
 
 def _designs(ws, st: _Styles, report: Report) -> None:
-    df = report.designs.copy()
+    total = len(report.designs)
+    df = report.designs.head(DESIGNS_ROWS).copy()
+    capped = total > len(df)
+    top = 1 if capped else 0       # a capped sheet says so in row 1, above its header
+    if capped:
+        _note_row(ws, st, 0, f"This sheet holds the {len(df):,} best-ranked of {total:,} designs "
+                             f"(capped at {DESIGNS_ROWS:,} rows to keep the workbook quick to write "
+                             "and open); designs.parquet beside the workbook holds every design.")
     keys = [c for c in ["rank", "design", *report.part_columns, "grade_label", "cost_index"]
             if c in df.columns]
     if "verdict" not in df:
@@ -672,18 +724,20 @@ def _designs(ws, st: _Styles, report: Report) -> None:
         elif c.name == "wc_margin":
             c.empty_text = _margin_why(df)
             c.width = max(c.width, 14.0)
-    # the Verdict header's note (before row 0 is written: constant_memory keeps no past rows)
-    ws.write_comment(0, len(keys), _verdict_note(report), {"x_scale": 3, "y_scale": 3})
-    last = _write_table(ws, st, cols, 0, fail=fail,
+    # the Verdict header's note (before its row is written: constant_memory keeps no past rows)
+    ws.write_comment(top, len(keys), _verdict_note(report), {"x_scale": 3, "y_scale": 3})
+    last = _write_table(ws, st, cols, top, fail=fail,
                         fail_props={"italic": True, "bg_color": _FAIL_FILL})
-    ws.freeze_panes(1, len(keys) + 1)
-    ws.autofilter(0, 0, max(last, 0), len(cols) - 1)
+    ws.freeze_panes(top + 1, len(keys) + 1)
+    ws.autofilter(top, 0, max(last, top), len(cols) - 1)
     n_print = len(keys) + 1 + len(lead) if len(lead) >= 3 else min(12, len(names))
-    _page_setup(ws, 0, last_col=n_print - 1, last_row=min(last, PRINT_ROWS),
+    where = ("is on screen and in designs.parquet" if not capped else
+             f"is in designs.parquet; this sheet holds the best {len(df):,}")
+    _page_setup(ws, top, last_col=n_print - 1, last_row=min(last, top + PRINT_ROWS),
                 header=(f"Designs, printed: the first {n_print} columns"
                         + (f" and {PRINT_ROWS} rows" if len(df) > PRINT_ROWS else "")
-                        + f". The full table ({len(df):,} design{'' if len(df) == 1 else 's'}, "
-                        f"{len(cols)} columns) is on screen and in designs.parquet."),
+                        + f". The full table ({total:,} design{'' if total == 1 else 's'}, "
+                        f"{len(cols)} columns) {where}."),
                 footer=_verdict_short(report))
 
 
@@ -881,6 +935,15 @@ def _study(ws, st: _Styles, report: Report, file_name: str) -> None:
     _page_setup(ws, 1)
 
 
+def _designs_cap_line(report: Report) -> str:
+    """What the Notes sheet adds when the Designs sheet is capped, else nothing."""
+    total = len(report.designs)
+    if total <= DESIGNS_ROWS:
+        return ""
+    return (f" The Designs sheet holds the {DESIGNS_ROWS:,} best-ranked of {total:,} designs; "
+            "designs.parquet holds every design.")
+
+
 def _notes(ws, st: _Styles, report: Report) -> None:
     ws.set_column(0, 0, 20)
     ws.set_column(1, 1, 110)
@@ -890,7 +953,8 @@ def _notes(ws, st: _Styles, report: Report) -> None:
     rows += [("Caution", x, {"bold": True}) for x in report.cautions]
     rows += [("Number formats", _FORMAT_LINE, {}),
              ("Verdict", _verdict_note(report)[len("Verdict: "):], {}),
-             ("Printing", _PRINT_LINE, {}), ("Safety", _SAFETY_LINE, {"bold": True})]
+             ("Printing", _PRINT_LINE + _designs_cap_line(report), {}),
+             ("Safety", _SAFETY_LINE, {"bold": True})]
     for i, (topic, text, props) in enumerate(rows):
         r = 1 + i
         ws.set_row(r, 15 * max(_lines(text, 110), _lines(topic, 20)))

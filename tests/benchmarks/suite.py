@@ -4,6 +4,7 @@ its baseline. Ends with one JSON line of named figures.
     python tests/benchmarks/suite.py [--quick]
 
 --quick uses a 1e7-point sweep for the memory and worker figures instead of 1e8 (minutes less).
+--only-writers prints the workbook, end-to-end and command figures alone.
 """
 from __future__ import annotations
 
@@ -92,16 +93,96 @@ def big_runs(quick: bool) -> dict:
             "speedup_2_workers_analysis": round(analysis[1] / analysis[2], 2)}
 
 
+def _median_alternating(commands: dict[str, list[str]], rounds: int = 5, cwd: Path | None = None) -> dict:
+    """Median wall time (s) of each command, run in turns (one of each per round), so a load
+    that comes and goes on a shared machine weighs on every command alike."""
+    times = {k: [] for k in commands}
+    for _ in range(rounds):
+        for k, cmd in commands.items():
+            t0 = time.perf_counter()
+            subprocess.run(cmd, check=True, capture_output=True, cwd=cwd)
+            times[k].append(time.perf_counter() - t0)
+    return {k: float(np.median(v)) for k, v in times.items()}
+
+
+def end_to_end(rounds: int = 5) -> dict:
+    """The example study end to end through the command line (analysis, workbook, page, tables),
+    beside `python -c "import numpy, pandas"`, medians of `rounds` alternations; the commands that
+    need no analysis beside the same baseline."""
+    root = HERE.parents[1]
+    with tempfile.TemporaryDirectory() as tmp:
+        run = [sys.executable, "-m", "sweep", "run", str(root / "studies" / "bike-light.toml"),
+               "--quiet", "--out", str(Path(tmp) / "bike-light")]
+        cmds = {"import numpy, pandas": [sys.executable, "-c", "import numpy, pandas"],
+                "bike-light run": run,
+                "--help": [sys.executable, "-m", "sweep", "--help"],
+                "point": [sys.executable, "-m", "sweep", "point", "--ra", "10k", "--rb", "47k",
+                          "--c", "100n", "--vcc", "9", "--json"],
+                "new": [sys.executable, "-m", "sweep", "new", "astable", "--force", "--out",
+                        str(Path(tmp) / "a.toml")],
+                "check": [sys.executable, "-m", "sweep", "check",
+                          str(root / "studies" / "bike-light.toml")]}
+        med = _median_alternating(cmds, rounds, cwd=root)
+        points = json.loads((Path(tmp) / "bike-light" / "run.json").read_text())["points"]
+    base = med["import numpy, pandas"]
+    ratio = med["bike-light run"] / base
+    print(f"bike-light end to end {med['bike-light run']:.2f} s ({points:,} points, "
+          f"{points / med['bike-light run']:,.0f} points/s) against import numpy, pandas "
+          f"{base:.2f} s: {ratio:.1f}x (target 2.5x; medians of {rounds} alternations)")
+    for k in ("--help", "point", "new", "check"):
+        print(f"timer-sweep {k}: {med[k]:.2f} s ({med[k] / base:.1f}x the import of numpy, pandas)")
+    return {"import_numpy_pandas_s": round(base, 3), "bike_light_s": round(med["bike-light run"], 3),
+            "bike_light_points": points, "bike_light_over_import": round(ratio, 2),
+            **{f"command_{k.strip('-')}_s": round(med[k], 3) for k in ("--help", "point", "new", "check")}}
+
+
+def million_points() -> dict:
+    """The example study with finer resistor series and a fourth capacitor (about 1e6 points),
+    end to end through the command line, workbook and page included."""
+    root = HERE.parents[1]
+    text = (root / "studies" / "bike-light.toml").read_text(encoding="utf-8")
+    text = (text.replace('ra = { series = "E12"', 'ra = { series = "E96"')
+                .replace('rb = { series = "E12"', 'rb = { series = "E96"')
+                .replace('c  = ["470n", "1u", "2.2u"]', 'c  = ["470n", "1u", "2.2u", "4.7u"]'))
+    with tempfile.TemporaryDirectory() as tmp:
+        study = Path(tmp) / "bike-light-1e6.toml"
+        study.write_text(text, encoding="utf-8")
+        out = Path(tmp) / "out"
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, "-m", "sweep", "run", str(study), "--quiet", "--yes",
+                        "--out", str(out)], check=True)
+        total = time.perf_counter() - t0
+        info = json.loads((out / "run.json").read_text())
+    n = info["points"]
+    print(f"1e6 study end to end: {n:,} points in {total:.1f} s = {n / total:,.0f} points/s "
+          f"(analysis {info['seconds_analysis']:.1f} s; target 500,000 points/s)")
+    return {"e2e_1e6_points": n, "e2e_1e6_s": round(total, 2),
+            "e2e_1e6_points_per_s": round(n / total),
+            "e2e_1e6_analysis_s": info["seconds_analysis"]}
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--only-writers", action="store_true")
     args = ap.parse_args()
     figures = {}
+    if args.only_writers:
+        wb = workbook_rows.measure(100_000, 10_000)
+        figures.update({"workbook_rows_per_s": wb["workbook_rows_per_s"],
+                        "workbook_designs_rows_per_s": wb["designs_rows_per_s"]})
+        figures.update(end_to_end())
+        figures.update(million_points())
+        print(json.dumps(figures))
+        return
     figures.update(engine_bench.measure())
     figures.update(monte_carlo_rate())
     wb = workbook_rows.measure(100_000, 10_000)
     figures.update({"workbook_rows_per_s": wb["workbook_rows_per_s"],
+                    "workbook_designs_rows_per_s": wb["designs_rows_per_s"],
                     "workbook_over_pandas_openpyxl": wb["ratio"]})
+    figures.update(end_to_end())
+    figures.update(million_points())
     figures.update(big_runs(args.quick))
     figures["cpu_count"] = os.cpu_count()
     print(json.dumps(figures))
