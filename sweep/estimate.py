@@ -13,6 +13,7 @@ from .spreads import extra_spreads
 from .case import axis_values
 from .engine import DEFAULT_CHUNK, evaluate_block
 from .errors import InputError
+from .limits import MC_DESIGNS, PARQUET_POINTS, WORKBOOK_DESIGNS, WORKBOOK_POINTS
 from .study import Study
 
 LIMIT_POINTS = 200_000_000       # refused without --yes
@@ -36,7 +37,6 @@ def evaluations(study: Study) -> int:
     Monte Carlo of at most MC_DESIGNS designs (exact integers: no overflow)."""
     nd, nc = study.n_designs, study.n_conditions
     corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, False)))
-    from .pipeline import MC_DESIGNS
     return (nd * nc * (1 + corners) + nd * (1 + 2 * len(varied_parts(study)))
             + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
 
@@ -74,12 +74,10 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     # of the sample that can
     write = write_seconds(study, k, full_nc)
     nc = full_nc
-    from .pipeline import MC_DESIGNS
     seconds = nd * nc * per_point + min(nd * reach, MC_DESIGNS) * nc * study.monte_carlo / rate
     seconds += write
     # memory: the libraries, a few blocks of arrays, the ranking keys of every design, and the
     # best designs' full rows kept for the workbook [measured: 685 MiB at 1e8 points]
-    from .pipeline import WORKBOOK_DESIGNS
     ncol = 7 * len(summary_outputs(study)) + 20
     mem = (250 * 2**20 + max(DEFAULT_CHUNK, nc) * 16 * 80 * 8 + nd * 10 * 8 * 3
            + min(nd, WORKBOOK_DESIGNS) * ncol * 8 * 4)
@@ -95,34 +93,20 @@ def write_seconds(study: Study, k: int, n_conditions: int | None = None) -> floa
     """Time to write the outputs: the workbook's cells at the rate measured here on a sample of
     this study's own point rows, plus the chart page and the parquet tables. n_conditions: the
     full study's count when `study` is a thinned sample."""
-    import tempfile
-    from pathlib import Path
-
-    import xlsxwriter
-
-    from .pipeline import PARQUET_POINTS, WORKBOOK_DESIGNS, WORKBOOK_POINTS
     from .writers.page import MAX_DESIGNS
-    from .writers.workbook import _columns, _Styles, _write_table
+    from .writers.workbook import DESIGNS_ROWS, cell_seconds
     nd, nc = study.n_designs, n_conditions or study.n_conditions
     _, pts = analyse_block(study, 0, max(1, min(k, 2000 // max(study.n_conditions, 1))), Options(monte_carlo=0,
                                                                                 keep_points=True))
-    from xlsxwriter.exceptions import XlsxWriterException
-    try:
-        with tempfile.TemporaryDirectory() as tmp:
-            wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
-            ws = wb.add_worksheet("Points")
-            t0 = time.perf_counter()
-            _write_table(ws, _Styles(wb), _columns(pts, list(pts.columns)), 0)
-            wb.close()
-            cell_s = max(time.perf_counter() - t0, 1e-6) / max(pts.size, 1)
-    except (OSError, XlsxWriterException):
+    cell_s = cell_seconds(pts)
+    if cell_s is None:
         # the sample could not be written (a full disk, say): estimate with a typical rate and
         # let the run itself report the disk against the output folder
         cell_s = FALLBACK_CELL_SECONDS
     n_cols = pts.shape[1]
     d_cols = 7 * len(summary_outputs(study)) + 25
     cells = (min(min(nd, max(1, study.top)) * nc, WORKBOOK_POINTS) * n_cols
-             + min(nd, WORKBOOK_DESIGNS) * d_cols)      # Points: the top designs only
+             + min(nd, DESIGNS_ROWS) * d_cols)      # Points: the top designs only; Designs: capped
     parquet = (min(nd * nc, PARQUET_POINTS) * n_cols + nd * d_cols) * 0.05 * cell_s  # [measured:
     # parquet takes about a twentieth of a workbook cell's time per value]
     return cells * cell_s + parquet + PAGE_SECONDS + min(nd, MAX_DESIGNS) * PAGE_DESIGN_SECONDS

@@ -27,14 +27,13 @@ from .case import axis_values
 from .engine import DEFAULT_CHUNK, design_blocks, evaluate_block
 from .errors import InputError
 from . import grades
+from .limits import MC_DESIGNS, PARQUET_POINTS, WORKBOOK_DESIGNS, WORKBOOK_POINTS
 from .pick import pick_figures
 from .reporting import build_report
 from .variables import OUTPUTS
 from .spreads import extra_spreads, varied_parts
 from .study import Study
 
-WORKBOOK_POINTS = 100_000     # rows of the Points sheet [issue: default cap]
-PARQUET_POINTS = 5_000_000    # rows of points.parquet unless --all-points
 
 
 @dataclass
@@ -44,6 +43,8 @@ class RunResult:
     out_dir: Path
     files: dict[str, Path]
     info: dict = field(default_factory=dict)
+    main_outputs: tuple[str, ...] = ()                    # the circuit's main output columns
+    verdicts: dict[str, str] = field(default_factory=dict)  # verdict word -> what it means
 
 
 def check_writable(out_dir: Path) -> None:
@@ -62,8 +63,6 @@ def check_writable(out_dir: Path) -> None:
         raise InputError(str(out_dir), "--out", f"cannot write here: {e.strerror}") from None
 
 
-MC_DESIGNS = 2000             # designs that get a Monte Carlo, best worst-case margins first
-WORKBOOK_DESIGNS = 100_000    # rows of the Designs sheet and of the ranked table kept in memory
 
 
 class TableWriter:
@@ -473,7 +472,8 @@ def run_study(study: Study, out_dir: Path, *, ideal: bool = False, all_points: b
                          f"{disk.strerror or disk}; the previous outputs were kept") from None
     finally:
         shutil.rmtree(staging, ignore_errors=True)
-    return RunResult(study, ranked, out_dir, final, info)
+    return RunResult(study, ranked, out_dir, final, info, report.circuit_text.main_outputs,
+                     dict(report.verdicts))
 
 
 def write_tables(report, bom_path: Path, waveform_path: Path) -> None:

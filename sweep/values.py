@@ -288,6 +288,11 @@ _SYMBOL = {"ohm": "Ω", "C": "°C"}
 def unit_symbol(unit: str) -> str:
     """The symbol people read for a parse unit: "ohm" -> "Ω", "C" -> "°C", others as they are."""
     return _SYMBOL.get(unit, unit)
+
+
+def symbol_unit(symbol: str) -> str:
+    """The parse unit of a symbol people read (the inverse of unit_symbol): "°C" -> "C"."""
+    return {v: k for k, v in _SYMBOL.items()}.get(symbol, symbol)
 _OUT_PREFIX = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
 
 

@@ -125,7 +125,7 @@ FLAG_TEXT = {
 #: the per-design figures of an output column, by suffix, in the order tables show them
 STATS: tuple[tuple[str, str], ...] = (
     ("_nom", "nominal"), ("_min", "min"), ("_max", "max"), ("_wc_min", "worst-case min"),
-    ("_wc_max", "worst-case max"), ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std"))
+    ("_wc_max", "worst-case max"), ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std. dev."))
 
 
 def eng(value: float, column: str) -> str:

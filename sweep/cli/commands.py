@@ -9,7 +9,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from . import app
+from .app import app
 from ..errors import InputError
 
 StudyArg = Annotated[Path, typer.Argument(help="Study file (.toml) or a timer-sweep workbook (.xlsx) "
@@ -61,7 +61,7 @@ def run(study: StudyArg,
     from ..pipeline import run_study
     from .show import progress_bar, top_table
 
-    from . import STOPPED
+    from .app import STOPPED
 
     if out is not None and not out.strip():
         raise InputError("", "--out", "is empty; give a folder (--out . for the current one)")

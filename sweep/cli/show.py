@@ -9,7 +9,7 @@ from rich.markup import escape as _markup_escape
 from rich.table import Table
 
 from ..errors import printable
-from ..variables import eng
+from ..variables import REFS, eng
 
 
 def escape(text: str) -> str:
@@ -48,13 +48,11 @@ def progress_bar(total: int, quiet: bool, est=None):
 
 def top_table(res, n: int = 5, table: bool = True) -> None:
     st, d = res.study, res.designs
-    from ..analysis import main_outputs
-    main = main_outputs(st.circuit)
+    main = res.main_outputs
     t = Table(title=escape(f"{st.title}: best {min(n, len(d))} of {len(d):,} designs"), title_justify="left")
     t.add_column("rank", justify="right")
     for a in st.design:
-        t.add_column(a.column.rsplit("_", 1)[0].upper() if a.key in ("ra", "rb", "r", "c")
-                     else "RL" if a.key == "load_resistance" else a.key, justify="right")
+        t.add_column(REFS.get(a.key, a.key), justify="right")
     for m in main:
         t.add_column(f"{m.split('_')[0]} nom", justify="right")
     t.add_column("verdict")
@@ -75,10 +73,10 @@ def top_table(res, n: int = 5, table: bool = True) -> None:
         t.add_row(*(escape(c) for c in cells))
     if table:
         out.print(t)
-    from ..analysis import VERDICTS
+    verdicts = res.verdicts
     shown = sorted(set(d.head(n if table else 1)["verdict"]) | {res.info.get("verdict", "pass")},
-                   key=list(VERDICTS).index)
-    out.print(escape("verdicts: " + "; ".join(f"{k} = {VERDICTS[k]}" for k in shown)))
+                   key=list(verdicts).index)
+    out.print(escape("verdicts: " + "; ".join(f"{k} = {verdicts[k]}" for k in shown)))
     if not (d["verdict"] == "pass").any():
         out.print("[bold]No design meets the spec.[/bold] The table shows the best candidates; widen "
                   "the ranges or relax the spec.")

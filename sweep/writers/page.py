@@ -24,7 +24,7 @@ import pandas as pd
 from sweep.report import Report
 from sweep.writers.atomic import atomic_path
 from sweep.values import format_eng
-from sweep.variables import VARIABLES, Variable
+from sweep.variables import STATS, VARIABLES, Variable
 
 
 class _OnFirstUse:
@@ -113,7 +113,7 @@ def _var(name: str) -> Variable:
 
 def _base(name: str) -> str:
     """'frequency_hz_nom' -> 'frequency_hz' (the registry entry of a per-design column)."""
-    for suffix in ("_nom", "_min", "_max", "_wc_min", "_wc_max", "_mc_mean", "_mc_std"):
+    for suffix, _word in STATS:
         if name.endswith(suffix) and name[: -len(suffix)] in VARIABLES:
             return name[: -len(suffix)]
     return name

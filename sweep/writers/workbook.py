@@ -73,8 +73,8 @@ from xlsxwriter.utility import xl_rowcol_to_cell
 
 from sweep.report import Report
 from sweep.writers.atomic import atomic_path
-from sweep.values import format_eng
-from sweep.variables import AXES, VARIABLES
+from sweep.values import format_eng, symbol_unit
+from sweep.variables import AXES, STATS, VARIABLES
 
 __all__ = ["write_workbook", "column_header", "column_format", "eng_number_format",
            "SHEETS", "KM_FORMAT", "KM3_FORMAT", "KM4_FORMAT", "ENG_FORMAT", "CAP_FORMAT",
@@ -144,9 +144,7 @@ _CHECK_NOTE = ("Change a part value or the control pin (blue cells; C in pF, a b
 
 
 # --- headers and number formats ----------------------------------------------------------------
-_SUFFIXES = (("_wc_min", "worst-case min"), ("_wc_max", "worst-case max"),
-             ("_mc_mean", "Monte Carlo mean"), ("_mc_std", "Monte Carlo std. dev."),
-             ("_nom", "nominal"), ("_min", "min"), ("_max", "max"))
+_SUFFIXES = STATS           # per-design figures: suffix and the word a header says
 _SPECIAL = {"verdict": ("Verdict", "text"), "c_f": (CAP_HEADER, "cap")}
 
 
@@ -646,7 +644,7 @@ def _unit_for_eng(var) -> str:
         return ""
     if var.fmt == "pct":
         return "%"
-    return {"Ω": "ohm", "°C": "C"}.get(var.unit, var.unit)
+    return symbol_unit(var.unit)
 
 
 def _spec_text(s, var) -> str:
@@ -988,3 +986,22 @@ def write_workbook(path: Path, report: Report, *, cached_results: bool = True) -
         _notes(sheets["Notes"], st, report)
         sheets["Summary"].activate()
         wb.close()
+
+
+def cell_seconds(table: pd.DataFrame) -> float | None:
+    """Seconds per cell this machine takes to write `table` as a sheet of the workbook (a
+    sample the run-time estimate scales up); None where the sample cannot be written."""
+    import tempfile
+    import time
+
+    from xlsxwriter.exceptions import XlsxWriterException
+    try:
+        with tempfile.TemporaryDirectory() as tmp:
+            wb = xlsxwriter.Workbook(str(Path(tmp) / "sample.xlsx"), {"constant_memory": True})
+            ws = wb.add_worksheet("Points")
+            t0 = time.perf_counter()
+            _write_table(ws, _Styles(wb), _columns(table, list(table.columns)), 0)
+            wb.close()
+            return max(time.perf_counter() - t0, 1e-6) / max(table.size, 1)
+    except (OSError, XlsxWriterException):
+        return None
