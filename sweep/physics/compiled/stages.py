@@ -209,7 +209,7 @@ def _nets_a(t, p):
 def astable_exp1(t, sc, quad, m, e):
     """Arguments of the first exponential of both run-ons (the low phase past Vc/2, the high
     phase past Vc)."""
-    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    tpd, stray = sc[TPD], sc[STRAY]
     for p in range(m):
         ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
@@ -222,7 +222,7 @@ def astable_exp1(t, sc, quad, m, e):
 @njit(**OPTS)
 def astable_exp2(t, sc, m, e):
     """Second exponential of both run-ons: C taken at the middle of the run [nodes.run_on]."""
-    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    tpd, stray = sc[TPD], sc[STRAY]
     for p in range(m):
         ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         scale = t[C, p] * t[CTF, p]
@@ -241,7 +241,7 @@ def astable_logs(t, sc, m, e, lg):
     """The node where the cycle starts (v_bot) and tops out (v_top) from the run-ons, and the
     arguments of the logarithms: both phases' RC law and the discharge surge's exponential
     tail. e[0], e[1] become v_bot and v_top."""
-    i_draw, rs, vs, surge_a = sc[IDRAW], sc[RS], sc[VS], sc[SURGE_A]
+    rs, surge_a = sc[RS], sc[SURGE_A]
     for p in range(m):
         ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         v_up = t[VUP, p]
@@ -265,7 +265,7 @@ def astable_high(t, sc, quad, m, e, lg, out, o):
     """The high phase from v_bot to v_up and on to v_top [nodes.linear_phase]: its length [s]
     into the high-time row and the mean current [A] the node draws over it (charge, leakage,
     input currents) into the supply row; astable_sum finishes both."""
-    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    tpd, i_draw, stray = sc[TPD], sc[IDRAW], sc[STRAY]
     for p in range(m):
         q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
         g_leak = t[GLEAK, p]
@@ -290,7 +290,7 @@ def astable_low(t, sc, quad, m, e, lg, out, o):
     into the low-time row, RA's mean current [A] into the power row and the discharge
     transistor's mean dissipation [W] into the duty row; astable_sum and astable_rates use
     them and write those rows' own figures."""
-    tpd, i_draw, rs, vs, stray = sc[TPD], sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    tpd, stray = sc[TPD], sc[STRAY]
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
@@ -315,7 +315,6 @@ def astable_low(t, sc, quad, m, e, lg, out, o):
 def astable_sum(t, sc, m, out, o):
     """High and low time (NaN where the node stalls), period, the supply current, and the
     chip's mean dissipation [W] where the junction temperature goes [model._astable]."""
-    i_draw, rs, vs = sc[IDRAW], sc[RS], sc[VS]
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
@@ -345,7 +344,7 @@ def astable_sum(t, sc, m, out, o):
 def astable_rates(t, sc, m, out, flags, o):
     """Frequency, duty, power, junction temperature (from the chip's dissipation) and the
     flags of limits and timing [model.evaluate, model._flags]."""
-    i_draw, rs, vs, theta, tj_max, f_max = sc[IDRAW], sc[RS], sc[VS], sc[THETA], sc[TJ_MAX], sc[F_MAX]
+    theta, tj_max, f_max = sc[THETA], sc[TJ_MAX], sc[F_MAX]
     for p in range(m):
         q = np.uint64(o + p)
         ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
@@ -371,7 +370,7 @@ def astable_discharge(t, sc, quad, m, e, lg, out, flags, o):
     """The discharge transistor's peak and steady current, RA's dissipation and the turn-on
     surge through RB, and their flags [model._astable, model._surge, model._flags], adding to
     flags. lg[2] holds the surge's logarithm."""
-    i_draw, rs, vs, stray = sc[IDRAW], sc[RS], sc[VS], sc[STRAY]
+    rs, stray = sc[RS], sc[STRAY]
     surge_a, dis_max, e_max, p_max = sc[SURGE_A], sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
     for p in range(m):
         q = np.uint64(o + p)
@@ -438,7 +437,7 @@ def _nets_m(t, p):
 @njit(**OPTS)
 def mono_exp1(t, sc, quad, m, e, lg):
     """The run-on's first exponential and the RC law's logarithm of the timing ramp."""
-    tpd, i_draw, vs, r_sat, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    tpd, stray = sc[TPD], sc[STRAY]
     for p in range(m):
         r_t, v0, vinf_c, g_c = _nets_m(t, p)
         scale = t[C, p] * t[CTF, p]
@@ -450,7 +449,7 @@ def mono_exp1(t, sc, quad, m, e, lg):
 @njit(**OPTS)
 def mono_exp2(t, sc, m, e):
     """The run-on's second exponential, C at the middle of the run."""
-    tpd, i_draw, vs, r_sat, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    tpd, stray = sc[TPD], sc[STRAY]
     for p in range(m):
         r_t, v0, vinf_c, g_c = _nets_m(t, p)
         scale = t[C, p] * t[CTF, p]
@@ -463,7 +462,7 @@ def mono_exp2(t, sc, m, e):
 @njit(**OPTS)
 def mono_logs(t, sc, m, e, lg):
     """v_top from the run-on (into e[0]) and the surge tail's logarithm argument (lg[1])."""
-    i_draw, vs, r_sat, surge_a = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[SURGE_A]
+    surge_a = sc[SURGE_A]
     r_loop = sc[RS] + sc[R_S]
     for p in range(m):
         r_t, v0, vinf_c, g_c = _nets_m(t, p)
@@ -478,7 +477,7 @@ def mono_logs(t, sc, m, e, lg):
 def mono_pulse(t, sc, quad, m, e, lg, out, o):
     """The pulse (the detector's timeout), the supply current while timing, the idle current
     and the power [model._monostable] into out[:, o:o+m]. lg[0] holds the ramp's logarithm."""
-    tpd, i_draw, vs, r_sat_m, stray = sc[TPD], sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    tpd, stray = sc[TPD], sc[STRAY]
     for p in range(m):
         q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
         vcc = t[VCC, p]
@@ -508,7 +507,6 @@ def missing_supply(t, sc, m, lg, out, o):
     """The detector's supply current and power while pulses keep arriving: the node ramps for
     one input period at a time [model._missing_pulse]. Its own loop: `expm1` has no vector
     form, and a call keeps the others from vectorising."""
-    i_draw, vs, r_sat_m = sc[IDRAW], sc[VS], sc[R_SAT_MONO]
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
@@ -529,7 +527,7 @@ def missing_supply(t, sc, m, lg, out, o):
 def mono_heat(t, sc, missing, m, out, flags, o):
     """Junction temperature, the detector's margin and the flags of limits, timing and false
     alarms [model.evaluate, model._flags]."""
-    i_draw, vs, r_sat_m, theta, tj_max = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[THETA], sc[TJ_MAX]
+    theta, tj_max = sc[THETA], sc[TJ_MAX]
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
@@ -560,7 +558,7 @@ def mono_discharge(t, sc, quad, m, e, lg, out, flags, o):
     """The capacitor's dump into the discharge transistor at the pulse's end, the steady
     discharge current, R's dissipation, the surge and their flags [model._monostable,
     model._surge, model._flags], adding to flags. lg[1] holds the surge's logarithm."""
-    i_draw, vs, r_sat_m, stray = sc[IDRAW], sc[VS], sc[R_SAT_MONO], sc[STRAY]
+    vs, stray = sc[VS], sc[STRAY]
     surge_a, r_sat, r_s, r_div = sc[SURGE_A], sc[RS], sc[R_S], sc[R_SAT_DIV]
     dis_max, e_max, p_max = sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
     for p in range(m):
