@@ -48,7 +48,7 @@ def assert_same(want: dict, got: dict) -> None:
             np.testing.assert_allclose(g, w, rtol=RTOL, atol=0.0, equal_nan=True, err_msg=k)
 
 
-def both(circuit, timer, parts, load, **kw):
+def assert_agree(circuit, timer, parts, load, **kw):
     want = model.evaluate(circuit, timer, parts, load, **kw)
     got = kernel.evaluate(circuit, timer, parts, load, **kw)
     assert_same(want, got)
@@ -79,7 +79,7 @@ def test_agrees_on_random_designs(circuit, timer, cap):
         kw = grid(tm, seed=zlib.crc32(f"{circuit} {timer} {cap} {i}".encode()))
         if circuit == "missing-pulse":
             kw["input_period"] = np.array([1e-5, 1e-3, 0.1, 10.0])[None, :, None]
-        both(circuit, tm, Parts(capacitor=cap), load, **kw)
+        assert_agree(circuit, tm, Parts(capacitor=cap), load, **kw)
 
 
 @pytest.mark.parametrize("timer", TIMERS)
@@ -87,7 +87,7 @@ def test_agrees_on_random_designs(circuit, timer, cap):
 def test_agrees_in_ideal_mode(circuit, timer):
     kw = grid(TIMERS[timer], seed=3)
     kw["input_period"] = 1e-3
-    both(circuit, TIMERS[timer], Parts(), LOADS["led-ground"], ideal=True, **kw)
+    assert_agree(circuit, TIMERS[timer], Parts(), LOADS["led-ground"], ideal=True, **kw)
 
 
 @pytest.mark.parametrize("timer", TIMERS)
@@ -105,7 +105,7 @@ def test_agrees_with_variation_factors_as_arrays(circuit, timer):
               diode_is_factor=rng.uniform(0.5, 2.0, shape), input_period=2e-3)
     for load in ("led-ground", "resistor-supply", "none"):
         for cap in ("X7R", "electrolytic"):
-            both(circuit, tm, Parts(capacitor=cap, capacitor_voltage_v=16.0), LOADS[load], **kw)
+            assert_agree(circuit, tm, Parts(capacitor=cap, capacitor_voltage_v=16.0), LOADS[load], **kw)
 
 
 @pytest.mark.parametrize("circuit", kernel.COMPILED)
@@ -114,19 +114,19 @@ def test_agrees_on_swept_load_control_voltage_and_odd_shapes(circuit):
     parts = Parts(capacitor="X7R", discharge_resistor_ohm=47.0)
     # a swept load resistor and control voltage (NaN: the internal divider; above the supply:
     # the node never reaches it)
-    both(circuit, tm, parts, LOADS["led-ground"], ra=np.array([1e3, 1e4, 1e5])[:, None],
+    assert_agree(circuit, tm, parts, LOADS["led-ground"], ra=np.array([1e3, 1e4, 1e5])[:, None],
          rb=4.7e4, r=np.array([1e3, 1e4, 1e5])[:, None], c=1e-7, vcc=np.array([5.0, 9.0, 12.0]),
          temperature=25.0, load_resistance=np.array([100.0, 1e3, np.nan]),
          control_voltage=np.array([np.nan, 4.0, 20.0]), input_period=1e-3)
     # scalars, one axis, and four axes
-    both(circuit, tm, parts, Load(), ra=1e4, rb=4.7e4, r=1e4, c=1e-7, vcc=9.0, temperature=25.0)
-    both(circuit, tm, parts, Load(), ra=1e4, rb=4.7e4, r=1e4, c=np.array([1e-9, 1e-7]), vcc=9.0,
+    assert_agree(circuit, tm, parts, Load(), ra=1e4, rb=4.7e4, r=1e4, c=1e-7, vcc=9.0, temperature=25.0)
+    assert_agree(circuit, tm, parts, Load(), ra=1e4, rb=4.7e4, r=1e4, c=np.array([1e-9, 1e-7]), vcc=9.0,
          temperature=25.0)
-    both(circuit, tm, parts, Load(), ra=np.full((2, 1, 1, 1), 1e4), rb=4.7e4, r=1e4,
+    assert_agree(circuit, tm, parts, Load(), ra=np.full((2, 1, 1, 1), 1e4), rb=4.7e4, r=1e4,
          c=np.array([1e-9, 1e-7])[:, None, None], vcc=np.array([5.0, 9.0])[:, None],
          temperature=np.array([0.0, 25.0, 50.0]))
     # nothing at all
-    both(circuit, tm, parts, Load(), ra=np.zeros((0, 1, 1)), rb=4.7e4, r=np.zeros((0, 1, 1)),
+    assert_agree(circuit, tm, parts, Load(), ra=np.zeros((0, 1, 1)), rb=4.7e4, r=np.zeros((0, 1, 1)),
          c=1e-7, vcc=np.array([9.0]), temperature=25.0)
 
 
@@ -147,7 +147,7 @@ def test_every_flag_is_provoked_and_identical(timer):
             kw["c"][:2, 0, 0] = [1e-11, 1e-4]
             kw["control_voltage"] = np.array([np.nan, 40.0])[None, :, None]   # 40 V: it stalls
             kw["input_period"] = np.array([1e-6, 100.0])[None, :, None]       # 100 s: false alarm
-            want = both(circuit, tm, Parts(capacitor="X7R"), LOADS[load], **kw)
+            want = assert_agree(circuit, tm, Parts(capacitor="X7R"), LOADS[load], **kw)
             seen |= int(np.bitwise_or.reduce(want["flag_mask"], axis=None))
     missing = [name for name, bit in FLAG_BITS.items() if not seen & bit and name != "spec-miss"]
     assert missing == []
