@@ -26,7 +26,7 @@ from .model import FLAG_BITS
 from .nodes import node_capacitance
 from .output import output_states
 from .parts import (Load, Parts, capacitance_temperature_factor, leakage_conductance_s,
-                    reverse_current_at, saturation_at, thermal_voltage_v, wright_omega)
+                    reverse_current_at, saturation_at, thermal_voltage_v)
 from .timer import TimerModel
 
 #: circuits with compiled stages; the others (astable-symmetric, bistable) use the reference model
@@ -361,9 +361,22 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, 
             res[st.M_VINF, o:o + m] = t[st.VINFC, :m]
 
 
+def _omega(dg, d, r0, n, m):
+    """parts.wright_omega of rows r0..r0+n of d (their first m columns), in place: its start and
+    Newton steps in compiled stages, numpy's exp and log between them."""
+    dg.omega_start(d, r0, n, m)
+    e, lg = d[dg.OE:dg.OE + n, :m], d[dg.OL:dg.OL + n, :m]
+    np.exp(e, out=e)
+    np.log(lg, out=lg)
+    dg.omega_first(d, r0, n, m)
+    for k in range(dg.OMEGA_STEPS):
+        np.log(lg, out=lg)
+        dg.omega_step(d, r0, n, m, k == dg.OMEGA_STEPS - 1)
+
+
 def _diode_tile(dg, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
     """The astable-diode stages over one tile of m points (compiled/diode.py), numpy's exp,
-    expm1, log and the model's own Wright omega on rows of d between them."""
+    expm1 and log on rows of d between them."""
     def apply(fn, *rows):
         for k in rows:
             fn(d[k, :m], out=d[k, :m])
@@ -377,14 +390,14 @@ def _diode_tile(dg, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
         dg.shock_lg(t, m, d)
         apply(np.log, dg.LG)
         dg.shock_ends(t, m, d)
-        d[dg.W0:dg.W2 + 1, :m] = wright_omega(d[dg.W0:dg.W2 + 1, :m])
+        _omega(dg, d, dg.W0, 3, m)
         dg.shock_currents(t, sc, m, d)
         apply(np.log, dg.LAM)
         dg.shock_powers(m, d)
         apply(np.expm1, dg.EM1, *range(dg.EMK, dg.EMK + dg.N_GL))
         apply(np.exp, *range(dg.EXK, dg.EXK + dg.N_GL))
         dg.shock_nodes(t, m, d)
-        d[dg.WK:dg.WK + dg.N_GL, :m] = wright_omega(d[dg.WK:dg.WK + dg.N_GL, :m])
+        _omega(dg, d, dg.WK, dg.N_GL, m)
         dg.shock_sum(t, sc, quad, m, d)
         apply(np.exp, dg.E1)
         if quad:

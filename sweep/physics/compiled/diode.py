@@ -4,8 +4,8 @@
 numpy model to rounding.
 
 As in `stages`, every exponential and logarithm is numpy's, evaluated between the stages on
-rows of a scratch matrix (`d`), and the Wright omega of the Shockley form is the numpy model's
-own `parts.wright_omega` on rows of arguments: numba's scalar `math.exp` and `math.log` differ
+rows of a scratch matrix (`d`), the Wright omega of the Shockley form included (its start and
+its Newton steps are stages, `parts.wright_omega`'s own): numba's scalar `math.exp` and `math.log` differ
 from numpy's vector forms by an ulp, and where the node's asymptote is far beyond the thresholds
 (a 1000 V Thevenin voltage against a 0.6 V node) the cancellation after the run-on's
 exponential turns an ulp into 1e-10 of the low time. The driver is `kernel._run_diode`. The
@@ -38,7 +38,12 @@ _GL_W = np.array(GL_W, dtype=np.float64)
 EMK = 35                   # N_GL rows: lam x_k, then expm1 of it
 EXK = EMK + N_GL           # N_GL rows: lam x_k, then exp of it
 WK = EXK + N_GL            # N_GL rows: the node voltages' omega arguments, then omega
-N_D = WK + N_GL
+OZ = WK + N_GL             # N_GL rows each: the omega's arguments, exponentials, logarithms
+OE = OZ + N_GL
+OL = OE + N_GL
+N_D = OL + N_GL
+#: Newton steps of parts.wright_omega
+OMEGA_STEPS = 4
 
 
 @njit(**OPTS)
@@ -224,6 +229,56 @@ def fixed_end(t, sc, quad, vd, m, d):
         d[VINFH, p] = vinf2 if in2 else vinf1
         d[STL, p] = 1.0 if stalls else 0.0
         d[I0, p] = (vcc - vd - v0) / ra_t if v_sw > v0 else (vcc - v0) / (ra_t + rb_t)
+
+
+# --- the Wright omega in stages: parts.wright_omega's start and Newton steps, numpy's exp and
+# log between them (kernel._omega drives them) -------------------------------------------------
+
+@njit(**OPTS)
+def omega_start(d, r0, n, m):
+    """Rows r0..r0+n hold omega's arguments z: copied to OZ; the start's exponential (where
+    z < -2) and logarithm (of |z| where z > 4) arguments into OE and OL (0 and 1 elsewhere)."""
+    for i in range(n):
+        for p in range(m):
+            z = d[r0 + i, p]
+            d[OZ + i, p] = z
+            d[OE + i, p] = z if z < -2.0 else 0.0
+            d[OL + i, p] = abs(z) if z > 4.0 else 1.0
+
+
+@njit(**OPTS)
+def omega_first(d, r0, n, m):
+    """The start (exp z below -2, z - ln z above 4, a line between), kept above 1e-300, into
+    rows r0.. and OL (the first step's logarithm argument)."""
+    for i in range(n):
+        for p in range(m):
+            z = d[OZ + i, p]
+            if z < -2.0:
+                w = d[OE + i, p]
+            elif z > 4.0:
+                w = z - d[OL + i, p]
+            else:
+                w = 0.12 + 0.22 * (z + 2.0)
+            w = _fmax(w, 1e-300)
+            d[r0 + i, p] = w
+            d[OL + i, p] = w
+
+
+@njit(**OPTS)
+def omega_step(d, r0, n, m, last):
+    """One Newton step on w + ln w - z (OL holds ln w); then, but for the last, w kept above
+    1e-300 into rows r0.. and OL; after the last, exp z below z = -35."""
+    for i in range(n):
+        for p in range(m):
+            z = d[OZ + i, p]
+            w = d[r0 + i, p]
+            w = w - (w + d[OL + i, p] - z) * w / (1.0 + w)
+            if last:
+                d[r0 + i, p] = d[OE + i, p] if z < -35.0 else w
+            else:
+                w = _fmax(w, 1e-300)
+                d[r0 + i, p] = w
+                d[OL + i, p] = w
 
 
 # --- the Shockley charge [nodes.quadrature_phase, network.diode_feed_a] ------------------------
