@@ -320,7 +320,7 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, 
         st.gather(pool, ix, need, r0, r1, nb, nc, t)
         e_m, lg_m = e[:, :m], lg[:, :m]
         if circuit == "astable-diode":
-            _diode_tile(st.diode, quad, shockley, v_drop, t, sc, m, bufs[3], res, flags, o)
+            _diode_tile(st, quad, shockley, v_drop, t, sc, m, bufs[3], res, flags, o)
         elif astable:
             st.astable_nets(t, sc, m)
             st.astable_exp1(t, sc, quad, m, e)
@@ -374,9 +374,10 @@ def _omega(dg, d, r0, n, m):
         dg.omega_step(d, r0, n, m, k == dg.OMEGA_STEPS - 1)
 
 
-def _diode_tile(dg, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
+def _diode_tile(st, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
     """The astable-diode stages over one tile of m points (compiled/diode.py), numpy's exp,
     expm1 and log on rows of d between them."""
+    dg = st.diode
     def apply(fn, *rows):
         for k in rows:
             fn(d[k, :m], out=d[k, :m])
@@ -418,7 +419,14 @@ def _diode_tile(dg, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
         dg.fixed_end(t, sc, quad, v_drop, m, d)
     dg.low_logs(t, sc, m, d)
     apply(np.log, dg.LL, dg.LS)
-    dg.finish(t, sc, quad, m, d, res, flags, o)
+    dg.finish_sum(t, sc, quad, m, d, res, o)
+    dg.finish_rates(t, sc, m, d, res, flags, o)
+    dg.finish_discharge(t, sc, quad, m, d, res, flags, o)
+    # the waveform's levels: copies of rows the stages already hold
+    res[st.A_VBOT, o:o + m] = d[dg.VBOT, :m]
+    res[st.A_VTOP, o:o + m] = d[dg.VTOP, :m]
+    res[st.A_VINFH, o:o + m] = d[dg.VINFH, :m]
+    res[st.A_VINFL, o:o + m] = d[dg.VINFD, :m]
 
 
 def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:

@@ -21,12 +21,11 @@ from numba import njit
 
 from ..nodes import GL_W, GL_X
 from .stages import (A, A_DUMP, A_DUTY, A_FREQ, A_PEAK, A_PER, A_POWER, A_PRES, A_SUPPLY, A_TH,
-                     A_TJ, A_TL, A_VBOT, A_VINFH, A_VINFL, A_VTOP, C, CTF, DISCHARGE, DIS_MAX,
-                     F_MAX, FAST, GLEAK, H, HOT, IDRAW, IHIGH, ILOW, IQH, IQL, IREV, ISAT, MASK_C,
-                     MASK_D, NVT, OPTS, OVERPOWERED, P_MAX, RA, RB, RF, RMAX, RS, S0, S1, S2,
-                     STALLS, STRAY, SURGE_A, SURGE_E_MAX, TAMB, THETA, TJ_MAX, TOO_LARGE, TPD,
-                     VCC, VHIGH, VLOW, VS, VUP, _cap_at, _cap_at_fraction, _fmax, _fmin,
-                     _linear_time)
+                     A_TJ, A_TL, C, CTF, DISCHARGE, DIS_MAX, F_MAX, FAST, GLEAK, H, HOT, IDRAW,
+                     IHIGH, ILOW, IQH, IQL, IREV, ISAT, MASK_C, MASK_D, NVT, OPTS, OVERPOWERED,
+                     P_MAX, RA, RB, RF, RMAX, RS, S0, S1, S2, STALLS, STRAY, SURGE_A, SURGE_E_MAX,
+                     TAMB, THETA, TJ_MAX, TOO_LARGE, TPD, VCC, VHIGH, VLOW, VS, VUP, _cap_at,
+                     _cap_at_fraction, _fmax, _fmin, _linear_time)
 
 N_GL = len(GL_X)           # Gauss-Legendre nodes of nodes.quadrature_phase
 _GL_X = np.array(GL_X, dtype=np.float64)
@@ -455,39 +454,35 @@ def low_logs(t, sc, m, d):
         d[LS, p] = _fmax(v_knee / (0.1 * v_top), 1.0)
 
 
+# The outputs are written by three loops, each with few output streams, so that they vectorise
+# (see stages: a loop writing more than about five arrays does not).
+
 @njit(**OPTS)
-def finish(t, sc, quad, m, d, out, flags, o):
-    """Every output and flag of the astable with a diode across RB into out[:, o:o+m] from the
-    high-phase rows [circuits._astable.cycle, network.surge, model.evaluate, model._flags]."""
-    tpd, stray, i_draw, rs = sc[TPD], sc[STRAY], sc[IDRAW], sc[RS]
-    surge_a, dis_max, e_max, p_max = sc[SURGE_A], sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
-    theta, tj_max, f_max = sc[THETA], sc[TJ_MAX], sc[F_MAX]
+def finish_sum(t, sc, quad, m, d, out, o):
+    """The low phase from v_top to Vc/2 and on [nodes.linear_phase]; high and low time (NaN
+    where the node stalls), period, supply current and the chip's mean dissipation [W] (in the
+    junction-temperature row; finish_rates turns it into the temperature)
+    [circuits._astable.cycle]."""
+    tpd, stray, i_draw = sc[TPD], sc[STRAY], sc[IDRAW]
     for p in range(m):
-        q = o + p
+        q = np.uint64(o + p)        # unsigned: no negative-index wraparound, so it vectorises
         vcc = t[VCC, p]
         ra_t, rb_t, a_d, b_d = d[RAT, p], d[RBT, p], d[AD, p], d[BD, p]
         vinf_d, g_d, v_bot, v_top = d[VINFD, p], d[GD, p], d[VBOT, p], d[VTOP, p]
-        g_leak = t[GLEAK, p]
         scale, stray, s0, s1, s2, a, h = _cap(t, p, stray)
         v_lo = 0.5 * t[VUP, p]
         time_h = d[TIMEH, p]
         tt, qc = _linear_time(quad, d[LL, p], vinf_d, g_d, v_top, v_lo, scale, stray, s0, s1, s2, a, h)
         vt_l = vinf_d * tt - qc / g_d + 0.5 * (v_lo + v_bot) * tpd
         time_l = tt + tpd
-        stalls = d[STL, p] != 0.0 or vinf_d >= v_lo
+        stalls = (d[STL, p] != 0.0) | (vinf_d >= v_lo)
         t_h = np.nan if stalls else time_h
         t_l = np.nan if stalls else time_l
         period = t_h + t_l
-        q_h = d[QCH, p] + g_leak * d[VTH, p] + i_draw * time_h
+        q_h = d[QCH, p] + t[GLEAK, p] * d[VTH, p] + i_draw * time_h
         vm_l = vt_l / time_l
         vd_mean = a_d + b_d * vm_l
         i_ra_l = (vcc - vd_mean) / ra_t
-        vd_top = a_d + b_d * v_top
-        dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
-        vd_bot = a_d + b_d * v_bot
-        steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
-        i_start = d[I0, p]
-        p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
         p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
         iq_h = t[IQH, p]
         iq_l = t[IQL, p]
@@ -495,10 +490,58 @@ def finish(t, sc, quad, m, d, out, flags, o):
         i_low = t[ILOW, p]
         i_h = iq_h + q_h / time_h + i_high
         i_l = iq_l + i_ra_l + i_low
-        supply = (t_h * i_h + t_l * i_l) / period
         p_chip_h = vcc * iq_h + (vcc - t[VHIGH, p]) * i_high
         p_chip_l = vcc * iq_l + t[VLOW, p] * i_low + p_dis_l
-        p_chip = (t_h * p_chip_h + t_l * p_chip_l) / period
+        out[A_TH, q] = t_h
+        out[A_TL, q] = t_l
+        out[A_PER, q] = period
+        out[A_SUPPLY, q] = (t_h * i_h + t_l * i_l) / period
+        out[A_TJ, q] = (t_h * p_chip_h + t_l * p_chip_l) / period
+
+
+@njit(**OPTS)
+def finish_rates(t, sc, m, d, out, flags, o):
+    """Frequency, duty, power, junction temperature and the flags of limits and timing
+    [model.evaluate, model._flags]; charging=("ra",): RA alone against the largest resistance."""
+    theta, tj_max, f_max = sc[THETA], sc[TJ_MAX], sc[F_MAX]
+    for p in range(m):
+        q = np.uint64(o + p)
+        stalls = (d[STL, p] != 0.0) | (d[VINFD, p] >= 0.5 * t[VUP, p])
+        period = out[A_PER, q]
+        freq = 1.0 / period
+        tj = t[TAMB, p] + theta * out[A_TJ, q]
+        out[A_FREQ, q] = freq
+        out[A_DUTY, q] = out[A_TH, q] / period
+        out[A_POWER, q] = t[VCC, p] * out[A_SUPPLY, q]
+        out[A_TJ, q] = tj
+        f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
+        f |= TOO_LARGE if t[RA, p] > t[RMAX, p] else np.uint32(0)
+        f |= HOT if tj > tj_max else np.uint32(0)
+        f |= STALLS if stalls else np.uint32(0)
+        f |= FAST if freq > f_max else np.uint32(0)
+        flags[q] = f
+
+
+@njit(**OPTS)
+def finish_discharge(t, sc, quad, m, d, out, flags, o):
+    """The discharge transistor's peak and steady current, RA's dissipation and the turn-on
+    surge through RB, and their flags [circuits._astable.cycle, network.surge, model._flags],
+    adding to flags. LS holds the surge's logarithm."""
+    rs, stray = sc[RS], sc[STRAY]
+    surge_a, dis_max, e_max, p_max = sc[SURGE_A], sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
+    for p in range(m):
+        q = np.uint64(o + p)
+        vcc = t[VCC, p]
+        ra_t, rb_t, a_d, b_d = d[RAT, p], d[RBT, p], d[AD, p], d[BD, p]
+        v_bot, v_top = d[VBOT, p], d[VTOP, p]
+        scale, stray, s0, s1, s2, a, h = _cap(t, p, stray)
+        v_lo = 0.5 * t[VUP, p]
+        vd_top = a_d + b_d * v_top
+        dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
+        vd_bot = a_d + b_d * v_bot
+        steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
+        i_start = d[I0, p]
+        p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
         c_mean = _cap_at(quad, 0.5 * (v_lo + v_top), scale, stray, s0, s1, s2, a, h)
         energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
         r_eff = _fmax(rs, v_top / surge_a - rb_t)
@@ -506,28 +549,10 @@ def finish(t, sc, quad, m, d, out, flags, o):
         r_loop = rs + rb_t
         v_knee = _fmin(v_top, surge_a * r_loop)
         t_cc = c_mean * (v_top - v_knee) / surge_a
-        freq = 1.0 / period
-        tj = t[TAMB, p] + theta * p_chip
-        out[A_TH, q] = t_h
-        out[A_TL, q] = t_l
-        out[A_PER, q] = period
-        out[A_FREQ, q] = freq
-        out[A_DUTY, q] = t_h / period
-        out[A_SUPPLY, q] = supply
         out[A_PEAK, q] = dis_peak
         out[A_PRES, q] = p_res
-        out[A_VBOT, q] = v_bot
-        out[A_VTOP, q] = v_top
-        out[A_VINFH, q] = d[VINFH, p]
-        out[A_VINFL, q] = vinf_d
         out[A_DUMP, q] = t_cc + (c_mean * r_loop) * d[LS, p]
-        out[A_POWER, q] = vcc * supply
-        out[A_TJ, q] = tj
-        f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
-        f |= TOO_LARGE if t[RA, p] > t[RMAX, p] else np.uint32(0)
-        f |= HOT if tj > tj_max else np.uint32(0)
-        f |= STALLS if stalls else np.uint32(0)
-        f |= FAST if freq > f_max else np.uint32(0)
-        f |= DISCHARGE if (steady > dis_max) or (e_tr > e_max) else np.uint32(0)
+        f = flags[q]
+        f |= DISCHARGE if (steady > dis_max) | (e_tr > e_max) else np.uint32(0)
         f |= OVERPOWERED if p_res > p_max else np.uint32(0)
         flags[q] = f
