@@ -1,18 +1,18 @@
-"""Compiled stage of the astable with a diode across RB (numba): the per-point arithmetic of
+"""Compiled stages of the astable with a diode across RB (numba): the per-point arithmetic of
 `sweep.physics.circuits.astable_diode` and the astable cycle it shares
 (`circuits._astable.cycle`), transcribed operation by operation so the results agree with the
 numpy model to rounding.
 
 As in `stages`, every exponential and logarithm is numpy's, evaluated between the stages on
 rows of a scratch matrix (`d`), the Wright omega of the Shockley form included (its start and
-its Newton steps are stages, `parts.wright_omega`'s own): numba's scalar `math.exp` and `math.log` differ
-from numpy's vector forms by an ulp, and where the node's asymptote is far beyond the thresholds
-(a 1000 V Thevenin voltage against a 0.6 V node) the cancellation after the run-on's
-exponential turns an ulp into 1e-10 of the low time. The driver is `kernel._run_diode`. The
-fixed-drop form (a study's `diode_drop`, and the ideal mode) is a two-segment charge
-[nodes.two_segment_phase], the Shockley form a 6-point Gauss-Legendre quadrature in a
-log-mapped variable [nodes.quadrature_phase]. Inputs, scalars and output rows are those of
-`stages`; nothing here is new physics.
+its Newton steps, those of `parts.wright_omega`, are stages): numba's scalar `math.exp` and
+`math.log` differ from numpy's vector forms by an ulp, and where the low phase heads for an
+asymptote a thousand volts beyond the node (an input current against a large RB) the
+cancellation after the run-on's exponential turns that ulp into 1e-10 of the low time. The
+driver is `kernel._diode_tile`. The fixed-drop form (a study's `diode_drop`, and the ideal mode)
+is a two-segment charge [nodes.two_segment_phase], the Shockley form a 6-point Gauss-Legendre
+quadrature in a log-mapped variable [nodes.quadrature_phase]. Inputs, scalars and output rows
+are those of `stages`; nothing here is new physics.
 """
 from __future__ import annotations
 
@@ -220,7 +220,8 @@ def fixed_end(t, sc, quad, vd, m, d):
         if (not in2) and (v_end - v_sw) * dn > 0.0:
             v_end = vinf2 - (vinf2 - v_sw) * d[EX, p]
         vt = vt + 0.5 * (v1 + v_end) * tpd
-        stalls = (in2 and (vinf2 - v1) * dn <= 0.0) or ((v_mid != v0) and (vinf1 - v_mid) * dn <= 0.0)
+        stalls = ((in2 and (vinf2 - v1) * dn <= 0.0)
+                  or ((v_mid != v0) and (vinf1 - v_mid) * dn <= 0.0))
         d[TIMEH, p] = t1 + t2 + tpd
         d[VTOP, p] = v_end
         d[VTH, p] = vt
@@ -396,7 +397,8 @@ def shock_sum(t, sc, quad, m, d):
         for k in range(N_GL):
             v = _node_v(d, p, k, v0, v1)
             net = _feed(vcc, v, ra_t, rb_t, i_sat, n_vt, d[WK + k, p]) - g_leak * v - i_draw
-            q = _GL_W[k] * _cap_at(quad, v, scale, stray, s0, s1, s2, a, h) * f0 * d[EXK + k, p] / net
+            c_v = _cap_at(quad, v, scale, stray, s0, s1, s2, a, h)
+            q = _GL_W[k] * c_v * f0 * d[EXK + k, p] / net
             tt = tt + q
             vt = vt + q * v
         d[T, p] = span * tt
@@ -472,7 +474,8 @@ def finish_sum(t, sc, quad, m, d, out, o):
         scale, stray, s0, s1, s2, a, h = _cap(t, p, stray)
         v_lo = 0.5 * t[VUP, p]
         time_h = d[TIMEH, p]
-        tt, qc = _linear_time(quad, d[LL, p], vinf_d, g_d, v_top, v_lo, scale, stray, s0, s1, s2, a, h)
+        tt, qc = _linear_time(quad, d[LL, p], vinf_d, g_d, v_top, v_lo, scale, stray, s0, s1, s2,
+                              a, h)
         vt_l = vinf_d * tt - qc / g_d + 0.5 * (v_lo + v_bot) * tpd
         time_l = tt + tpd
         stalls = (d[STL, p] != 0.0) | (vinf_d >= v_lo)
