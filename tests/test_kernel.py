@@ -31,6 +31,14 @@ LOADS = {
 }
 CAPACITORS = ("X7R", "C0G", "Y5V", "electrolytic", "polyester")
 RTOL = 1e-12
+#: every compiled circuit, and astable-diode a second time with a fixed diode drop (the default
+#: is the Shockley diode): (circuit, diode_drop_v)
+VARIANTS = [(c, None) for c in kernel.COMPILED] + [("astable-diode", 0.7)]
+VARIANT_IDS = [c if d is None else f"{c}-drop" for c, d in VARIANTS]
+
+
+def variants():
+    return pytest.mark.parametrize("circuit, drop", VARIANTS, ids=VARIANT_IDS)
 
 
 def assert_same(want: dict, got: dict) -> None:
@@ -71,28 +79,29 @@ def grid(timer, seed, n_designs=40):
 
 
 @pytest.mark.parametrize("timer", TIMERS)
-@pytest.mark.parametrize("circuit", kernel.COMPILED)
+@variants()
 @pytest.mark.parametrize("cap", CAPACITORS)
-def test_agrees_on_random_designs(circuit, timer, cap):
+def test_agrees_on_random_designs(circuit, drop, timer, cap):
     tm = TIMERS[timer]
     for i, load in enumerate(LOADS.values()):
-        kw = grid(tm, seed=zlib.crc32(f"{circuit} {timer} {cap} {i}".encode()))
+        kw = grid(tm, seed=zlib.crc32(f"{circuit} {drop} {timer} {cap} {i}".encode()))
         if circuit == "missing-pulse":
             kw["input_period"] = np.array([1e-5, 1e-3, 0.1, 10.0])[None, :, None]
-        assert_agree(circuit, tm, Parts(capacitor=cap), load, **kw)
+        assert_agree(circuit, tm, Parts(capacitor=cap, diode_drop_v=drop), load, **kw)
 
 
 @pytest.mark.parametrize("timer", TIMERS)
-@pytest.mark.parametrize("circuit", kernel.COMPILED)
-def test_agrees_in_ideal_mode(circuit, timer):
+@variants()
+def test_agrees_in_ideal_mode(circuit, drop, timer):
     kw = grid(TIMERS[timer], seed=3)
     kw["input_period"] = 1e-3
-    assert_agree(circuit, TIMERS[timer], Parts(), LOADS["led-ground"], ideal=True, **kw)
+    assert_agree(circuit, TIMERS[timer], Parts(diode_drop_v=drop), LOADS["led-ground"], ideal=True,
+                 **kw)
 
 
 @pytest.mark.parametrize("timer", TIMERS)
-@pytest.mark.parametrize("circuit", kernel.COMPILED)
-def test_agrees_with_variation_factors_as_arrays(circuit, timer):
+@variants()
+def test_agrees_with_variation_factors_as_arrays(circuit, drop, timer):
     """Builds on their own axis (d, b, 1), as the worst case and the Monte Carlo pass them."""
     tm = TIMERS[timer]
     rng = np.random.default_rng(11)
@@ -105,13 +114,14 @@ def test_agrees_with_variation_factors_as_arrays(circuit, timer):
               diode_is_factor=rng.uniform(0.5, 2.0, shape), input_period=2e-3)
     for load in ("led-ground", "resistor-supply", "none"):
         for cap in ("X7R", "electrolytic"):
-            assert_agree(circuit, tm, Parts(capacitor=cap, capacitor_voltage_v=16.0), LOADS[load], **kw)
+            assert_agree(circuit, tm, Parts(capacitor=cap, capacitor_voltage_v=16.0,
+                                            diode_drop_v=drop), LOADS[load], **kw)
 
 
-@pytest.mark.parametrize("circuit", kernel.COMPILED)
-def test_agrees_on_swept_load_control_voltage_and_odd_shapes(circuit):
+@variants()
+def test_agrees_on_swept_load_control_voltage_and_odd_shapes(circuit, drop):
     tm = TIMERS["bipolar"]
-    parts = Parts(capacitor="X7R", discharge_resistor_ohm=47.0)
+    parts = Parts(capacitor="X7R", discharge_resistor_ohm=47.0, diode_drop_v=drop)
     # a swept load resistor and control voltage (NaN: the internal divider; above the supply:
     # the node never reaches it)
     assert_agree(circuit, tm, parts, LOADS["led-ground"], ra=np.array([1e3, 1e4, 1e5])[:, None],
@@ -135,8 +145,8 @@ def test_every_flag_is_provoked_and_identical(timer):
     """Inputs built to trip each flag; the reference must raise every one somewhere (so this
     test means something) and the kernel the same bits everywhere."""
     tm = TIMERS[timer]
-    seen = 0
-    for circuit in kernel.COMPILED:
+    seen = {}
+    for circuit, drop in VARIANTS:
         for load in ("heavy-ground", "none"):
             kw = grid(tm, seed=7, n_designs=60)
             # 10 pF with 1 kOhm runs far above any top frequency; 100 uF at 100 Ohm overloads the
@@ -147,10 +157,22 @@ def test_every_flag_is_provoked_and_identical(timer):
             kw["c"][:2, 0, 0] = [1e-11, 1e-4]
             kw["control_voltage"] = np.array([np.nan, 40.0])[None, :, None]   # 40 V: it stalls
             kw["input_period"] = np.array([1e-6, 100.0])[None, :, None]       # 100 s: false alarm
-            want = assert_agree(circuit, tm, Parts(capacitor="X7R"), LOADS[load], **kw)
-            seen |= int(np.bitwise_or.reduce(want["flag_mask"], axis=None))
-    missing = [name for name, bit in FLAG_BITS.items() if not seen & bit and name != "spec-miss"]
+            want = assert_agree(circuit, tm, Parts(capacitor="X7R", diode_drop_v=drop), LOADS[load],
+                                **kw)
+            mask = int(np.bitwise_or.reduce(want["flag_mask"], axis=None))
+            seen[circuit, drop] = seen.get((circuit, drop), 0) | mask
+    # every flag somewhere, and every flag but the detector's on each variant of its own
+    missing = [name for name, bit in FLAG_BITS.items()
+               if not any(m & bit for m in seen.values()) and name != "spec-miss"]
     assert missing == []
+    for (circuit, drop), m in seen.items():
+        own = {"astable": "frequency-too-high", "astable-diode": "frequency-too-high",
+               "missing-pulse": "false-alarm"}.get(circuit)
+        absent = [name for name, bit in FLAG_BITS.items() if not m & bit
+                  and name not in ("spec-miss", "false-alarm", "frequency-too-high")]
+        assert absent == [], (circuit, drop)
+        if own is not None:
+            assert m & FLAG_BITS[own], (circuit, drop, own)
 
 
 @pytest.mark.parametrize("timer", TIMERS)
@@ -170,7 +192,7 @@ def test_ideal_timing_is_the_textbook_formula(timer):
     np.testing.assert_allclose(out["pulse_width_s"], math.log(3.0) * ra * c, rtol=1e-12)
 
 
-@pytest.mark.parametrize("circuit", ["astable-diode", "astable-symmetric", "bistable"])
+@pytest.mark.parametrize("circuit", ["astable-symmetric", "bistable"])
 def test_other_circuits_fall_back_to_the_reference(circuit):
     tm = TIMERS["cmos"]
     assert not kernel.supports(circuit, tm, Parts(), Load(), False)
@@ -188,30 +210,34 @@ def test_the_switch(monkeypatch):
     assert kernel.available()
     assert kernel.wanted("astable", tm, parts, load, False, kernel.MIN_POINTS)
     assert not kernel.wanted("astable", tm, parts, load, False, kernel.MIN_POINTS - 1)
-    assert not kernel.wanted("astable-diode", tm, parts, load, False, 10 * kernel.MIN_POINTS)
+    assert kernel.wanted("astable-diode", tm, parts, load, False, kernel.MIN_POINTS)
+    assert not kernel.wanted("astable-symmetric", tm, parts, load, False, 10 * kernel.MIN_POINTS)
     monkeypatch.setenv(kernel.ENV, "0")
     assert not kernel.wanted("astable", tm, parts, load, False, 10 * kernel.MIN_POINTS)
 
 
-def test_engine_gives_the_same_block_either_way():
+@pytest.mark.parametrize("circuit, parts", [("astable", ""), ("astable-diode", ""),
+                                            ("astable-diode", '[parts]\ndiode_drop = "0.6V"\n')],
+                         ids=["astable", "astable-diode", "astable-diode-drop"])
+def test_engine_gives_the_same_block_either_way(circuit, parts):
     from sweep.engine import axis_values, evaluate_block
     from sweep.study import parse_study
-    study = parse_study("""
+    study = parse_study(f"""
 [study]
-circuit = "astable"
+circuit = "{circuit}"
 timer = "bipolar"
-[design]
-ra = { series = "E12", min = "1k", max = "1M" }
-rb = { series = "E12", min = "1k", max = "1M" }
+{parts}[design]
+ra = {{ series = "E12", min = "1k", max = "1M" }}
+rb = {{ series = "E12", min = "1k", max = "1M" }}
 c = ["1n", "100n"]
 [conditions]
-vcc = { min = 5, max = 15, steps = 3 }
-temperature = { min = -40, max = 85, steps = 3 }
+vcc = {{ min = 5, max = 15, steps = 3 }}
+temperature = {{ min = -40, max = 85, steps = 3 }}
 [load]
 resistance = "470"
 forward_voltage = "2.0V"
 [spec]
-frequency = { target = "1kHz", tolerance = "20%" }
+frequency = {{ target = "1kHz", tolerance = "20%" }}
 """)
     design = axis_values(study.design, np.arange(study.n_designs))
     cond = axis_values(study.conditions, np.arange(study.n_conditions))

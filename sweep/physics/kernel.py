@@ -25,12 +25,14 @@ from .circuits import REGISTRY
 from .model import FLAG_BITS
 from .nodes import node_capacitance
 from .output import output_states
-from .parts import Load, Parts, capacitance_temperature_factor, leakage_conductance_s
+from .parts import (Load, Parts, capacitance_temperature_factor, leakage_conductance_s,
+                    reverse_current_at, saturation_at, thermal_voltage_v)
 from .timer import TimerModel
 
-#: circuits with compiled stages; the others (astable-diode, astable-symmetric, bistable) use
-#: the reference model
-COMPILED = ("astable", "monostable", "missing-pulse")
+#: circuits with compiled stages; the others (astable-symmetric, bistable) use the reference model
+COMPILED = ("astable", "astable-diode", "monostable", "missing-pulse")
+#: the circuits with RA, RB and C and the astable's outputs
+_TWO_RESISTOR = ("astable", "astable-diode")
 #: a sweep (designs x conditions) smaller than this stays on numpy. Loading numba and the cached
 #: stages costs about 0.5-0.7 s more than the numpy model's first call, and the kernel saves
 #: about 0.1 us per model evaluation (both measured with tests/benchmarks/kernel.py on a shared
@@ -67,7 +69,8 @@ def wanted(circuit: str, timer: TimerModel, parts: Parts, load: Load, ideal: boo
 
 
 def _stages():
-    from .compiled import stages   # imports numba: only here
+    from .compiled import diode, stages   # imports numba: only here
+    stages.diode = diode
     return stages
 
 
@@ -236,11 +239,22 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         cap, c_nom, parts.capacitor_voltage_v, cond["t_amb"], v_work_v=cond["v_up"])
     t_in = np.asarray(input_period, dtype=float)
     zero = np.uint32(0)
-    r_in = np.asarray(ra if circuit == "astable" else r, dtype=float)
+    r_in = np.asarray(ra if circuit in _TWO_RESISTOR else r, dtype=float)
     mask_d = (np.where(r_in < timer.min_resistance_ohm, np.uint32(FLAG_BITS["resistor-too-small"]), zero)
               | np.where(c_nom < timer.min_capacitance_f, np.uint32(FLAG_BITS["capacitor-too-small"]), zero))
     # --- the output's shape: every array the reference's outputs broadcast ---------------------
-    timing = [ra, rb] if circuit == "astable" else [r]
+    timing = [ra, rb] if circuit in _TWO_RESISTOR else [r]
+    # the Shockley diode of astable-diode [circuits.astable_diode.charge, phases]: its
+    # saturation current (a build's factor on it), n Vt and reverse leakage
+    shockley = circuit == "astable-diode" and not ideal and parts.diode_drop_v is None
+    i_sat = n_vt = i_rev = 0.0
+    if shockley:
+        diode = parts.diode_model
+        i_sat = saturation_at(diode, cond["t_amb"]) * diode_is_factor
+        n_vt = diode.ideality * thermal_voltage_v(cond["t_amb"])
+        i_rev = reverse_current_at(diode, cond["t_amb"])
+        timing.append(i_sat)
+    v_drop = 0.0 if ideal or parts.diode_drop_v is None else float(parts.diode_drop_v)
     if circuit == "missing-pulse":
         timing.append(t_in)
     shape = np.broadcast_shapes(cond["shape"], *(np.shape(x) for x in [c_nom, g_leak, *timing]))
@@ -259,7 +273,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
                    max(r_sat_mono, 1e-12)], dtype=np.float64)
     assert len(sc) == st.N_SCALARS
     design = {st.RA: ra, st.RB: rb, st.R: r, st.C: c_nom, st.GLEAK: g_leak, st.TIN: t_in,
-              st.MASK_D: mask_d}
+              st.MASK_D: mask_d, st.ISAT: i_sat, st.NVT: n_vt, st.IREV: i_rev}
     if len(shape) <= 3:
         segments = dict(cond["segments"])
         segments.update((k, _segment(x)) for k, x in design.items())
@@ -269,7 +283,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         inputs.update(design)
         pool, ix = _pool([inputs[k] for k in range(st.N_INPUTS)], shape, shape3)
     # --- the per-point stages, tile by tile ---------------------------------------------------
-    n_out = st.N_ASTABLE if circuit == "astable" else st.N_MONO
+    n_out = st.N_ASTABLE if circuit in _TWO_RESISTOR else st.N_MONO
     res = np.empty((n_out, n))
     flags = np.empty(n, dtype=np.uint32)
     nb, nc = shape3[1], shape3[2]
@@ -277,20 +291,25 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     step = max(1, TILE_POINTS // max(nc, 1))
     width = step * nc
     bufs = (_buffer("t", st.N_ROWS, width), _buffer("e", 2, width), _buffer("lg", 3, width))
+    if circuit == "astable-diode":
+        bufs = bufs + (_buffer("d", st.diode.N_D, width),)
     with np.errstate(all="ignore"):       # NaN where a phase never ends, as in the reference
-        _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags)
+        _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, shockley,
+             v_drop)
     return _result(circuit, st, res, flags, shape, cond["stage"])
 
 
-def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
-    """The stages over every tile of rows, numpy's exp and log between them. The scratch
-    buffers are passed whole (the stages use their first m columns) so every call has the same
-    array types."""
-    t, e, lg = bufs
+def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, shockley=False,
+         v_drop=0.0):
+    """The stages over every tile of rows, numpy's exp and log between them (astable-diode: its
+    one stage, the exponentials inside). The scratch buffers are passed whole (the stages use
+    their first m columns) so every call has the same array types."""
+    t, e, lg = bufs[:3]
     astable = circuit == "astable"
     need = [st.VCC, st.TAMB, st.C, st.VUP, st.RF, st.CTF, st.GLEAK, st.IQH, st.IQL, st.VHIGH,
             st.VLOW, st.IHIGH, st.ILOW, st.RMAX, st.MASK_C, st.MASK_D]
-    need += [st.RA, st.RB] if astable else [st.R]
+    need += [st.RA, st.RB] if circuit in _TWO_RESISTOR else [st.R]
+    need += [st.ISAT, st.NVT, st.IREV] if shockley else []
     need += [st.S0, st.S1, st.S2, st.A, st.H] if quad else []
     need += [st.TIN] if circuit == "missing-pulse" else []
     need = np.array(need, dtype=np.int64)
@@ -300,7 +319,9 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
         o = r0 * nc
         st.gather(pool, ix, need, r0, r1, nb, nc, t)
         e_m, lg_m = e[:, :m], lg[:, :m]
-        if astable:
+        if circuit == "astable-diode":
+            _diode_tile(st, quad, shockley, v_drop, t, sc, m, bufs[3], res, flags, o)
+        elif astable:
             st.astable_nets(t, sc, m)
             st.astable_exp1(t, sc, quad, m, e)
             np.exp(e_m, out=e_m)
@@ -340,6 +361,74 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags):
             res[st.M_VINF, o:o + m] = t[st.VINFC, :m]
 
 
+def _omega(dg, d, r0, n, m):
+    """parts.wright_omega of rows r0..r0+n of d (their first m columns), in place: its start and
+    Newton steps in compiled stages, numpy's exp and log between them."""
+    dg.omega_start(d, r0, n, m)
+    e, lg = d[dg.OE:dg.OE + n, :m], d[dg.OL:dg.OL + n, :m]
+    np.exp(e, out=e)
+    np.log(lg, out=lg)
+    dg.omega_first(d, r0, n, m)
+    for k in range(dg.OMEGA_STEPS):
+        np.log(lg, out=lg)
+        dg.omega_step(d, r0, n, m, k == dg.OMEGA_STEPS - 1)
+
+
+def _diode_tile(st, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
+    """The astable-diode stages over one tile of m points (compiled/diode.py), numpy's exp,
+    expm1 and log on rows of d between them."""
+    dg = st.diode
+    def apply(fn, *rows):
+        for k in rows:
+            fn(d[k, :m], out=d[k, :m])
+    dg.nets(t, sc, quad, shockley, m, d)
+    apply(np.exp, dg.E0)
+    if quad:
+        dg.bot2(t, sc, m, d)
+        apply(np.exp, dg.E0)
+    dg.bot(t, m, d)
+    if shockley:
+        dg.shock_lg(t, m, d)
+        apply(np.log, dg.LG)
+        dg.shock_ends(t, m, d)
+        _omega(dg, d, dg.W0, 3, m)
+        dg.shock_currents(t, sc, m, d)
+        apply(np.log, dg.LAM)
+        dg.shock_powers(m, d)
+        apply(np.expm1, dg.EM1, *range(dg.EMK, dg.EMK + dg.N_GL))
+        apply(np.exp, *range(dg.EXK, dg.EXK + dg.N_GL))
+        dg.shock_nodes(t, m, d)
+        _omega(dg, d, dg.WK, dg.N_GL, m)
+        dg.shock_sum(t, sc, quad, m, d)
+        apply(np.exp, dg.E1)
+        if quad:
+            dg.shock_run2(t, sc, m, d)
+            apply(np.exp, dg.E1)
+        dg.shock_end(t, sc, quad, m, d)
+    else:
+        dg.fixed1(t, sc, quad, v_drop, m, d)
+        apply(np.log, dg.L1, dg.L2)
+        apply(np.exp, dg.E1)
+        if quad:
+            dg.fixed2(t, sc, v_drop, m, d)
+            apply(np.exp, dg.E1)
+        dg.fixed3(t, sc, v_drop, m, d)
+        apply(np.log, dg.LX)
+        dg.fixed_cross(t, sc, quad, v_drop, m, d)
+        apply(np.exp, dg.EX)
+        dg.fixed_end(t, sc, quad, v_drop, m, d)
+    dg.low_logs(t, sc, m, d)
+    apply(np.log, dg.LL, dg.LS)
+    dg.finish_sum(t, sc, quad, m, d, res, o)
+    dg.finish_rates(t, sc, m, d, res, flags, o)
+    dg.finish_discharge(t, sc, quad, m, d, res, flags, o)
+    # the waveform's levels: copies of rows the stages already hold
+    res[st.A_VBOT, o:o + m] = d[dg.VBOT, :m]
+    res[st.A_VTOP, o:o + m] = d[dg.VTOP, :m]
+    res[st.A_VINFH, o:o + m] = d[dg.VINFH, :m]
+    res[st.A_VINFL, o:o + m] = d[dg.VINFD, :m]
+
+
 def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:
     """The reference's result dict from the stages' output rows."""
     def row(k):
@@ -348,7 +437,7 @@ def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:
     def const(x):
         return np.broadcast_to(np.asarray(x, dtype=float), shape)
     nan = const(np.nan)
-    if circuit == "astable":
+    if circuit in _TWO_RESISTOR:
         out = dict(high_time_s=row(st.A_TH), low_time_s=row(st.A_TL), period_s=row(st.A_PER),
                    frequency_hz=row(st.A_FREQ), duty=row(st.A_DUTY), pulse_width_s=nan,
                    supply_current_a=row(st.A_SUPPLY), idle_current_a=nan,

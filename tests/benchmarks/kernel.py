@@ -1,9 +1,10 @@
 """Compiled-kernel benchmark: the realistic X7R astable through `sweep.physics.kernel.evaluate`
 against the numpy model `sweep.physics.model.evaluate` on the same blocks in the same run
-(alternating, medians), and the time a fresh process takes for its first compiled call, with an
-empty cache (compiling) and with the cache filled (loading). Ends with one JSON line.
+(alternating, medians), the same for the astable with a diode across RB (its Shockley diode, and
+a fixed drop), and the time a fresh process takes for its first compiled call, with an empty
+cache (compiling) and with the cache filled (loading). Ends with one JSON line.
 
-    python tests/benchmarks/kernel.py [--points N] [--repeats K]
+    python tests/benchmarks/kernel.py [--points N] [--diode-points N] [--repeats K]
 
 `figures()` returns the same figures as a dict, for a suite script.
 """
@@ -64,12 +65,22 @@ def blocks(points: int, chunk: int = DEFAULT_CHUNK):
             for s in range(0, n_designs, step)], n_designs * N_CONDITIONS
 
 
-def sweep_time(fn, parts_list) -> float:
-    timer, parts, load = load_timer("bipolar"), Parts(capacitor="X7R"), Load()
+def sweep_time(fn, parts_list, circuit: str = "astable", parts: Parts | None = None) -> float:
+    timer, load = load_timer("bipolar"), Load()
+    parts = Parts(capacitor="X7R") if parts is None else parts
     t0 = time.perf_counter()
     for kw in parts_list:
-        fn("astable", timer, parts, load, **kw)
+        fn(circuit, timer, parts, load, **kw)
     return time.perf_counter() - t0
+
+
+def rates(work, n: int, repeats: int, circuit: str = "astable", parts: Parts | None = None):
+    """Kernel and numpy-model points/s on the same blocks, alternating, medians."""
+    k_times, m_times = [], []
+    for _ in range(repeats):
+        k_times.append(sweep_time(kernel.evaluate, work, circuit, parts))
+        m_times.append(sweep_time(model.evaluate, work, circuit, parts))
+    return n / statistics.median(k_times), n / statistics.median(m_times)
 
 
 def first_call_s(code: str, cache_dir: str) -> float:
@@ -79,50 +90,56 @@ def first_call_s(code: str, cache_dir: str) -> float:
     return float(done.stdout.strip().splitlines()[-1])
 
 
-def figures(points: int = 10_000_000, repeats: int = 5) -> dict:
-    """Kernel and numpy-model points/s (medians of alternating runs), their ratio, and the first
-    call's time in a fresh process: compiling (empty cache), loading the cache, and the numpy
-    model's first call for comparison."""
+def figures(points: int = 10_000_000, repeats: int = 5, diode_points: int = 2_000_000) -> dict:
+    """Kernel and numpy-model points/s (medians of alternating runs), their ratio, the same for
+    astable-diode (Shockley and fixed drop, diode_points points), and the first call's time in a
+    fresh process: compiling (empty cache), loading the cache, and the numpy model's first call
+    for comparison."""
     with tempfile.TemporaryDirectory() as cache:
         compile_s = first_call_s(FIRST_CALL, cache)
         load_s = statistics.median(first_call_s(FIRST_CALL, cache) for _ in range(3))
         numpy_first_s = statistics.median(first_call_s(BASE, cache) for _ in range(3))
     work, n = blocks(points)
     sweep_time(kernel.evaluate, work[:2])                   # this process's own first call
-    k_times, m_times = [], []
-    for _ in range(repeats):
-        k_times.append(sweep_time(kernel.evaluate, work))
-        m_times.append(sweep_time(model.evaluate, work))
-    k_rate = n / statistics.median(k_times)
-    m_rate = n / statistics.median(m_times)
+    k_rate, m_rate = rates(work, n, repeats)
     # the same sweep in blocks 8x the engine's: the kernel's fixed cost per call (the
     # condition-level numpy work, the input pool) spread over more points
     big, _ = blocks(points, 8 * DEFAULT_CHUNK)
-    kb_times, mb_times = [], []
-    for _ in range(repeats):
-        kb_times.append(sweep_time(kernel.evaluate, big))
-        mb_times.append(sweep_time(model.evaluate, big))
-    kb_rate = n / statistics.median(kb_times)
-    mb_rate = n / statistics.median(mb_times)
+    kb_rate, mb_rate = rates(big, n, repeats)
+    # astable-diode: the Shockley diode (the default) and a fixed 0.7 V drop
+    dwork, dn = blocks(diode_points)
+    diode = {}
+    for key, parts in (("diode", Parts(capacitor="X7R")),
+                       ("diode_drop", Parts(capacitor="X7R", diode_drop_v=0.7))):
+        sweep_time(kernel.evaluate, dwork[:2], "astable-diode", parts)
+        k, m = rates(dwork, dn, repeats, "astable-diode", parts)
+        diode.update({f"{key}_kernel_mpts_s": k / 1e6, f"{key}_numpy_mpts_s": m / 1e6,
+                      f"{key}_ratio": k / m})
     return dict(points=n, kernel_mpts_s=k_rate / 1e6, numpy_mpts_s=m_rate / 1e6,
                 ratio=k_rate / m_rate, big_block_kernel_mpts_s=kb_rate / 1e6,
                 big_block_numpy_mpts_s=mb_rate / 1e6, big_block_ratio=kb_rate / mb_rate,
                 first_call_compile_s=compile_s,
-                first_call_cached_s=load_s, numpy_first_call_s=numpy_first_s)
+                first_call_cached_s=load_s, numpy_first_call_s=numpy_first_s,
+                diode_points=dn, **diode)
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--points", type=int, default=10_000_000)
+    ap.add_argument("--diode-points", type=int, default=2_000_000)
     ap.add_argument("--repeats", type=int, default=5)
     a = ap.parse_args()
-    f = figures(a.points, a.repeats)
+    f = figures(a.points, a.repeats, a.diode_points)
     print(f"realistic X7R astable, {f['points']:.3g} points in blocks of {DEFAULT_CHUNK}")
     print(f"  kernel      {f['kernel_mpts_s']:8.1f} M points/s")
     print(f"  numpy model {f['numpy_mpts_s']:8.1f} M points/s   (same run, medians)")
     print(f"  ratio       {f['ratio']:8.1f} x   (target >= 5x and >= 40 M points/s)")
     print(f"  in blocks of {8 * DEFAULT_CHUNK}: kernel {f['big_block_kernel_mpts_s']:.1f}, numpy "
           f"{f['big_block_numpy_mpts_s']:.1f} M points/s, ratio {f['big_block_ratio']:.1f} x")
+    for key, what in (("diode", "Shockley diode"), ("diode_drop", "fixed 0.7 V drop")):
+        print(f"realistic X7R astable-diode, {what}, {f['diode_points']:.3g} points: kernel "
+              f"{f[key + '_kernel_mpts_s']:.1f}, numpy model {f[key + '_numpy_mpts_s']:.1f} "
+              f"M points/s (same run), ratio {f[key + '_ratio']:.1f} x")
     print(f"  first call in a fresh process: {f['first_call_compile_s']:.2f} s compiling, "
           f"{f['first_call_cached_s']:.2f} s from the cache, numpy model "
           f"{f['numpy_first_call_s']:.2f} s")

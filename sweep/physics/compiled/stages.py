@@ -38,10 +38,11 @@ STALLS = np.uint32(FLAG_BITS["timing-stalls"])
 FAST = np.uint32(FLAG_BITS["frequency-too-high"])
 FALSE_ALARM = np.uint32(FLAG_BITS["false-alarm"])
 
-# positions of the inputs in the tuple of 3-D float arrays (see kernel.py, which fills it)
+# positions of the inputs in the tuple of 3-D float arrays (see kernel.py, which fills it);
+# ISAT, NVT, IREV: the Shockley diode of astable-diode (saturation current, n Vt, reverse leakage)
 VCC, TAMB, RA, RB, R, C, VUP, RF, CTF, GLEAK, S0, S1, S2, A, H, IQH, IQL, VHIGH, VLOW, IHIGH, \
-    ILOW, RMAX, TIN, MASK_C, MASK_D = range(25)
-N_INPUTS = 25
+    ILOW, RMAX, TIN, MASK_C, MASK_D, ISAT, NVT, IREV = range(28)
+N_INPUTS = 28
 # per-point networks, computed once per tile into rows after the inputs (each has several
 # divisions, which would otherwise be repeated in every stage)
 RAT, RBT, AD, BD, VINFD, GD, VINFH, GH = range(N_INPUTS, N_INPUTS + 8)
