@@ -20,12 +20,10 @@ import numpy as np
 from numba import njit
 
 from ..nodes import GL_W, GL_X
-from .stages import (A, A_DUMP, A_DUTY, A_FREQ, A_PEAK, A_PER, A_POWER, A_PRES, A_SUPPLY, A_TH,
-                     A_TJ, A_TL, C, CTF, DISCHARGE, DIS_MAX, F_MAX, FAST, GLEAK, H, HOT, IDRAW,
-                     IHIGH, ILOW, IQH, IQL, IREV, ISAT, MASK_C, MASK_D, NVT, OPTS, OVERPOWERED,
-                     P_MAX, RA, RB, RF, RMAX, RS, S0, S1, S2, STALLS, STRAY, SURGE_A, SURGE_E_MAX,
-                     TAMB, THETA, TJ_MAX, TOO_LARGE, TPD, VCC, VHIGH, VLOW, VS, VUP, _cap_at,
-                     _cap_at_fraction, _fmax, _fmin, _linear_time)
+from .stages import (A, A_DUMP, A_PEAK, A_PRES, C, CTF, DISCHARGE, DIS_MAX, F_MAX, GLEAK, H, IDRAW,
+                     IREV, ISAT, NVT, OPTS, OVERPOWERED, P_MAX, RA, RB, RF, RS, S0, S1, S2, STRAY,
+                     SURGE_A, SURGE_E_MAX, THETA, TJ_MAX, TPD, VCC, VS, VUP, cycle_sums, rate_flags,
+                     _cap_at, _cap_at_fraction, _fmax, _fmin, _linear_time)
 
 N_GL = len(GL_X)           # Gauss-Legendre nodes of nodes.quadrature_phase
 _GL_X = np.array(GL_X, dtype=np.float64)
@@ -487,19 +485,7 @@ def finish_sum(t, sc, quad, m, d, out, o):
         vd_mean = a_d + b_d * vm_l
         i_ra_l = (vcc - vd_mean) / ra_t
         p_dis_l = vd_mean * (i_ra_l + (vm_l - vd_mean) / rb_t)
-        iq_h = t[IQH, p]
-        iq_l = t[IQL, p]
-        i_high = t[IHIGH, p]
-        i_low = t[ILOW, p]
-        i_h = iq_h + q_h / time_h + i_high
-        i_l = iq_l + i_ra_l + i_low
-        p_chip_h = vcc * iq_h + (vcc - t[VHIGH, p]) * i_high
-        p_chip_l = vcc * iq_l + t[VLOW, p] * i_low + p_dis_l
-        out[A_TH, q] = t_h
-        out[A_TL, q] = t_l
-        out[A_PER, q] = period
-        out[A_SUPPLY, q] = (t_h * i_h + t_l * i_l) / period
-        out[A_TJ, q] = (t_h * p_chip_h + t_l * p_chip_l) / period
+        cycle_sums(t, p, q, out, vcc, t_h, t_l, period, q_h / time_h, i_ra_l, p_dis_l)
 
 
 @njit(**OPTS)
@@ -510,19 +496,7 @@ def finish_rates(t, sc, m, d, out, flags, o):
     for p in range(m):
         q = np.uint64(o + p)
         stalls = (d[STL, p] != 0.0) | (d[VINFD, p] >= 0.5 * t[VUP, p])
-        period = out[A_PER, q]
-        freq = 1.0 / period
-        tj = t[TAMB, p] + theta * out[A_TJ, q]
-        out[A_FREQ, q] = freq
-        out[A_DUTY, q] = out[A_TH, q] / period
-        out[A_POWER, q] = t[VCC, p] * out[A_SUPPLY, q]
-        out[A_TJ, q] = tj
-        f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
-        f |= TOO_LARGE if t[RA, p] > t[RMAX, p] else np.uint32(0)
-        f |= HOT if tj > tj_max else np.uint32(0)
-        f |= STALLS if stalls else np.uint32(0)
-        f |= FAST if freq > f_max else np.uint32(0)
-        flags[q] = f
+        flags[q] = rate_flags(t, p, q, out, theta, tj_max, f_max, stalls, t[RA, p])
 
 
 @njit(**OPTS)

@@ -313,6 +313,47 @@ def astable_low(t, sc, quad, m, e, lg, out, o):
 
 
 @njit(**OPTS)
+def cycle_sums(t, p, q, out, vcc, t_h, t_l, period, i_charge, i_ra_l, p_dis_l):
+    """One astable point's times, period, supply current and the chip's mean dissipation [W]
+    (in the junction-temperature row) from its phases: i_charge the mean current into the node
+    in the high phase, i_ra_l RA's mean current and p_dis_l the transistor's dissipation in the
+    low phase [circuits._astable.cycle]."""
+    iq_h = t[IQH, p]
+    iq_l = t[IQL, p]
+    i_high = t[IHIGH, p]
+    i_low = t[ILOW, p]
+    i_h = iq_h + i_charge + i_high
+    i_l = iq_l + i_ra_l + i_low
+    p_chip_h = vcc * iq_h + (vcc - t[VHIGH, p]) * i_high
+    p_chip_l = vcc * iq_l + t[VLOW, p] * i_low + p_dis_l
+    out[A_TH, q] = t_h
+    out[A_TL, q] = t_l
+    out[A_PER, q] = period
+    out[A_SUPPLY, q] = (t_h * i_h + t_l * i_l) / period
+    out[A_TJ, q] = (t_h * p_chip_h + t_l * p_chip_l) / period
+
+
+@njit(**OPTS)
+def rate_flags(t, p, q, out, theta, tj_max, f_max, stalls, r_charge):
+    """One astable point's frequency, duty, power and junction temperature from its sums, and
+    the flags of limits and timing; r_charge: the resistance the bias current flows through
+    [model.evaluate, model._flags]."""
+    period = out[A_PER, q]
+    freq = 1.0 / period
+    tj = t[TAMB, p] + theta * out[A_TJ, q]
+    out[A_FREQ, q] = freq
+    out[A_DUTY, q] = out[A_TH, q] / period
+    out[A_POWER, q] = t[VCC, p] * out[A_SUPPLY, q]
+    out[A_TJ, q] = tj
+    f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
+    f |= TOO_LARGE if r_charge > t[RMAX, p] else np.uint32(0)
+    f |= HOT if tj > tj_max else np.uint32(0)
+    f |= STALLS if stalls else np.uint32(0)
+    f |= FAST if freq > f_max else np.uint32(0)
+    return f
+
+
+@njit(**OPTS)
 def astable_sum(t, sc, m, out, o):
     """High and low time (NaN where the node stalls), period, the supply current, and the
     chip's mean dissipation [W] where the junction temperature goes [model._astable]."""
@@ -326,19 +367,8 @@ def astable_sum(t, sc, m, out, o):
         t_h = np.nan if stalls else time_h
         t_l = np.nan if stalls else out[A_TL, q]
         period = t_h + t_l
-        iq_h = t[IQH, p]
-        iq_l = t[IQL, p]
-        i_high = t[IHIGH, p]
-        i_low = t[ILOW, p]
-        i_h = iq_h + out[A_SUPPLY, q] + i_high
-        i_l = iq_l + out[A_POWER, q] + i_low
-        p_chip_h = vcc * iq_h + (vcc - t[VHIGH, p]) * i_high
-        p_chip_l = vcc * iq_l + t[VLOW, p] * i_low + out[A_DUTY, q]
-        out[A_TH, q] = t_h
-        out[A_TL, q] = t_l
-        out[A_PER, q] = period
-        out[A_SUPPLY, q] = (t_h * i_h + t_l * i_l) / period
-        out[A_TJ, q] = (t_h * p_chip_h + t_l * p_chip_l) / period
+        cycle_sums(t, p, q, out, vcc, t_h, t_l, period, out[A_SUPPLY, q], out[A_POWER, q],
+                   out[A_DUTY, q])
 
 
 @njit(**OPTS)
@@ -351,19 +381,7 @@ def astable_rates(t, sc, m, out, flags, o):
         ra_t, rb_t, a_d, b_d, vinf_d, g_d, vinf_h, g_h = _nets_a(t, p)
         v_up = t[VUP, p]
         stalls = (vinf_h <= v_up) | (vinf_d >= 0.5 * v_up)
-        period = out[A_PER, q]
-        freq = 1.0 / period
-        tj = t[TAMB, p] + theta * out[A_TJ, q]
-        out[A_FREQ, q] = freq
-        out[A_DUTY, q] = out[A_TH, q] / period
-        out[A_POWER, q] = t[VCC, p] * out[A_SUPPLY, q]
-        out[A_TJ, q] = tj
-        f = np.uint32(t[MASK_C, p]) | np.uint32(t[MASK_D, p])
-        f |= TOO_LARGE if t[RA, p] + t[RB, p] > t[RMAX, p] else np.uint32(0)
-        f |= HOT if tj > tj_max else np.uint32(0)
-        f |= STALLS if stalls else np.uint32(0)
-        f |= FAST if freq > f_max else np.uint32(0)
-        flags[q] = f
+        flags[q] = rate_flags(t, p, q, out, theta, tj_max, f_max, stalls, t[RA, p] + t[RB, p])
 
 
 @njit(**OPTS)
