@@ -155,15 +155,16 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     corners = worst_case_corners(study, cond, ideal)
     wc = evaluate_block(study.case, design, cond, ideal=ideal, variation=corners.variation, with_spec=False)
     band = _band(study, cond, ideal)
+    band = np.reshape(band, (1,) * (wc["flag_mask"].ndim - 1) + (-1,))
     for o in outs:
-        v = wc[o]
+        v = _unrepeated(wc[o])
         lo, hi = v, v
         if o in TIMING:
             lo, hi = v * (1 - band), v * (1 + band)
         elif o == "frequency_hz":
             lo, hi = v / (1 + band), v / (1 - band)
         elif o == "timeout_margin_s":        # the timeout's band, less the input period
-            lo, hi = v - wc["timeout_s"] * band, v + wc["timeout_s"] * band
+            lo, hi = v - _unrepeated(wc["timeout_s"]) * band, v + _unrepeated(wc["timeout_s"]) * band
         row[f"{o}_wc_min"] = _reduce(lo, np.min)
         row[f"{o}_wc_max"] = _reduce(hi, np.max)
     # 4. elasticities of the main output at the nominal condition [derived: central difference]
@@ -194,7 +195,8 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     row["feasible"] = ~limits & ~nom_fail
     row["flag_mask"] = mask
     row["wc_margin"] = _wc_margin(study, row)
-    row["stalls_at"] = stall_text(study, cond, corners, sweep["flag_mask"][:, 0, :], wc["flag_mask"])
+    row["stalls_at"] = stall_text(study, cond, corners, sweep["flag_mask"][:, 0, :],
+                                  wc["flag_mask"].reshape(nd, corners.count, len(c_idx)))
     df = pd.DataFrame(row)
     df["series_need"], df["distinct_values"] = plainness(study, df)
     df["uncommon"] = uncommon_parts(study, df)
@@ -229,9 +231,18 @@ def monte_carlo_block(study: Study, designs: np.ndarray, opt: Options = Options(
 
 
 def _reduce(v: np.ndarray, fn) -> np.ndarray:
-    """Reduce (designs, builds, conditions) over the last two axes; NaN anywhere gives NaN."""
-    flat = v.reshape(v.shape[0], -1)
-    return fn(flat, axis=1)
+    """Reduce (designs, builds or spread axes..., conditions) over every axis but the first; NaN
+    anywhere gives NaN."""
+    return fn(_unrepeated(v), axis=tuple(range(1, v.ndim)))
+
+
+def _unrepeated(v: np.ndarray) -> np.ndarray:
+    """v without the repeats broadcasting made: length 1 on every axis after the first (the
+    designs) where v only repeats one value (a stride of 0), so a minimum or maximum over it
+    reads each value once."""
+    v = np.asarray(v)
+    return v[(slice(None),) + tuple(slice(0, 1) if (n > 1 and st == 0) else slice(None)
+                                    for n, st in zip(v.shape[1:], v.strides[1:]))]
 
 
 def _band(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> np.ndarray | float:

@@ -17,7 +17,7 @@ import numpy as np
 from .case import Case, axis_values
 from .physics import FLAG_BITS, REGISTRY, evaluate, flag_names, kernel
 
-__all__ = ["Case", "Variation", "axis_values", "battery_life_h", "block_points", "design_blocks",
+__all__ = ["Case", "Variation", "axis_values", "battery_life_h", "design_blocks",
            "evaluate_block",
            "flag_text", "keep_freed_heap", "spec_fail"]
 
@@ -35,10 +35,13 @@ def keep_freed_heap(trim_bytes: int = 256 << 20, pad_bytes: int = 64 << 20) -> b
 
 keep_freed_heap()
 DEFAULT_CHUNK = 1 << 14        # points per block: arrays stay in the core's cache (measured: 16k-32k fastest)
-#: points per block when the compiled kernel evaluates the sweep: the kernel tiles a block itself,
-#: so bigger blocks only spread each block's fixed cost (measured on a 1e6-point astable-diode
-#: study: pass 1 at 13-14 k swept points/s in blocks of DEFAULT_CHUNK, 24-32 k at 4-8x that)
-KERNEL_CHUNK = 8 * DEFAULT_CHUNK
+#: points per analysis block (each point with its worst-case corners counted, see
+#: pipeline.analyse). Blocks of DEFAULT_CHUNK suit one plain sweep; an analysis block makes four
+#: model calls, and since the corners are factored (spreads.Corners) its arrays are smaller than
+#: its point count says, so bigger blocks spread each call's fixed cost (measured on bike-light's
+#: pass 1: 1.10 s in 51 blocks of DEFAULT_CHUNK, 0.33 s in 8 of 8x that; on a 1e6-point
+#: astable-diode study, where the kernel runs the plain sweeps, 8x is as fast as 1x-4x).
+ANALYSIS_CHUNK = 8 * DEFAULT_CHUNK
 TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s", "timeout_s")
 SPEC_MISS = np.uint32(FLAG_BITS["spec-miss"])
 
@@ -65,18 +68,21 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
                    with_spec: bool = True, compiled: bool | None = None) -> dict[str, np.ndarray]:
     """Evaluate designs x [builds x] conditions of one case. Inputs are 1-D arrays per study
     key; the result arrays have shape (designs, builds, conditions) (builds = 1 without a
-    variation). ideal: every non-ideality off (default: the case's). compiled: use the compiled
+    variation), or (designs, spread axes..., conditions) for the worst case's corners
+    (spreads.Corners). ideal: every non-ideality off (default: the case's). compiled: use the compiled
     kernel (None: when the case's sweep is big enough to pay for loading it and the kernel
     covers the circuit, see physics.kernel.wanted)."""
     ideal = case.ideal if ideal is None else ideal
     if case.grades and "grade" in design:      # part grades: each with its own parts
         return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
                                 with_spec=with_spec, compiled=compiled)
+    # builds take one axis; the worst case's corners one per spread (spreads.Corners)
+    middle = 1 if variation is None else max(1, max(np.ndim(a) for a in _arrays(variation)) - 2)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
-        kw[k] = np.asarray(v, dtype=float)[:, None, None]
+        kw[k] = np.asarray(v, dtype=float).reshape((-1,) + (1,) * (middle + 1))
     for k, v in conditions.items():
-        kw[k] = np.asarray(v, dtype=float)[None, None, :]
+        kw[k] = np.asarray(v, dtype=float).reshape((1,) * (middle + 1) + (-1,))
     if variation is not None:
         for k, m in variation.part.items():
             if k in kw:
@@ -86,7 +92,11 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
     if compiled is None:
-        compiled = kernel.wanted(case.circuit, case.timer, case.parts, case.load, ideal, case.points)
+        # factored corners: numpy's broadcasting evaluates each step once per combination of the
+        # spreads it depends on, which beats the kernel evaluating every corner in full (measured:
+        # 2-6x on the astable and astable-diode)
+        compiled = middle == 1 and kernel.wanted(case.circuit, case.timer, case.parts, case.load,
+                                                 ideal, case.points)
     model = kernel.evaluate if compiled else evaluate
     out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
@@ -103,6 +113,16 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     if with_spec and case.spec:
         out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(case, out), SPEC_MISS, np.uint32(0))
     return out
+
+
+def _arrays(variation: Variation) -> list:
+    """Every array of a Variation (part multipliers and spreads)."""
+    return list(variation.part.values()) + [getattr(variation, f) for f in VARIATION_FIELDS]
+
+
+#: the Variation's fields beyond the part multipliers
+VARIATION_FIELDS = ("accuracy", "drift_per_k", "supply_per_v", "leak", "dc_bias", "diode_is", "iq",
+                    "load_r", "led_vf", "stage")
 
 
 def _evaluate_graded(case: Case, design: dict, conditions: dict, **kw) -> dict[str, np.ndarray]:
@@ -154,13 +174,6 @@ def flag_text(mask: np.ndarray) -> np.ndarray:
     uniq, inv = np.unique(mask, return_inverse=True)
     labels = np.array([" ".join(flag_names(int(u))) for u in uniq], dtype=object)
     return labels[inv.ravel()]
-
-
-def block_points(case: Case) -> int:
-    """Points per block for the case's sweep: KERNEL_CHUNK where the compiled kernel runs it,
-    else DEFAULT_CHUNK."""
-    compiled = kernel.wanted(case.circuit, case.timer, case.parts, case.load, case.ideal, case.points)
-    return KERNEL_CHUNK if compiled else DEFAULT_CHUNK
 
 
 def design_blocks(study, chunk_points: int = DEFAULT_CHUNK, per_design: int | None = None

@@ -113,11 +113,25 @@ def _bound(study: Study, name: str, v_up: np.ndarray):
 
 @dataclass(frozen=True)
 class Corners:
-    """The worst case's corners: a Variation broadcast against (designs, corners, conditions),
-    the sign of every spread at every corner (dims x corners) and the spreads' names."""
+    """The worst case's corners, every spread on an axis of its own: the Variation's arrays have
+    shape (1, 2 or 1 per spread, conditions or 1), so an array that does not depend on a spread
+    keeps length 1 on that spread's axis. Broadcasting then evaluates each step of the model once
+    per combination of the spreads it depends on: the charge of an astable-diode's capacitor,
+    say, once per corner of RA, C and the diode rather than once per corner of all six spreads.
+    Every corner's figures are computed with the same arithmetic as when every corner is evaluated
+    in full (tests/test_analysis_corners.py compares both element by element); only the
+    repetitions are gone.
+
+    signs: the sign of every spread at every corner (dims x corners), corner k being the C-order
+    (row-major) flattening of the spread axes; dims: the spreads' names."""
     variation: Variation
     signs: np.ndarray
     dims: list[str]
+
+    @property
+    def count(self) -> int:
+        """How many corners there are (2 ** spreads)."""
+        return self.signs.shape[1]
 
     def words(self, study: Study, k: int) -> str:
         """Plain words for corner k, e.g. 'R at +5 %, C at -10 % and its envelope's low edge,
@@ -142,24 +156,31 @@ class Corners:
 
 
 def worst_case_corners(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> Corners:
-    """Every corner of every spread at every condition (see the module's docstring)."""
+    """Every corner of every spread at every condition (see the module's docstring), each spread
+    on an axis of its own (see Corners)."""
     parts = varied_parts(study)
     extras = extra_spreads(study, ideal)
     dims = parts + extras
     signs = (np.array(list(itertools.product((-1.0, 1.0), repeat=len(dims)))).T if dims
              else np.zeros((0, 1)))
-    t, v_up = _conditions(study, cond)
+    axes = max(len(dims), 1)
+    t, v_up = (x.reshape((1,) * (axes + 1) + (-1,)) for x in _conditions(study, cond))
+
+    def sign(i: int) -> np.ndarray:
+        """-1 and +1 along spread i's own axis."""
+        shape = [1] * (axes + 2)
+        shape[1 + i] = 2
+        return np.array([-1.0, 1.0]).reshape(shape)
     part = {}
     for i, p in enumerate(parts):
         lo, hi = _part_extremes(study, p, t, ideal)
-        part[p] = np.where(signs[i][None, :, None] < 0, lo, hi)
+        part[p] = np.where(sign(i) < 0, lo, hi)
     kw = {}
     if "c" in parts and not ideal:
         # a lower capacitor also has its DC-bias loss at the high end of its spread [derived]
-        i = parts.index("c")
-        kw["dc_bias"] = np.where(signs[i] < 0, DC_BIAS_SPREAD, 1.0 / DC_BIAS_SPREAD)[None, :, None]
+        kw["dc_bias"] = np.where(sign(parts.index("c")) < 0, DC_BIAS_SPREAD, 1.0 / DC_BIAS_SPREAD)
     for j, name in enumerate(extras):
-        sg = signs[len(parts) + j][None, :, None]
+        sg = sign(len(parts) + j)
         if name == "load":        # stronger: lower resistor, lower LED drop, lower stage drop
             tol = study.parts.resistor_tolerance
             kw["load_r"] = np.where(sg > 0, 1.0 - tol, 1.0 + tol)

@@ -128,19 +128,3 @@ def test_flag_text_decodes_every_bit_of_a_mask():
         assert t.split() == [c for c in codes if c in want]      # in the stable order
     assert texts[0] == ""
 
-
-def test_blocks_are_bigger_only_where_the_compiled_kernel_runs(monkeypatch):
-    # the kernel tiles a block itself, so a sweep it runs gets bigger blocks; a sweep on the
-    # numpy model keeps cache-sized ones [measured: tests/benchmarks]
-    from dataclasses import replace
-
-    from sweep.engine import DEFAULT_CHUNK, KERNEL_CHUNK, block_points
-    from sweep.physics import kernel
-    case = parse_study(STUDY).case
-    assert block_points(case) == DEFAULT_CHUNK                       # a small sweep
-    big = replace(case, points=10 ** 7)
-    want = KERNEL_CHUNK if kernel.wanted(big.circuit, big.timer, big.parts, big.load, False,
-                                         big.points) else DEFAULT_CHUNK
-    assert block_points(big) == want
-    monkeypatch.setenv(kernel.ENV, "0")
-    assert block_points(big) == DEFAULT_CHUNK
