@@ -10,7 +10,6 @@ designs were split into blocks.
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -20,6 +19,7 @@ from .case import axis_values
 from .engine import (TIMING, Variation, evaluate_block, flag_text,
                      spec_fail)
 from .physics import FLAG_BITS, REGISTRY
+from .sobol import sobol_points
 from . import grades, values as qv
 from .spreads import (build_spreads, draw_names, tolerance_of, varied_parts,
                       worst_case_corners)
@@ -71,9 +71,10 @@ TIMER_TERMS = ("accuracy", "drift", "supply")
 
 
 def mc_draws(study: Study, n: int) -> dict[str, np.ndarray]:
-    """Common deviations of n builds from scrambled Sobol points (scipy.stats.qmc, seeded by the
-    study), one dimension per part and per timer error term, the same for every design and
-    independent of how designs are split into blocks.
+    """Common deviations of n builds from scrambled Sobol points (`sobol.sobol_points`, seeded by
+    the study: the same points as scipy.stats.qmc.Sobol without importing scipy.stats), one
+    dimension per part and per timer error term, the same for every design and independent of
+    how designs are split into blocks.
 
     Parts: normal with the tolerance as 3 sigma, clipped at the tolerance (returned in [-1, 1],
     the caller multiplies by the tolerance), or uniform over the tolerance. The timer's three
@@ -81,10 +82,7 @@ def mc_draws(study: Study, n: int) -> dict[str, np.ndarray]:
     names = varied_parts(study) + list(TIMER_TERMS) + draw_names(study)
     if n <= 0:
         return {k: np.zeros(0) for k in names}
-    with warnings.catch_warnings():        # a count that is not a power of two is fine here
-        warnings.simplefilter("ignore", UserWarning)
-        from scipy.stats import qmc     # imported here: scipy.stats costs ~1 s to import
-        u = qmc.Sobol(d=len(names), scramble=True, seed=study.seed).random(n).T
+    u = sobol_points(n, len(names), study.seed).T    # a count not a power of two is fine here
     u = np.clip(u, 1e-12, 1 - 1e-12)
     from scipy.special import ndtri     # the standard normal's inverse distribution function
     z = ndtri(u)
