@@ -75,3 +75,49 @@ def axis_values(axes: tuple[Axis, ...], index: np.ndarray) -> dict[str, np.ndarr
     shape = tuple(len(a.values) for a in axes)
     subs = np.unravel_index(index, shape)
     return {a.key: a.values[s] for a, s in zip(axes, subs)}
+
+
+@dataclass(frozen=True)
+class DesignGrid:
+    """A block's designs as the sub-grid of the design axes' values they use, each axis on a
+    leading axis of its own ((values, 1, 1), (1, values, 1), ...), so that broadcasting evaluates
+    each step of the model once per combination of the design axes it depends on (an astable's
+    charge once per RA and C, whatever RB). `index` holds each design's position on every axis;
+    `rows` takes the block's designs back out of an array over the grid. Where the sub-grid
+    would hold many more designs than the block (a block across an axis's wrap), the designs
+    stay on one flat axis."""
+    values: dict[str, np.ndarray]
+    index: tuple[np.ndarray, ...]
+    flat: bool
+
+    def rows(self, v) -> np.ndarray:
+        """(grid axes..., rest...) -> (designs, rest...)."""
+        v = np.asarray(v)
+        if self.flat:
+            n = len(self.index[0])
+            return v if v.shape[0] == n else np.broadcast_to(v, (n,) + v.shape[1:])
+        return v[tuple(i if n > 1 else np.zeros_like(i) for i, n in zip(self.index, v.shape))]
+
+
+#: a block's sub-grid is used when it holds at most this many times the block's designs
+GRID_SLACK = 1.5
+
+
+def design_grid(axes: tuple[Axis, ...], index: np.ndarray) -> DesignGrid:
+    """The designs of flat combination numbers `index` (C order) as a DesignGrid."""
+    index = np.asarray(index)
+    flat = DesignGrid(axis_values(axes, index), (np.arange(len(index)),), True)
+    if len(axes) < 2:
+        return flat
+    subs = np.unravel_index(index, tuple(len(a.values) for a in axes))
+    values, pos, size = {}, [], 1
+    for i, (a, s) in enumerate(zip(axes, subs)):
+        u, inv = np.unique(s, return_inverse=True)
+        shape = [1] * len(axes)
+        shape[i] = len(u)
+        values[a.key] = a.values[u].reshape(shape)
+        pos.append(inv.reshape(-1))
+        size *= len(u)
+    if size > GRID_SLACK * len(index):
+        return flat
+    return DesignGrid(values, tuple(pos), False)

@@ -174,3 +174,49 @@ def test_the_worst_case_is_the_extreme_of_every_corner_evaluated_in_full():
         v = np.broadcast_to(full[o], (30,) + full[o].shape[1:]).reshape(30, -1)
         assert np.array_equal(df[f"{o}_wc_min"].to_numpy(), v.min(1)), o
         assert np.array_equal(df[f"{o}_wc_max"].to_numpy(), v.max(1)), o
+
+
+# --- the design axes on axes of their own (case.DesignGrid) ---------------------------------
+
+@pytest.mark.parametrize("study", _studies())
+def test_a_block_on_its_sub_grid_gives_the_figures_of_its_designs_one_by_one(study, monkeypatch):
+    # the same block analysed with its designs on one flat axis and on the sub-grid of the
+    # design axes: every figure equal [derived: the same arithmetic on the same inputs]
+    from sweep import case
+    from sweep.engine import design_blocks
+    blocks = list(design_blocks(study, 4096, per_design=study.n_conditions * 8))[:3]
+    for a, b in blocks:
+        grid, _ = analyse_block(study, a, b)
+        monkeypatch.setattr(case, "GRID_SLACK", 0.0)        # every block flat
+        flat, _ = analyse_block(study, a, b)
+        monkeypatch.undo()
+        assert case.design_grid(study.design, np.arange(a, b)).flat is (len(study.design) < 2)
+        assert grid.equals(flat), (a, b)
+
+
+def test_blocks_cover_every_design_once_as_whole_sub_grids():
+    from sweep.case import design_grid
+    from sweep.engine import design_blocks
+    study = parse_study(VARIANTS["electrolytic-bipolar"], "v.toml")
+    sizes = [len(a.values) for a in study.design]
+    for chunk in (1, 7, 50, 10 ** 6):
+        blocks = list(design_blocks(study, chunk * study.n_conditions))
+        assert blocks[0][0] == 0 and blocks[-1][1] == study.n_designs
+        assert all(b0[1] == b1[0] for b0, b1 in zip(blocks, blocks[1:]))
+        for a, b in blocks:
+            g = design_grid(study.design, np.arange(a, b))
+            assert not g.flat
+            # the sub-grid holds exactly the block's designs
+            assert np.prod([np.size(v) for v in g.values.values()]) == b - a
+    assert sizes[-1] > 1
+
+
+def test_grid_rows_take_each_design_back():
+    from sweep.case import design_grid
+    study = parse_study(VARIANTS["electrolytic-bipolar"], "v.toml")
+    idx = np.arange(5, 5 + 2 * len(study.design[-1].values))
+    g = design_grid(study.design, idx)
+    flat = axis_values(study.design, idx)
+    # a product over the grid, taken back per design, is the product of each design's values
+    prod = g.values["ra"] * g.values["rb"] * g.values["c"]
+    assert np.array_equal(g.rows(prod), flat["ra"] * flat["rb"] * flat["c"])
