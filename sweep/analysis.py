@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .case import DesignGrid, axis_values, design_grid
+from .case import axis_values
 from .engine import (TIMING, Variation, evaluate_block, flag_text,
                      spec_fail)
 from .physics import FLAG_BITS, REGISTRY
@@ -127,7 +127,6 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     ideal = opt.ideal
     d_idx = np.arange(start, stop)
     design = axis_values(study.design, d_idx)
-    grid = design_grid(study.design, d_idx)     # the model runs on the block's sub-grid
     c_idx = np.arange(study.n_conditions)
     cond = axis_values(study.conditions, c_idx)
     outs = summary_outputs(study)
@@ -137,11 +136,11 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
         row[a.column] = design[a.key]
 
     # 1. nominal parts over every condition
-    sweep = _rows(grid, evaluate_block(study.case, grid.values, cond, ideal=ideal))
+    sweep = evaluate_block(study.case, design, cond, ideal=ideal)
     mask = np.bitwise_or.reduce(sweep["flag_mask"][:, 0, :], axis=1)
     # 2. nominal parts at the nominal condition
-    nominal = {k: np.array([v]) for k, v in study.case.nominal.items()}
-    nom = _rows(grid, evaluate_block(study.case, grid.values, nominal, ideal=ideal))
+    nom = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
+                         ideal=ideal)
     for o in outs:
         v = sweep[o][:, 0, :]
         row[f"{o}_nom"] = nom[o][:, 0, 0]
@@ -152,11 +151,9 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     # timer's drift band
     parts = varied_parts(study)
     corners = worst_case_corners(study, cond, ideal)
-    wc = evaluate_block(study.case, grid.values, cond, ideal=ideal, variation=corners.variation,
-                        with_spec=False)
+    wc = evaluate_block(study.case, design, cond, ideal=ideal, variation=corners.variation, with_spec=False)
     band = _band(study, cond, ideal)
     band = np.reshape(band, (1,) * (wc["flag_mask"].ndim - 1) + (-1,))
-    lead = 1 if grid.flat else len(study.design)      # the design axes of the arrays
     for o in outs:
         v = _unrepeated(wc[o])
         lo, hi = v, v
@@ -166,8 +163,8 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
             lo, hi = v / (1 + band), v / (1 - band)
         elif o == "timeout_margin_s":        # the timeout's band, less the input period
             lo, hi = v - _unrepeated(wc["timeout_s"]) * band, v + _unrepeated(wc["timeout_s"]) * band
-        row[f"{o}_wc_min"] = grid.rows(_reduce(lo, np.min, lead))
-        row[f"{o}_wc_max"] = grid.rows(_reduce(hi, np.max, lead))
+        row[f"{o}_wc_min"] = _reduce(lo, np.min)
+        row[f"{o}_wc_max"] = _reduce(hi, np.max)
     # 4. elasticities of the main output at the nominal condition [derived: central difference]
     main = main_outputs(study.circuit)[:1]
     if main and parts:
@@ -177,8 +174,8 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
             for s in (1 + SENS_STEP, 1 - SENS_STEP):
                 steps.append({q: (s if q == p else 1.0) for q in parts})
         var = Variation({p: np.array([st[p] for st in steps])[None, :, None] for p in parts})
-        ev = grid.rows(evaluate_block(study.case, grid.values, nominal, ideal=ideal,
-                                      variation=var, with_spec=False)[m])[:, :, 0]
+        ev = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
+                            ideal=ideal, variation=var, with_spec=False)[m][:, :, 0]
         with np.errstate(all="ignore"):
             for i, p in enumerate(parts):
                 row[f"sens_{p}"] = ((np.log(ev[:, 2 * i]) - np.log(ev[:, 2 * i + 1]))
@@ -197,7 +194,7 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     row["flag_mask"] = mask
     row["wc_margin"] = _wc_margin(study, row)
     row["stalls_at"] = stall_text(study, cond, corners, sweep["flag_mask"][:, 0, :],
-                                  grid.rows(wc["flag_mask"]).reshape(nd, corners.count, len(c_idx)))
+                                  wc["flag_mask"].reshape(nd, corners.count, len(c_idx)))
     df = pd.DataFrame(row)
     df["series_need"], df["distinct_values"] = plainness(study, df)
     df["uncommon"] = uncommon_parts(study, df)
@@ -231,24 +228,19 @@ def monte_carlo_block(study: Study, designs: np.ndarray, opt: Options = Options(
     return pd.DataFrame(row)
 
 
-def _reduce(v: np.ndarray, fn, lead: int = 1) -> np.ndarray:
-    """Reduce (design axes (lead of them), builds or spread axes..., conditions) over every axis
-    after the design axes; NaN anywhere gives NaN."""
-    return fn(_unrepeated(v), axis=tuple(range(lead, np.ndim(v))))
+def _reduce(v: np.ndarray, fn) -> np.ndarray:
+    """Reduce (designs, builds or spread axes..., conditions) over every axis but the first; NaN
+    anywhere gives NaN."""
+    return fn(_unrepeated(v), axis=tuple(range(1, v.ndim)))
 
 
 def _unrepeated(v: np.ndarray) -> np.ndarray:
-    """v without the repeats broadcasting made: length 1 on every axis where v only repeats one
-    value (a stride of 0), so a minimum or maximum over it reads each value once
-    (DesignGrid.rows reads a design axis of length 1 for every design)."""
+    """v without the repeats broadcasting made: length 1 on every axis after the first (the
+    designs) where v only repeats one value (a stride of 0), so a minimum or maximum over it
+    reads each value once."""
     v = np.asarray(v)
-    return v[tuple(slice(0, 1) if (n > 1 and st == 0) else slice(None)
-                   for n, st in zip(v.shape, v.strides))]
-
-
-def _rows(grid: DesignGrid, out: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """Every array of a model result over a block's sub-grid, taken back to (designs, ...)."""
-    return {k: grid.rows(v) for k, v in out.items()}
+    return v[(slice(None),) + tuple(slice(0, 1) if (n > 1 and st == 0) else slice(None)
+                                    for n, st in zip(v.shape[1:], v.strides[1:]))]
 
 
 def _band(study: Study, cond: dict[str, np.ndarray], ideal: bool) -> np.ndarray | float:

@@ -41,7 +41,7 @@ DEFAULT_CHUNK = 1 << 14        # points per block: arrays stay in the core's cac
 #: its point count says, so bigger blocks spread each call's fixed cost (measured on bike-light's
 #: pass 1: 1.10 s in 51 blocks of DEFAULT_CHUNK, 0.33 s in 8 of 8x that; on a 1e6-point
 #: astable-diode study, where the kernel runs the plain sweeps, 8x is as fast as 1x-4x).
-ANALYSIS_CHUNK = 32 * DEFAULT_CHUNK
+ANALYSIS_CHUNK = 8 * DEFAULT_CHUNK
 TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s", "timeout_s")
 SPEC_MISS = np.uint32(FLAG_BITS["spec-miss"])
 
@@ -76,18 +76,13 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     if case.grades and "grade" in design:      # part grades: each with its own parts
         return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
                                 with_spec=with_spec, compiled=compiled)
-    # designs take one axis, or one per design axis (case.DesignGrid); builds take one axis, the
-    # worst case's corners one per spread (spreads.Corners); conditions the last
-    lead = max((np.ndim(v) for v in design.values()), default=1)
+    # builds take one axis; the worst case's corners one per spread (spreads.Corners)
     middle = 1 if variation is None else max(1, max(np.ndim(a) for a in _arrays(variation)) - 2)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
-        v = np.asarray(v, dtype=float)
-        kw[k] = v.reshape(v.shape + (1,) * (lead - v.ndim + middle + 1))
+        kw[k] = np.asarray(v, dtype=float).reshape((-1,) + (1,) * (middle + 1))
     for k, v in conditions.items():
-        kw[k] = np.asarray(v, dtype=float).reshape((1,) * (lead + middle) + (-1,))
-    if variation is not None and lead > 1:
-        variation = _lead(variation, lead - 1)
+        kw[k] = np.asarray(v, dtype=float).reshape((1,) * (middle + 1) + (-1,))
     if variation is not None:
         for k, m in variation.part.items():
             if k in kw:
@@ -100,7 +95,7 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
         # factored corners: numpy's broadcasting evaluates each step once per combination of the
         # spreads it depends on, which beats the kernel evaluating every corner in full (measured:
         # 2-6x on the astable and astable-diode)
-        compiled = lead == 1 and middle == 1 and kernel.wanted(case.circuit, case.timer, case.parts, case.load,
+        compiled = middle == 1 and kernel.wanted(case.circuit, case.timer, case.parts, case.load,
                                                  ideal, case.points)
     model = kernel.evaluate if compiled else evaluate
     out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
@@ -123,14 +118,6 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
 def _arrays(variation: Variation) -> list:
     """Every array of a Variation (part multipliers and spreads)."""
     return list(variation.part.values()) + [getattr(variation, f) for f in VARIATION_FIELDS]
-
-
-def _lead(variation: Variation, extra: int) -> Variation:
-    """The variation with `extra` more leading axes (for designs on several axes)."""
-    def up(a):
-        return a if np.ndim(a) == 0 else np.asarray(a).reshape((1,) * extra + np.shape(a))
-    return Variation({k: up(v) for k, v in variation.part.items()},
-                     **{f: up(getattr(variation, f)) for f in VARIATION_FIELDS})
 
 
 #: the Variation's fields beyond the part multipliers
@@ -191,21 +178,8 @@ def flag_text(mask: np.ndarray) -> np.ndarray:
 
 def design_blocks(study, chunk_points: int = DEFAULT_CHUNK, per_design: int | None = None
                   ) -> Iterator[tuple[int, int]]:
-    """(start, stop) ranges of design numbers so that each block holds about chunk_points points
-    and, where it can, is a sub-grid of the design axes (case.DesignGrid): a block holds whole
-    runs of the last axes and never wraps round the axis before them."""
+    """(start, stop) ranges of design numbers so that each block holds about chunk_points points."""
     per = per_design or study.n_conditions
     step = max(1, chunk_points // max(per, 1))
-    # inner: one run of the last axes that fits in a block; span: one run of the axis before
-    # them, which a block never wraps round
-    inner, span = 1, study.n_designs
-    for n in reversed([len(a.values) for a in study.design]):
-        if inner * n > step:
-            span = inner * n
-            break
-        inner *= n
-    step -= step % inner
-    for base in range(0, study.n_designs, span):
-        end = min(base + span, study.n_designs)
-        for start in range(base, end, step):
-            yield start, min(start + step, end)
+    for start in range(0, study.n_designs, step):
+        yield start, min(start + step, study.n_designs)
