@@ -68,16 +68,27 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
                    with_spec: bool = True, compiled: bool | None = None) -> dict[str, np.ndarray]:
     """Evaluate designs x [builds x] conditions of one case. Inputs are 1-D arrays per study
     key; the result arrays have shape (designs, builds, conditions) (builds = 1 without a
-    variation), or (designs, spread axes..., conditions) for the worst case's corners
-    (spreads.Corners). ideal: every non-ideality off (default: the case's). compiled: use the compiled
+    variation), or (designs, spread axes..., conditions) for the worst case's factored corners
+    (spreads.Corners) on the numpy model, (designs, corners, conditions) on the kernel. ideal: every non-ideality off (default: the case's). compiled: use the compiled
     kernel (None: when the case's sweep is big enough to pay for loading it and the kernel
     covers the circuit, see physics.kernel.wanted)."""
     ideal = case.ideal if ideal is None else ideal
     if case.grades and "grade" in design:      # part grades: each with its own parts
         return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
                                 with_spec=with_spec, compiled=compiled)
+    if compiled is None:
+        compiled = kernel.wanted(case.circuit, case.timer, case.parts, case.load, ideal, case.points)
+        if compiled and variation is not None and _axes(variation) > 1:
+            # factored corners (spreads.Corners): numpy's broadcasting evaluates each step once
+            # per combination of the spreads it depends on; the kernel evaluates every corner in
+            # full, but 3-4x faster per point. Measured with tests/benchmarks/corners.py: the
+            # astable-diode's Shockley charge makes the factored corners 3.4x the kernel's
+            # speed; on the plain astable the kernel is 1.7x the factored corners' speed.
+            compiled = case.circuit not in FACTORED_CORNERS
+    if compiled and variation is not None and _axes(variation) > 1:
+        variation = _one_corner_axis(variation)       # the kernel takes one build axis
     # builds take one axis; the worst case's corners one per spread (spreads.Corners)
-    middle = 1 if variation is None else max(1, max(np.ndim(a) for a in _arrays(variation)) - 2)
+    middle = 1 if variation is None else _axes(variation)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
         kw[k] = np.asarray(v, dtype=float).reshape((-1,) + (1,) * (middle + 1))
@@ -91,12 +102,6 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
-    if compiled is None:
-        # factored corners: numpy's broadcasting evaluates each step once per combination of the
-        # spreads it depends on, which beats the kernel evaluating every corner in full (measured:
-        # 2-6x on the astable and astable-diode)
-        compiled = middle == 1 and kernel.wanted(case.circuit, case.timer, case.parts, case.load,
-                                                 ideal, case.points)
     model = kernel.evaluate if compiled else evaluate
     out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
@@ -113,6 +118,34 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     if with_spec and case.spec:
         out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(case, out), SPEC_MISS, np.uint32(0))
     return out
+
+
+#: circuits whose worst-case corners run factored on the numpy model even where the kernel runs
+#: the sweep (see evaluate_block)
+FACTORED_CORNERS = ("astable-diode",)
+
+
+def _axes(variation: Variation) -> int:
+    """How many build axes a variation's arrays have: 1 for builds, one per spread for the
+    factored corners."""
+    return max(1, max(np.ndim(a) for a in _arrays(variation)) - 2)
+
+
+def _one_corner_axis(variation: Variation) -> Variation:
+    """The factored corners with their spread axes flattened into one (C order: corner k is
+    Corners.signs[:, k]), every corner written out."""
+    arrays = [np.asarray(a, dtype=float) for a in _arrays(variation)]
+    mid = np.broadcast_shapes(*(a.shape[1:-1] for a in arrays if a.ndim > 2))
+    k = int(np.prod(mid))
+
+    def flat(a):
+        a = np.asarray(a, dtype=float)
+        if a.ndim < 3:
+            return a
+        full = np.broadcast_to(a, a.shape[:1] + mid + a.shape[-1:])
+        return np.ascontiguousarray(full).reshape(a.shape[0], k, a.shape[-1])
+    return Variation({p: flat(m) for p, m in variation.part.items()},
+                     **{f: flat(getattr(variation, f)) for f in VARIATION_FIELDS})
 
 
 def _arrays(variation: Variation) -> list:

@@ -13,7 +13,7 @@ import pytest
 
 from sweep.analysis import analyse_block
 from sweep.case import axis_values
-from sweep.engine import VARIATION_FIELDS, Variation, evaluate_block
+from sweep.engine import Variation, _one_corner_axis, evaluate_block
 from sweep import spreads
 from sweep.spreads import worst_case_corners
 from sweep.study import load_study, parse_study
@@ -68,23 +68,6 @@ def _studies():
     out = [pytest.param(load_study(p), id=p.stem) for p in EXAMPLES]
     out += [pytest.param(parse_study(t, f"{k}.toml"), id=k) for k, t in VARIANTS.items()]
     return out
-
-
-def _in_full(corners) -> Variation:
-    """The factored corners as one corner axis of 2^k (1, corners, conditions or 1): every
-    corner written out, the spreads' axes flattened in C order (the order of Corners.signs)."""
-    k = corners.count
-
-    def flat(a):
-        a = np.asarray(a, dtype=float)
-        if a.ndim < 3:
-            return a
-        axes = (2,) * len(corners.dims) or (1,)
-        full = np.broadcast_to(a, a.shape[:1] + axes + a.shape[-1:])
-        return np.ascontiguousarray(full).reshape(1, k, a.shape[-1])
-    v = corners.variation
-    return Variation({p: flat(m) for p, m in v.part.items()},
-                     **{f: flat(getattr(v, f)) for f in VARIATION_FIELDS})
 
 
 def _enumerated(study, cond, ideal: bool) -> Variation:
@@ -152,7 +135,7 @@ def test_a_corners_parts_follow_its_signs():
     study = load_study("studies/bike-light.toml")
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     corners = worst_case_corners(study, cond, False)
-    full = _in_full(corners)
+    full = _one_corner_axis(corners.variation)
     for i, p in enumerate(corners.dims[:3]):
         m = np.broadcast_to(full.part[p], (1, corners.count, study.n_conditions))[0]
         low = corners.signs[i] < 0
@@ -174,3 +157,27 @@ def test_the_worst_case_is_the_extreme_of_every_corner_evaluated_in_full():
         v = np.broadcast_to(full[o], (30,) + full[o].shape[1:]).reshape(30, -1)
         assert np.array_equal(df[f"{o}_wc_min"].to_numpy(), v.min(1)), o
         assert np.array_equal(df[f"{o}_wc_max"].to_numpy(), v.max(1)), o
+
+
+@pytest.mark.parametrize("study", _studies())
+def test_the_kernel_on_every_corner_in_full_agrees_with_the_factored_corners(study):
+    # where the compiled kernel runs a big sweep's corners it evaluates them flattened into one
+    # axis: the same figures as the factored numpy evaluation, to the kernel's 1e-12
+    from sweep.physics import kernel
+    if study.circuit not in kernel.COMPILED or not kernel.available():
+        pytest.skip("the kernel does not cover this circuit")
+    design = axis_values(study.design, np.arange(min(30, study.n_designs)))
+    cond = axis_values(study.conditions, np.arange(study.n_conditions))
+    corners = worst_case_corners(study, cond, False)
+    numpy_ = evaluate_block(study.case, design, cond, variation=corners.variation,
+                            with_spec=False, compiled=False)
+    compiled = evaluate_block(study.case, design, cond, variation=corners.variation,
+                              with_spec=False, compiled=True)
+    nd = len(next(iter(design.values())))
+    for key, got in compiled.items():
+        want = np.broadcast_to(numpy_[key], (nd,) + (2,) * len(corners.dims) + (study.n_conditions,))
+        want = want.reshape(got.shape)
+        if key == "flag_mask":
+            assert np.array_equal(got, want)
+        else:
+            assert np.allclose(got, want, rtol=1e-12, atol=0, equal_nan=True), key

@@ -1,0 +1,96 @@
+"""Worst-case corners benchmark: the factored corners (every spread on an axis of its own, as the
+analysis evaluates them) against every corner written out in full, on the numpy model and on the
+compiled kernel, same designs, same run (alternating, medians). Figures are corner evaluations
+per second: designs x corners x conditions over the time. Ends with one JSON line.
+
+    python tests/benchmarks/corners.py [--designs N] [--repeats K]
+
+`figures()` returns the same figures as a dict, for a suite script.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import statistics
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parents[1]))
+
+from sweep.case import axis_values                     # noqa: E402
+from sweep.engine import _one_corner_axis, evaluate_block  # noqa: E402
+from sweep.spreads import worst_case_corners           # noqa: E402
+from sweep.study import load_study, parse_study        # noqa: E402
+
+#: an invented plain astable over many conditions (the big sweep's shape)
+ASTABLE = """
+[study]
+circuit = "astable"
+timer = "bipolar"
+[design]
+ra = { series = "E96", min = "1k", max = "100k" }
+rb = { series = "E96", min = "1k", max = "1M" }
+c = ["1n", "10n", "100n", "1u"]
+[conditions]
+vcc = { min = 5, max = 15, steps = 10 }
+temperature = { min = -40, max = 85, steps = 10 }
+[parts]
+capacitor = "X7R"
+[load]
+resistance = "1k"
+"""
+
+
+def _case(study, designs: int, repeats: int) -> dict:
+    design = axis_values(study.design, np.arange(min(designs, study.n_designs)))
+    cond = axis_values(study.conditions, np.arange(study.n_conditions))
+    corners = worst_case_corners(study, cond, False)
+    full = _one_corner_axis(corners.variation)
+    runs = {"factored": lambda: evaluate_block(study.case, design, cond, variation=corners.variation,
+                                               with_spec=False, compiled=False),
+            "full_numpy": lambda: evaluate_block(study.case, design, cond, variation=full,
+                                                 with_spec=False, compiled=False),
+            "full_kernel": lambda: evaluate_block(study.case, design, cond, variation=full,
+                                                  with_spec=False, compiled=True)}
+    for f in runs.values():           # warm up (the kernel compiles or loads its cache once)
+        f()
+    times = {k: [] for k in runs}
+    for _ in range(repeats):
+        for k, f in runs.items():
+            t0 = time.perf_counter()
+            f()
+            times[k].append(time.perf_counter() - t0)
+    n = len(next(iter(design.values()))) * corners.count * study.n_conditions
+    return {k: n / statistics.median(v) for k, v in times.items()} | {"evaluations": n}
+
+
+def figures(designs: int = 2000, repeats: int = 5) -> dict:
+    out = {}
+    studies = {"astable_diode": load_study(HERE.parents[1] / "studies" / "bike-light.toml"),
+               "astable": parse_study(ASTABLE, "astable.toml")}
+    for name, study in studies.items():
+        r = _case(study, designs, repeats)
+        print(f"worst-case corners, {name} ({r['evaluations']:,} corner evaluations): factored "
+              f"{r['factored'] / 1e6:.1f} M/s, every corner in full {r['full_numpy'] / 1e6:.1f} M/s "
+              f"(numpy) and {r['full_kernel'] / 1e6:.1f} M/s (kernel): "
+              f"{r['factored'] / r['full_numpy']:.1f}x numpy, {r['factored'] / r['full_kernel']:.1f}x kernel")
+        out.update({f"corners_{name}_factored_per_s": round(r["factored"]),
+                    f"corners_{name}_full_numpy_per_s": round(r["full_numpy"]),
+                    f"corners_{name}_full_kernel_per_s": round(r["full_kernel"])})
+    return out
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--designs", type=int, default=2000)
+    ap.add_argument("--repeats", type=int, default=5)
+    a = ap.parse_args()
+    print(json.dumps(figures(a.designs, a.repeats)))
+
+
+if __name__ == "__main__":
+    main()
