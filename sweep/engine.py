@@ -105,13 +105,17 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     model = kernel.evaluate if compiled else evaluate
     out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
     if variation is not None and not ideal:
-        # timer accuracy and drift act on every timed phase as a relative error [ds-bip]
-        dt = kw.get("temperature", 25.0) - 25.0
-        dv = kw.get("vcc", case.nominal_vcc_v) - case.nominal_vcc_v
-        err = 1.0 + variation.accuracy + variation.drift_per_k * dt + variation.supply_per_v * dv
-        for k in TIMING:
-            out[k] = out[k] * err
-        out["frequency_hz"] = out["frequency_hz"] / err
+        # timer accuracy and drift act on every timed phase as a relative error [ds-bip]; the
+        # worst case's corners carry none (the analysis adds the timer's band), and multiplying
+        # by exactly 1 would change nothing
+        terms = (variation.accuracy, variation.drift_per_k, variation.supply_per_v)
+        if not all(np.ndim(x) == 0 and x == 0 for x in terms):
+            dt = kw.get("temperature", 25.0) - 25.0
+            dv = kw.get("vcc", case.nominal_vcc_v) - case.nominal_vcc_v
+            err = 1.0 + variation.accuracy + variation.drift_per_k * dt + variation.supply_per_v * dv
+            for k in TIMING:
+                out[k] = out[k] * err
+            out["frequency_hz"] = out["frequency_hz"] / err
         if "input_period" in kw:
             out["timeout_margin_s"] = out["timeout_s"] - kw["input_period"]
     out["battery_life_h"] = battery_life_h(case, out)
@@ -186,8 +190,8 @@ def battery_life_h(case: Case, out: dict[str, np.ndarray]) -> np.ndarray:
     mean current is the period-averaged supply current of a running timer; a monostable is taken
     to wait for its triggers nearly all the time, so its idle current sets the life (pulses add
     their share on top: see the README). NaN without [study] battery_capacity."""
-    if case.battery_capacity_ah is None:
-        return np.full(np.shape(out["supply_current_a"]), np.nan)
+    if case.battery_capacity_ah is None:        # a read-only view: no memory per point
+        return np.broadcast_to(np.float64(np.nan), np.shape(out["supply_current_a"]))
     current = out["idle_current_a"] if REGISTRY[case.circuit].waits else out["supply_current_a"]
     with np.errstate(all="ignore"):
         return case.battery_capacity_ah * case.battery_usable / current
