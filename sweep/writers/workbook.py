@@ -69,7 +69,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import xlsxwriter
-from xlsxwriter.utility import xl_rowcol_to_cell
+import xlsxwriter.utility
+from xlsxwriter.utility import xl_col_to_name, xl_rowcol_to_cell
 
 from sweep.report import Report
 from sweep.writers.atomic import atomic_path
@@ -460,10 +461,13 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
                  fail_props: dict | None = None) -> int:
     """Header at first_row, data below; returns the last row written (0-based).
 
-    Rows are written strictly in order (constant_memory). Plain rows go through ``write_row``
-    per run of numeric columns, taking each column's format from ``set_column``; text cells go
-    through ``write_string``; rows where ``fail`` is true take each column's failing format.
-    Every format is made once per column before the rows (``_TableFormats``)."""
+    Rows are written strictly in order (constant_memory). Plain cells take their column's
+    format from ``set_column`` (text cells their own); rows where ``fail`` is true take each
+    column's failing format. Every format is made once per column before the rows
+    (``_TableFormats``). The rows go to the sheet as cell XML made a column at a time
+    (``_rows_xml``); the per-cell calls below it write the same cells where that cannot be
+    used: plain rows through ``write_row`` per run of numeric columns and ``write_string``,
+    failing rows cell by cell."""
     for i, c in enumerate(cols):
         ws.set_column(i, i, c.width, st.get(**c.cell_props()))
     _header_row(ws, st, first_row, [c.header for c in cols], [c.width for c in cols])
@@ -479,14 +483,18 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
             runs.append((start, i))
             start = None
     fm = _TableFormats(st, cols, fail_props or {})
+    fast = _rows_xml_ok(ws, cols, n)
     for lo in range(0, n, _CHUNK):
         hi = min(n, lo + _CHUNK)
         block = np.empty((hi - lo, len(cols)), dtype=object)
         for i, c in enumerate(cols):
             block[:, i] = _cell_objects(c, lo, hi)
-        rows = block.tolist()
         fails = None if fail is None else np.asarray(fail[lo:hi], dtype=bool).tolist()
         r = first_row + 1 + lo
+        if fast:
+            _rows_xml(ws, fm, cols, block, fails, r, lo)
+            continue
+        rows = block.tolist()
         for k, row in enumerate(rows):
             failing = fails is not None and fails[k]
             if failing:
@@ -506,6 +514,167 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
             r += 1
     return first_row + n
 
+
+# --- rows as cell XML --------------------------------------------------------------------------
+# The spreadsheet library spends ~7 µs on each cell it is given one at a time (checks, a stored
+# tuple, then the cell's XML): 4 s for the Designs sheet's 10 000 rows x 56 columns [measured].
+# In its constant_memory mode it writes each finished row's XML straight to the sheet's row
+# file, so a table's rows can go there as the same XML, made a column at a time. The cells are
+# the ones the per-cell calls make, attribute for attribute (cell reference, style, type, value
+# as ``.16G``, inline text escaped the library's own way); tests/writers/test_fast_rows.py
+# checks that both ways give the same workbook cell by cell, and the per-cell calls remain for
+# any worksheet where the library does not look as this expects.
+_ROW_FILE_PARTS = ("fh", "previous_row", "table", "_write_single_row", "_check_dimensions",
+                   "_escape_data", "_escape_control_characters", "xls_strmax")
+#: the library's own test for text that keeps its leading or trailing spaces
+_PRESERVE = getattr(xlsxwriter.utility, "_preserve_whitespace", None)
+
+
+def _rows_xml_ok(ws, cols: list[_Col], n: int) -> bool:
+    """The rows of this table can be written as cell XML (constant_memory, the library's
+    row-file parts present, no text long enough to need the library's truncation)."""
+    if not n or not getattr(ws, "constant_memory", False) or _PRESERVE is None or \
+            not all(hasattr(ws, a) for a in _ROW_FILE_PARTS):
+        return False
+    half = ws.xls_strmax // 2
+    for c in cols:
+        for texts in ((c.values if c.kind == "text" else None), c.empty_text):
+            if texts is not None and len(texts) and max(map(len, texts)) > half:
+                return False
+    return True
+
+
+class _CellXml:
+    """The XML of one table's cells, each distinct style attribute and text made once."""
+
+    def __init__(self, ws):
+        self.ws = ws
+        self._text: dict[str, str] = {}
+        self._first: dict[int, tuple[int, int, object]] = {}
+
+    def use(self, fmt, row: int | None, col: int) -> None:
+        """Note that a cell at (row, col) of this chunk takes ``fmt`` (no row: no cell does)."""
+        if fmt is not None and row is not None:
+            key = id(fmt)
+            if key not in self._first or (row, col) < self._first[key][:2]:
+                self._first[key] = (row, col, fmt)
+
+    def used(self, fmt) -> bool:
+        return id(fmt) in self._first
+
+    def number_formats(self) -> None:
+        """Number the formats used as the library does: in the order cells first use them, row
+        by row (so the style table comes out as with per-cell calls)."""
+        for _r, _c, fmt in sorted(self._first.values(), key=lambda t: t[:2]):
+            fmt._get_xf_index()
+
+    @staticmethod
+    def s(fmt) -> str:
+        """The style attribute of a cell of format ``fmt`` (none for no format)."""
+        return "" if fmt is None else f' s="{fmt._get_xf_index()}"'
+
+    def text(self, string: str) -> str:
+        """What follows a text cell's attributes: the inline string as the library writes it."""
+        out = self._text.get(string)
+        if out is None:
+            ws = self.ws
+            t = ws._escape_control_characters(string)
+            if t.startswith("<r>") and t.endswith("</r>"):
+                out = f' t="inlineStr"><is>{t}</is></c>'
+            else:
+                keep = ' xml:space="preserve"' if _PRESERVE(t) else ""
+                out = f' t="inlineStr"><is><t{keep}>{ws._escape_data(t)}</t></is></c>'
+            self._text[string] = out
+        return out
+
+
+def _first(mask: np.ndarray) -> int | None:
+    hit = np.flatnonzero(mask)
+    return int(hit[0]) if hit.size else None
+
+
+def _rows_xml(ws, fm: _TableFormats, cols: list[_Col], block: np.ndarray, fails, r0: int,
+              lo: int) -> None:
+    """Rows r0.. (0-based) of a table as the library's cell XML, straight to the sheet's row
+    file: the same cells, formats and order as the per-cell calls of ``_write_table``."""
+    m = block.shape[0]
+    xml = _CellXml(ws)
+    fail = np.asarray(fails if fails is not None else np.zeros(m, bool), dtype=bool)
+    failing = fail.tolist()
+    plan = []           # per column: kind, letter, values, plain and failing format, extras
+    for i, c in enumerate(cols):
+        vals = block[:, i].tolist()
+        colfmt = ws.col_info[i].column_format if i in ws.col_info else None
+        bad = fm.fail_format[i]
+        why = {}
+        if c.kind == "text":
+            # the format of each (text, failing) pair, noted at the row that first has it
+            texts, keys = fm.text[i], {}
+            for k, (v, f) in enumerate(zip(vals, failing)):
+                if (v, f) in keys:
+                    continue
+                if f:
+                    fmt = fm.get(fm.fail[i], v) if v.startswith(_DANGER) else bad
+                elif v:
+                    fmt = fm.get(texts.get(v, texts[None]), v)
+                    fmt = colfmt if fmt is None else fmt
+                else:
+                    keys[(v, f)] = None
+                    continue
+                keys[(v, f)] = (fmt,)       # a cell, with or without a format
+                xml.use(fmt, k, i)
+            plan.append((c.kind, i, vals, keys, None, why))
+            continue
+        none = np.fromiter((v is None for v in vals), bool, m)
+        if c.empty_text is not None:
+            texts = c.empty_text[lo:lo + m]
+            for k in np.flatnonzero(none & (texts != "")):
+                fmt = fm.get(fm.why[i][failing[k]], texts[k])
+                why[int(k)] = (fmt, texts[k])
+                xml.use(fmt, int(k), i)
+        taken = np.zeros(m, bool)
+        taken[list(why)] = True
+        xml.use(colfmt, _first(~fail & ~none), i)
+        xml.use(bad, _first(fail & ~taken), i)
+        plan.append((c.kind, i, vals, colfmt, bad, why))
+    ws._write_single_row(r0)          # the row before (the header) goes out first, as it would
+    xml.number_formats()
+    refs = range(r0 + 1, r0 + 1 + m)                 # 1-based row numbers
+    columns = []
+    for kind, i, vals, plain, bad, why in plan:
+        letter = xl_col_to_name(i)
+        if kind == "text":
+            made = {key: (None if cell is None else xml.s(cell[0]) + xml.text(key[0]))
+                    for key, cell in plain.items()}
+            out = [("" if made[(v, f)] is None else f'<c r="{letter}{r}"{made[(v, f)]}')
+                   for r, v, f in zip(refs, vals, failing)]
+            columns.append(out)
+            continue
+        # a format no cell takes gets no number (the library numbers only formats in use)
+        plain, bad = (xml.s(f) if xml.used(f) else "" for f in (plain, bad))
+        if kind == "bool":
+            out = [f'<c r="{letter}{r}"{bad if f else plain} t="b"><v>{1 if v else 0}</v></c>'
+                   if v is not None else (f'<c r="{letter}{r}"{bad}/>' if f else "")
+                   for r, v, f in zip(refs, vals, failing)]
+        else:
+            out = [f'<c r="{letter}{r}"{bad if f else plain}><v>{v:.16G}</v></c>'
+                   if v is not None else (f'<c r="{letter}{r}"{bad}/>' if f else "")
+                   for r, v, f in zip(refs, vals, failing)]
+        for k, (fmt, text) in why.items():
+            out[k] = f'<c r="{letter}{r0 + 1 + k}"{xml.s(fmt)}{xml.text(text)}'
+        columns.append(out)
+    rows = []
+    last = None
+    for r, cells in zip(refs, zip(*columns)):
+        body = "".join(cells)
+        if body:
+            rows.append(f'<row r="{r}">{body}</row>')
+            last = r - 1
+    if last is None:
+        return
+    ws.fh.write("".join(rows))
+    ws._check_dimensions(last, len(cols) - 1)
+    ws.previous_row = last
 
 # --- sheets ------------------------------------------------------------------------------------
 _SUMMARY_CHARS = 4 * 14 + 44   # columns B-F
