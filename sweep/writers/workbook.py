@@ -588,6 +588,9 @@ class _CellXml:
         return out
 
 
+_ROW = "\x00"   # where a cell XML template takes its row number (escaped text never holds it)
+
+
 def _first(mask: np.ndarray) -> int | None:
     hit = np.flatnonzero(mask)
     return int(hit[0]) if hit.size else None
@@ -623,9 +626,10 @@ def _rows_xml(ws, fm: _TableFormats, cols: list[_Col], block: np.ndarray, fails,
                     continue
                 keys[(v, f)] = (fmt,)       # a cell, with or without a format
                 xml.use(fmt, k, i)
-            plan.append((c.kind, i, vals, keys, None, why))
+            plan.append((c.kind, i, vals, keys, None, why, None))
             continue
-        none = np.fromiter((v is None for v in vals), bool, m)
+        v = c.values[lo:lo + m]                      # None where a number is not finite
+        none = ~np.isfinite(v) if c.kind == "num" and v.dtype.kind == "f" else np.zeros(m, bool)
         if c.empty_text is not None:
             texts = c.empty_text[lo:lo + m]
             for k in np.flatnonzero(none & (texts != "")):
@@ -636,39 +640,52 @@ def _rows_xml(ws, fm: _TableFormats, cols: list[_Col], block: np.ndarray, fails,
         taken[list(why)] = True
         xml.use(colfmt, _first(~fail & ~none), i)
         xml.use(bad, _first(fail & ~taken), i)
-        plan.append((c.kind, i, vals, colfmt, bad, why))
+        plan.append((c.kind, i, vals, colfmt, bad, why, bool(none.any())))
     ws._write_single_row(r0)          # the row before (the header) goes out first, as it would
     xml.number_formats()
-    refs = range(r0 + 1, r0 + 1 + m)                 # 1-based row numbers
-    columns = []
-    for kind, i, vals, plain, bad, why in plan:
+    # each row is one template (plain or failing) filled in one step: a column whose cells all
+    # exist puts its format and value spec in the template, any other column its made cells
+    parts: dict[bool, list[str]] = {False: [], True: []}
+    args = []
+    for kind, i, vals, plain, bad, why, gaps in plan:
         letter = xl_col_to_name(i)
         if kind == "text":
-            made = {key: (None if cell is None else xml.s(cell[0]) + xml.text(key[0]))
+            made = {key: ("" if cell is None else
+                          f'<c r="{letter}{_ROW}"{xml.s(cell[0])}{xml.text(key[0])}')
                     for key, cell in plain.items()}
-            out = [("" if made[(v, f)] is None else f'<c r="{letter}{r}"{made[(v, f)]}')
-                   for r, v, f in zip(refs, vals, failing)]
-            columns.append(out)
+            args.append([made[key] for key in zip(vals, failing)])
+            parts[False].append("%s")
+            parts[True].append("%s")
             continue
         # a format no cell takes gets no number (the library numbers only formats in use)
         plain, bad = (xml.s(f) if xml.used(f) else "" for f in (plain, bad))
+        t = ' t="b"' if kind == "bool" else ""
+        if not gaps:
+            spec = "%d" if kind == "bool" else "%.16G"       # as the library writes the value
+            parts[False].append(f'<c r="{letter}{_ROW}"{plain}{t}><v>{spec}</v></c>')
+            parts[True].append(f'<c r="{letter}{_ROW}"{bad}{t}><v>{spec}</v></c>')
+            args.append(vals)
+            continue
         if kind == "bool":
-            out = [f'<c r="{letter}{r}"{bad if f else plain} t="b"><v>{1 if v else 0}</v></c>'
-                   if v is not None else (f'<c r="{letter}{r}"{bad}/>' if f else "")
-                   for r, v, f in zip(refs, vals, failing)]
+            out = [f'<c r="{letter}{_ROW}"{bad if f else plain}{t}><v>{1 if v else 0}</v></c>'
+                   if v is not None else (f'<c r="{letter}{_ROW}"{bad}/>' if f else "")
+                   for v, f in zip(vals, failing)]
         else:
-            out = [f'<c r="{letter}{r}"{bad if f else plain}><v>{v:.16G}</v></c>'
-                   if v is not None else (f'<c r="{letter}{r}"{bad}/>' if f else "")
-                   for r, v, f in zip(refs, vals, failing)]
+            out = [f'<c r="{letter}{_ROW}"{bad if f else plain}><v>{v:.16G}</v></c>'
+                   if v is not None else (f'<c r="{letter}{_ROW}"{bad}/>' if f else "")
+                   for v, f in zip(vals, failing)]
         for k, (fmt, text) in why.items():
-            out[k] = f'<c r="{letter}{r0 + 1 + k}"{xml.s(fmt)}{xml.text(text)}'
-        columns.append(out)
+            out[k] = f'<c r="{letter}{_ROW}"{xml.s(fmt)}{xml.text(text)}'
+        args.append(out)
+        parts[False].append("%s")
+        parts[True].append("%s")
+    template = {f: "".join(p) for f, p in parts.items()}
     rows = []
     last = None
-    for r, cells in zip(refs, zip(*columns)):
-        body = "".join(cells)
+    for r, f, values in zip(range(r0 + 1, r0 + 1 + m), failing, zip(*args)):
+        body = template[f] % values
         if body:
-            rows.append(f'<row r="{r}">{body}</row>')
+            rows.append(f'<row r="{r}">{body.replace(_ROW, str(r))}</row>')
             last = r - 1
     if last is None:
         return
