@@ -52,8 +52,9 @@ so and where the full table is (on screen, and in the Parquet files beside the w
 
 Safety of text
 --------------
-User text (title, notes, summary, study values, flags...) is written with ``write_string``
-only, in a workbook opened with ``strings_to_formulas``, ``strings_to_numbers`` and
+User text (title, notes, summary, study values, flags...) is written as text cells only
+(``write_string``, or in a table the same inline-string XML, escaped by the library's own
+functions), in a workbook opened with ``strings_to_formulas``, ``strings_to_numbers`` and
 ``strings_to_urls`` all off, so no text ever becomes a formula, number or link. Text starting
 with = + - @ tab or CR also gets the "quote prefix" cell style, so editing the cell later in a
 spreadsheet program keeps it text. NaN and infinities become empty cells, never error values.
@@ -102,8 +103,8 @@ CAP_FORMAT = '[>=1000000]0.0#,," µF";[>=1000]0.0#," nF";0.0#" pF"'
 CAP_HEADER = "C [pF]"
 PRINT_ROWS = 200            # data rows of Designs and Points in the default print area
 #: rows of the Designs sheet, best-ranked first; designs.parquet holds every design. 10 000
-#: rows of 56 columns write in about 3 s on a loaded 2-core machine, most of it the
-#: spreadsheet library's own per-cell work [measured: tests/benchmarks/workbook_rows.py]
+#: rows of 56 columns write in about 1.1-1.4 s on a loaded 2-core machine, about half of it the
+#: zip compression of the file [measured: tests/benchmarks/workbook_rows.py]
 DESIGNS_ROWS = 10_000
 _PART_COLUMNS = ("ra_ohm", "rb_ohm", "r_ohm", "c_f")
 _FIXED = {"pct": "0.0%", "fixed1": "0.0", "fixed2": "0.00", "fixed3": "0.000", "int": "0"}
