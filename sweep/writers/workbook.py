@@ -605,7 +605,7 @@ def _rows_xml(ws, fm: _TableFormats, cols: list[_Col], block: np.ndarray, fails,
     xml = _CellXml(ws)
     fail = np.asarray(fails if fails is not None else np.zeros(m, bool), dtype=bool)
     failing = fail.tolist()
-    plan = []           # per column: kind, letter, values, plain and failing format, extras
+    plan = []   # per column: kind, index, values, plain format (text: cells), failing one, extras
     for i, c in enumerate(cols):
         vals = block[:, i].tolist()
         colfmt = ws.col_info[i].column_format if i in ws.col_info else None
