@@ -52,8 +52,9 @@ so and where the full table is (on screen, and in the Parquet files beside the w
 
 Safety of text
 --------------
-User text (title, notes, summary, study values, flags...) is written with ``write_string``
-only, in a workbook opened with ``strings_to_formulas``, ``strings_to_numbers`` and
+User text (title, notes, summary, study values, flags...) is written as text cells only
+(``write_string``, or in a table the same inline-string XML, escaped by the library's own
+functions), in a workbook opened with ``strings_to_formulas``, ``strings_to_numbers`` and
 ``strings_to_urls`` all off, so no text ever becomes a formula, number or link. Text starting
 with = + - @ tab or CR also gets the "quote prefix" cell style, so editing the cell later in a
 spreadsheet program keeps it text. NaN and infinities become empty cells, never error values.
@@ -69,7 +70,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import xlsxwriter
-from xlsxwriter.utility import xl_rowcol_to_cell
+import xlsxwriter.utility
+from xlsxwriter.utility import xl_col_to_name, xl_rowcol_to_cell
 
 from sweep.report import Report
 from sweep.writers.atomic import atomic_path
@@ -101,8 +103,8 @@ CAP_FORMAT = '[>=1000000]0.0#,," µF";[>=1000]0.0#," nF";0.0#" pF"'
 CAP_HEADER = "C [pF]"
 PRINT_ROWS = 200            # data rows of Designs and Points in the default print area
 #: rows of the Designs sheet, best-ranked first; designs.parquet holds every design. 10 000
-#: rows of 56 columns write in about 3 s on a loaded 2-core machine, most of it the
-#: spreadsheet library's own per-cell work [measured: tests/benchmarks/workbook_rows.py]
+#: rows of 56 columns write in about 1.1-1.4 s on a loaded 2-core machine, about half of it the
+#: zip compression of the file [measured: tests/benchmarks/workbook_rows.py]
 DESIGNS_ROWS = 10_000
 _PART_COLUMNS = ("ra_ohm", "rb_ohm", "r_ohm", "c_f")
 _FIXED = {"pct": "0.0%", "fixed1": "0.0", "fixed2": "0.00", "fixed3": "0.000", "int": "0"}
@@ -460,10 +462,13 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
                  fail_props: dict | None = None) -> int:
     """Header at first_row, data below; returns the last row written (0-based).
 
-    Rows are written strictly in order (constant_memory). Plain rows go through ``write_row``
-    per run of numeric columns, taking each column's format from ``set_column``; text cells go
-    through ``write_string``; rows where ``fail`` is true take each column's failing format.
-    Every format is made once per column before the rows (``_TableFormats``)."""
+    Rows are written strictly in order (constant_memory). Plain cells take their column's
+    format from ``set_column`` (text cells their own); rows where ``fail`` is true take each
+    column's failing format. Every format is made once per column before the rows
+    (``_TableFormats``). The rows go to the sheet as cell XML made a column at a time
+    (``_rows_xml``); the per-cell calls below it write the same cells where that cannot be
+    used: plain rows through ``write_row`` per run of numeric columns and ``write_string``,
+    failing rows cell by cell."""
     for i, c in enumerate(cols):
         ws.set_column(i, i, c.width, st.get(**c.cell_props()))
     _header_row(ws, st, first_row, [c.header for c in cols], [c.width for c in cols])
@@ -479,14 +484,18 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
             runs.append((start, i))
             start = None
     fm = _TableFormats(st, cols, fail_props or {})
+    fast = _rows_xml_ok(ws, cols, n)
     for lo in range(0, n, _CHUNK):
         hi = min(n, lo + _CHUNK)
         block = np.empty((hi - lo, len(cols)), dtype=object)
         for i, c in enumerate(cols):
             block[:, i] = _cell_objects(c, lo, hi)
-        rows = block.tolist()
         fails = None if fail is None else np.asarray(fail[lo:hi], dtype=bool).tolist()
         r = first_row + 1 + lo
+        if fast:
+            _rows_xml(ws, fm, cols, block, fails, r, lo)
+            continue
+        rows = block.tolist()
         for k, row in enumerate(rows):
             failing = fails is not None and fails[k]
             if failing:
@@ -506,6 +515,184 @@ def _write_table(ws, st: _Styles, cols: list[_Col], first_row: int, fail=None,
             r += 1
     return first_row + n
 
+
+# --- rows as cell XML --------------------------------------------------------------------------
+# The spreadsheet library spends ~7 µs on each cell it is given one at a time (checks, a stored
+# tuple, then the cell's XML): 4 s for the Designs sheet's 10 000 rows x 56 columns [measured].
+# In its constant_memory mode it writes each finished row's XML straight to the sheet's row
+# file, so a table's rows can go there as the same XML, made a column at a time. The cells are
+# the ones the per-cell calls make, attribute for attribute (cell reference, style, type, value
+# as ``.16G``, inline text escaped the library's own way); tests/writers/test_fast_rows.py
+# checks that both ways give the same workbook cell by cell, and the per-cell calls remain for
+# any worksheet where the library does not look as this expects.
+_ROW_FILE_PARTS = ("fh", "previous_row", "table", "_write_single_row", "_check_dimensions",
+                   "_escape_data", "_escape_control_characters", "xls_strmax")
+#: the library's own test for text that keeps its leading or trailing spaces
+_PRESERVE = getattr(xlsxwriter.utility, "_preserve_whitespace", None)
+
+
+def _rows_xml_ok(ws, cols: list[_Col], n: int) -> bool:
+    """The rows of this table can be written as cell XML (constant_memory, the library's
+    row-file parts present, no text long enough to need the library's truncation)."""
+    if not n or not getattr(ws, "constant_memory", False) or _PRESERVE is None or \
+            not all(hasattr(ws, a) for a in _ROW_FILE_PARTS):
+        return False
+    half = ws.xls_strmax // 2
+    for c in cols:
+        for texts in ((c.values if c.kind == "text" else None), c.empty_text):
+            if texts is not None and len(texts) and max(map(len, texts)) > half:
+                return False
+    return True
+
+
+class _CellXml:
+    """The XML of one table's cells, each distinct style attribute and text made once."""
+
+    def __init__(self, ws):
+        self.ws = ws
+        self._text: dict[str, str] = {}
+        self._first: dict[int, tuple[int, int, object]] = {}
+
+    def use(self, fmt, row: int | None, col: int) -> None:
+        """Note that a cell at (row, col) of this chunk takes ``fmt`` (no row: no cell does)."""
+        if fmt is not None and row is not None:
+            key = id(fmt)
+            if key not in self._first or (row, col) < self._first[key][:2]:
+                self._first[key] = (row, col, fmt)
+
+    def used(self, fmt) -> bool:
+        return id(fmt) in self._first
+
+    def number_formats(self) -> None:
+        """Number the formats used as the library does: in the order cells first use them, row
+        by row (so the style table comes out as with per-cell calls)."""
+        for _r, _c, fmt in sorted(self._first.values(), key=lambda t: t[:2]):
+            fmt._get_xf_index()
+
+    @staticmethod
+    def s(fmt) -> str:
+        """The style attribute of a cell of format ``fmt`` (none for no format)."""
+        return "" if fmt is None else f' s="{fmt._get_xf_index()}"'
+
+    def text(self, string: str) -> str:
+        """What follows a text cell's attributes: the inline string as the library writes it."""
+        out = self._text.get(string)
+        if out is None:
+            ws = self.ws
+            t = ws._escape_control_characters(string)
+            if t.startswith("<r>") and t.endswith("</r>"):
+                out = f' t="inlineStr"><is>{t}</is></c>'
+            else:
+                keep = ' xml:space="preserve"' if _PRESERVE(t) else ""
+                out = f' t="inlineStr"><is><t{keep}>{ws._escape_data(t)}</t></is></c>'
+            self._text[string] = out
+        return out
+
+
+_ROW = "\x00"   # where a cell XML template takes its row number (escaped text never holds it)
+
+
+def _first(mask: np.ndarray) -> int | None:
+    hit = np.flatnonzero(mask)
+    return int(hit[0]) if hit.size else None
+
+
+def _rows_xml(ws, fm: _TableFormats, cols: list[_Col], block: np.ndarray, fails, r0: int,
+              lo: int) -> None:
+    """Rows r0.. (0-based) of a table as the library's cell XML, straight to the sheet's row
+    file: the same cells, formats and order as the per-cell calls of ``_write_table``."""
+    m = block.shape[0]
+    xml = _CellXml(ws)
+    fail = np.asarray(fails if fails is not None else np.zeros(m, bool), dtype=bool)
+    failing = fail.tolist()
+    plan = []   # per column: kind, index, values, plain format (text: cells), failing one, extras
+    for i, c in enumerate(cols):
+        vals = block[:, i].tolist()
+        colfmt = ws.col_info[i].column_format if i in ws.col_info else None
+        bad = fm.fail_format[i]
+        why = {}
+        if c.kind == "text":
+            # the format of each (text, failing) pair, noted at the row that first has it
+            texts, keys = fm.text[i], {}
+            for k, (v, f) in enumerate(zip(vals, failing)):
+                if (v, f) in keys:
+                    continue
+                if f:
+                    fmt = fm.get(fm.fail[i], v) if v.startswith(_DANGER) else bad
+                elif v:
+                    fmt = fm.get(texts.get(v, texts[None]), v)
+                    fmt = colfmt if fmt is None else fmt
+                else:
+                    keys[(v, f)] = None
+                    continue
+                keys[(v, f)] = (fmt,)       # a cell, with or without a format
+                xml.use(fmt, k, i)
+            plan.append((c.kind, i, vals, keys, None, why, None))
+            continue
+        v = c.values[lo:lo + m]                      # None where a number is not finite
+        none = ~np.isfinite(v) if c.kind == "num" and v.dtype.kind == "f" else np.zeros(m, bool)
+        if c.empty_text is not None:
+            texts = c.empty_text[lo:lo + m]
+            for k in np.flatnonzero(none & (texts != "")):
+                fmt = fm.get(fm.why[i][failing[k]], texts[k])
+                why[int(k)] = (fmt, texts[k])
+                xml.use(fmt, int(k), i)
+        taken = np.zeros(m, bool)
+        taken[list(why)] = True
+        xml.use(colfmt, _first(~fail & ~none), i)
+        xml.use(bad, _first(fail & ~taken), i)
+        plan.append((c.kind, i, vals, colfmt, bad, why, bool(none.any())))
+    ws._write_single_row(r0)          # the row before (the header) goes out first, as it would
+    xml.number_formats()
+    # each row is one template (plain or failing) filled in one step: a column whose cells all
+    # exist puts its format and value spec in the template, any other column its made cells
+    parts: dict[bool, list[str]] = {False: [], True: []}
+    args = []
+    for kind, i, vals, plain, bad, why, gaps in plan:
+        letter = xl_col_to_name(i)
+        if kind == "text":
+            made = {key: ("" if cell is None else
+                          f'<c r="{letter}{_ROW}"{xml.s(cell[0])}{xml.text(key[0])}')
+                    for key, cell in plain.items()}
+            args.append([made[key] for key in zip(vals, failing)])
+            parts[False].append("%s")
+            parts[True].append("%s")
+            continue
+        # a format no cell takes gets no number (the library numbers only formats in use)
+        plain, bad = (xml.s(f) if xml.used(f) else "" for f in (plain, bad))
+        t = ' t="b"' if kind == "bool" else ""
+        if not gaps:
+            spec = "%d" if kind == "bool" else "%.16G"       # as the library writes the value
+            parts[False].append(f'<c r="{letter}{_ROW}"{plain}{t}><v>{spec}</v></c>')
+            parts[True].append(f'<c r="{letter}{_ROW}"{bad}{t}><v>{spec}</v></c>')
+            args.append(vals)
+            continue
+        if kind == "bool":
+            out = [f'<c r="{letter}{_ROW}"{bad if f else plain}{t}><v>{1 if v else 0}</v></c>'
+                   if v is not None else (f'<c r="{letter}{_ROW}"{bad}/>' if f else "")
+                   for v, f in zip(vals, failing)]
+        else:
+            out = [f'<c r="{letter}{_ROW}"{bad if f else plain}><v>{v:.16G}</v></c>'
+                   if v is not None else (f'<c r="{letter}{_ROW}"{bad}/>' if f else "")
+                   for v, f in zip(vals, failing)]
+        for k, (fmt, text) in why.items():
+            out[k] = f'<c r="{letter}{_ROW}"{xml.s(fmt)}{xml.text(text)}'
+        args.append(out)
+        parts[False].append("%s")
+        parts[True].append("%s")
+    template = {f: "".join(p) for f, p in parts.items()}
+    rows = []
+    last = None
+    for r, f, values in zip(range(r0 + 1, r0 + 1 + m), failing, zip(*args)):
+        body = template[f] % values
+        if body:
+            rows.append(f'<row r="{r}">{body.replace(_ROW, str(r))}</row>')
+            last = r - 1
+    if last is None:
+        return
+    ws.fh.write("".join(rows))
+    ws._check_dimensions(last, len(cols) - 1)
+    ws.previous_row = last
 
 # --- sheets ------------------------------------------------------------------------------------
 _SUMMARY_CHARS = 4 * 14 + 44   # columns B-F
