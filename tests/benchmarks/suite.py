@@ -24,6 +24,7 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 sys.path.insert(0, str(HERE.parents[1]))
 
+import corners as corners_bench        # noqa: E402
 import engine as engine_bench          # noqa: E402
 import workbook_rows                   # noqa: E402
 from sweep.analysis import monte_carlo_block  # noqa: E402
@@ -176,6 +177,7 @@ def main() -> None:
         print(json.dumps(figures))
         return
     figures.update(engine_bench.measure())
+    figures.update(corners_bench.figures())
     figures.update(monte_carlo_rate())
     wb = workbook_rows.measure(100_000, 10_000)
     figures.update({"workbook_rows_per_s": wb["workbook_rows_per_s"],
