@@ -39,8 +39,8 @@ DEFAULT_CHUNK = 1 << 14        # points per block: arrays stay in the core's cac
 #: pipeline.analyse). Blocks of DEFAULT_CHUNK suit one plain sweep; an analysis block makes four
 #: model calls, and since the corners are factored (spreads.Corners) its arrays are smaller than
 #: its point count says, so bigger blocks spread each call's fixed cost (measured on bike-light's
-#: pass 1: 1.10 s in 51 blocks of DEFAULT_CHUNK, 0.33 s in 8 of 8x that; on a 1e6-point
-#: astable-diode study, where the kernel runs the plain sweeps, 8x is as fast as 1x-4x).
+#: pass 1: 1.10 s in 51 blocks of DEFAULT_CHUNK, 0.33 s in 8 of 8x that; on a 1e8-point astable
+#: sweep run by the kernel, blocks of 32x ran at half the speed of 8x).
 ANALYSIS_CHUNK = 8 * DEFAULT_CHUNK
 TIMING = ("high_time_s", "low_time_s", "period_s", "pulse_width_s", "timeout_s")
 SPEC_MISS = np.uint32(FLAG_BITS["spec-miss"])
@@ -69,9 +69,10 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     """Evaluate designs x [builds x] conditions of one case. Inputs are 1-D arrays per study
     key; the result arrays have shape (designs, builds, conditions) (builds = 1 without a
     variation), or (designs, spread axes..., conditions) for the worst case's factored corners
-    (spreads.Corners) on the numpy model, (designs, corners, conditions) on the kernel. ideal: every non-ideality off (default: the case's). compiled: use the compiled
-    kernel (None: when the case's sweep is big enough to pay for loading it and the kernel
-    covers the circuit, see physics.kernel.wanted)."""
+    (spreads.Corners) on the numpy model, (designs, corners, conditions) on the kernel. ideal:
+    every non-ideality off (default: the case's). compiled: use the compiled kernel (None: when
+    the case's sweep is big enough to pay for loading it and the kernel covers the circuit, see
+    physics.kernel.wanted)."""
     ideal = case.ideal if ideal is None else ideal
     if case.grades and "grade" in design:      # part grades: each with its own parts
         return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
