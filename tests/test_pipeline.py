@@ -46,3 +46,26 @@ def test_a_design_missing_from_the_file_means_evaluate(tmp_path):
     with TableWriter(path) as w:
         w.add(points_of(st, np.array([1, 2]), st.n_points, ideal=False))
     assert stored_points(st, path, np.array([2, 4]), 100) is None
+
+
+def test_stored_points_read_whole_only_the_row_groups_holding_the_designs(tmp_path, monkeypatch):
+    # a points file can hold millions of rows: reading it whole to pick a few designs' rows
+    # peaked at 1.2 GiB for 5e6 points; only the groups that hold a wanted design are read whole
+    import pyarrow.parquet as pq
+    st = parse_study(STUDY)
+    path = tmp_path / "points.parquet"
+    with TableWriter(path) as w:              # one design per row group (group = 1 row)
+        for d in range(1, st.n_designs + 1):
+            w.add(points_of(st, np.array([d]), st.n_points, ideal=False))
+    assert pq.ParquetFile(path).num_row_groups == st.n_designs
+    whole = []
+    read = pq.ParquetFile.read_row_group
+
+    def counting(self, i, columns=None, **kw):
+        if columns is None:
+            whole.append(i)
+        return read(self, i, columns=columns, **kw)
+    monkeypatch.setattr(pq.ParquetFile, "read_row_group", counting)
+    got = stored_points(st, path, np.array([3]), 100)
+    assert whole == [2]                        # design 3's group alone
+    pd.testing.assert_frame_equal(got, points_of(st, np.array([3]), 100, ideal=False))
