@@ -77,16 +77,17 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     if case.grades and "grade" in design:      # part grades: each with its own parts
         return _evaluate_graded(case, design, conditions, ideal=ideal, variation=variation,
                                 with_spec=with_spec, compiled=compiled)
+    factored = variation is not None and _axes(variation) > 1
     if compiled is None:
-        compiled = kernel.wanted(case.circuit, case.timer, case.parts, case.load, ideal, case.points)
-        if compiled and variation is not None and _axes(variation) > 1:
-            # factored corners (spreads.Corners): numpy's broadcasting evaluates each step once
-            # per combination of the spreads it depends on; the kernel evaluates every corner in
-            # full, but 3-4x faster per point. Measured with tests/benchmarks/corners.py: the
-            # astable-diode's Shockley charge makes the factored corners 3.4x the kernel's
-            # speed; on the plain astable the kernel is 1.7x the factored corners' speed.
-            compiled = case.circuit not in FACTORED_CORNERS
-    if compiled and variation is not None and _axes(variation) > 1:
+        # the worst case's factored corners (spreads.Corners) stay on the numpy model, whose
+        # broadcasting evaluates each step once per combination of the spreads it depends on;
+        # the kernel would evaluate every corner in full. Measured with
+        # tests/benchmarks/corners.py at the analysis's block size: factored 1.6x the kernel's
+        # speed on the astable-diode, 1.2x on the astable; pass 1 of a 1e8-point astable sweep
+        # ran as fast either way (395-422 k points/s)
+        compiled = not factored and kernel.wanted(case.circuit, case.timer, case.parts, case.load,
+                                                  ideal, case.points)
+    if compiled and factored:
         variation = _one_corner_axis(variation)       # the kernel takes one build axis
     # builds take one axis; the worst case's corners one per spread (spreads.Corners)
     middle = 1 if variation is None else _axes(variation)
@@ -123,11 +124,6 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     if with_spec and case.spec:
         out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(case, out), SPEC_MISS, np.uint32(0))
     return out
-
-
-#: circuits whose worst-case corners run factored on the numpy model even where the kernel runs
-#: the sweep (see evaluate_block)
-FACTORED_CORNERS = ("astable-diode",)
 
 
 def _axes(variation: Variation) -> int:

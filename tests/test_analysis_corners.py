@@ -161,8 +161,8 @@ def test_the_worst_case_is_the_extreme_of_every_corner_evaluated_in_full():
 
 @pytest.mark.parametrize("study", _studies())
 def test_the_kernel_on_every_corner_in_full_agrees_with_the_factored_corners(study):
-    # where the compiled kernel runs a big sweep's corners it evaluates them flattened into one
-    # axis: the same figures as the factored numpy evaluation, to the kernel's 1e-12
+    # asked to run the corners, the compiled kernel evaluates them flattened into one axis: the
+    # same figures as the factored numpy evaluation, to the kernel's 1e-12
     from sweep.physics import kernel
     if study.circuit not in kernel.COMPILED or not kernel.available():
         pytest.skip("the kernel does not cover this circuit")

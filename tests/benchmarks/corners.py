@@ -1,7 +1,8 @@
 """Worst-case corners benchmark: the factored corners (every spread on an axis of its own, as the
 analysis evaluates them) against every corner written out in full, on the numpy model and on the
 compiled kernel, same designs, same run (alternating, medians). Figures are corner evaluations
-per second: designs x corners x conditions over the time. Ends with one JSON line.
+per second: designs x corners x conditions over the time. The designs are as many as one of the
+analysis's blocks holds (engine.ANALYSIS_CHUNK), unless --designs says. Ends with one JSON line.
 
     python tests/benchmarks/corners.py [--designs N] [--repeats K]
 
@@ -22,7 +23,7 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
 from sweep.case import axis_values                     # noqa: E402
-from sweep.engine import _one_corner_axis, evaluate_block  # noqa: E402
+from sweep.engine import ANALYSIS_CHUNK, _one_corner_axis, evaluate_block  # noqa: E402
 from sweep.spreads import worst_case_corners           # noqa: E402
 from sweep.study import load_study, parse_study        # noqa: E402
 
@@ -45,10 +46,12 @@ resistance = "1k"
 """
 
 
-def _case(study, designs: int, repeats: int) -> dict:
-    design = axis_values(study.design, np.arange(min(designs, study.n_designs)))
+def _case(study, designs: int | None, repeats: int) -> dict:
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     corners = worst_case_corners(study, cond, False)
+    if designs is None:        # one analysis block (pipeline.analyse sizes them so)
+        designs = max(1, ANALYSIS_CHUNK // (study.n_conditions * (1 + corners.count)))
+    design = axis_values(study.design, np.arange(min(designs, study.n_designs)))
     full = _one_corner_axis(corners.variation)
     runs = {"factored": lambda: evaluate_block(study.case, design, cond, variation=corners.variation,
                                                with_spec=False, compiled=False),
@@ -68,7 +71,7 @@ def _case(study, designs: int, repeats: int) -> dict:
     return {k: n / statistics.median(v) for k, v in times.items()} | {"evaluations": n}
 
 
-def figures(designs: int = 2000, repeats: int = 5) -> dict:
+def figures(designs: int | None = None, repeats: int = 5) -> dict:
     out = {}
     studies = {"astable_diode": load_study(HERE.parents[1] / "studies" / "bike-light.toml"),
                "astable": parse_study(ASTABLE, "astable.toml")}
@@ -86,7 +89,7 @@ def figures(designs: int = 2000, repeats: int = 5) -> dict:
 
 def main() -> None:
     ap = argparse.ArgumentParser()
-    ap.add_argument("--designs", type=int, default=2000)
+    ap.add_argument("--designs", type=int, default=None)
     ap.add_argument("--repeats", type=int, default=5)
     a = ap.parse_args()
     print(json.dumps(figures(a.designs, a.repeats)))
