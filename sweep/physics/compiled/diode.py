@@ -20,10 +20,9 @@ import numpy as np
 from numba import njit
 
 from ..nodes import GL_W, GL_X
-from .stages import (A, A_DUMP, A_PEAK, A_PRES, C, CTF, DISCHARGE, DIS_MAX, F_MAX, GLEAK, H, IDRAW,
-                     IREV, ISAT, NVT, OPTS, OVERPOWERED, P_MAX, RA, RB, RF, RS, S0, S1, S2, STRAY,
-                     SURGE_A, SURGE_E_MAX, THETA, TJ_MAX, TPD, VCC, VS, VUP, cycle_sums, rate_flags,
-                     _cap_at, _cap_at_fraction, _fmax, _fmin, _linear_time)
+from .stages import (A, C, CTF, F_MAX, GLEAK, H, IDRAW, IREV, ISAT, NVT, OPTS, RA, RB, RF, RS, S0,
+                     S1, S2, STRAY, SURGE_A, THETA, TJ_MAX, TPD, VCC, VS, VUP, cycle_sums,
+                     rate_flags, surge_row, _cap_at, _cap_at_fraction, _fmax, _fmin, _linear_time)
 
 N_GL = len(GL_X)           # Gauss-Legendre nodes of nodes.quadrature_phase
 _GL_X = np.array(GL_X, dtype=np.float64)
@@ -504,8 +503,7 @@ def finish_discharge(t, sc, quad, m, d, out, flags, o):
     """The discharge transistor's peak and steady current, RA's dissipation and the turn-on
     surge through RB, and their flags [circuits._astable.cycle, network.surge, model._flags],
     adding to flags. LS holds the surge's logarithm."""
-    rs, stray = sc[RS], sc[STRAY]
-    surge_a, dis_max, e_max, p_max = sc[SURGE_A], sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
+    stray = sc[STRAY]
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
@@ -513,23 +511,6 @@ def finish_discharge(t, sc, quad, m, d, out, flags, o):
         v_bot, v_top = d[VBOT, p], d[VTOP, p]
         scale, stray, s0, s1, s2, a, h = _cap(t, p, stray)
         v_lo = 0.5 * t[VUP, p]
-        vd_top = a_d + b_d * v_top
-        dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
-        vd_bot = a_d + b_d * v_bot
-        steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
-        i_start = d[I0, p]
-        p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
         c_mean = _cap_at(quad, 0.5 * (v_lo + v_top), scale, stray, s0, s1, s2, a, h)
-        energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
-        r_eff = _fmax(rs, v_top / surge_a - rb_t)
-        e_tr = energy * r_eff / (r_eff + rb_t)
-        r_loop = rs + rb_t
-        v_knee = _fmin(v_top, surge_a * r_loop)
-        t_cc = c_mean * (v_top - v_knee) / surge_a
-        out[A_PEAK, q] = dis_peak
-        out[A_PRES, q] = p_res
-        out[A_DUMP, q] = t_cc + (c_mean * r_loop) * d[LS, p]
-        f = flags[q]
-        f |= DISCHARGE if (steady > dis_max) | (e_tr > e_max) else np.uint32(0)
-        f |= OVERPOWERED if p_res > p_max else np.uint32(0)
-        flags[q] = f
+        surge_row(sc, vcc, ra_t, rb_t, a_d, b_d, v_bot, v_top, v_lo, d[I0, p], c_mean, d[LS, p],
+                  out, flags, q)

@@ -385,12 +385,39 @@ def astable_rates(t, sc, m, out, flags, o):
 
 
 @njit(**OPTS)
+def surge_row(sc, vcc, ra_t, rb_t, a_d, b_d, v_bot, v_top, v_lo, i_start, c_mean, log_surge,
+              out, flags, q):
+    """One point's discharge peak and steady current, RA's dissipation and the turn-on surge
+    through RB into out and flags (the astables' shared arithmetic) [circuits._astable.cycle,
+    network.surge, model._flags]: i_start is RA's current as the charge starts, c_mean the
+    capacitance at the swing's middle, log_surge the surge's logarithm."""
+    rs, surge_a = sc[RS], sc[SURGE_A]
+    vd_top = a_d + b_d * v_top
+    dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
+    vd_bot = a_d + b_d * v_bot
+    steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
+    p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
+    energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
+    r_eff = _fmax(rs, v_top / surge_a - rb_t)
+    e_tr = energy * r_eff / (r_eff + rb_t)
+    r_loop = rs + rb_t
+    v_knee = _fmin(v_top, surge_a * r_loop)
+    t_cc = c_mean * (v_top - v_knee) / surge_a
+    out[A_PEAK, q] = dis_peak
+    out[A_PRES, q] = p_res
+    out[A_DUMP, q] = t_cc + (c_mean * r_loop) * log_surge
+    f = flags[q]
+    f |= DISCHARGE if (steady > sc[DIS_MAX]) | (e_tr > sc[SURGE_E_MAX]) else np.uint32(0)
+    f |= OVERPOWERED if p_res > sc[P_MAX] else np.uint32(0)
+    flags[q] = f
+
+
+@njit(**OPTS)
 def astable_discharge(t, sc, quad, m, e, lg, out, flags, o):
     """The discharge transistor's peak and steady current, RA's dissipation and the turn-on
     surge through RB, and their flags [model._astable, model._surge, model._flags], adding to
     flags. lg[2] holds the surge's logarithm."""
-    rs, stray = sc[RS], sc[STRAY]
-    surge_a, dis_max, e_max, p_max = sc[SURGE_A], sc[DIS_MAX], sc[SURGE_E_MAX], sc[P_MAX]
+    stray = sc[STRAY]
     for p in range(m):
         q = np.uint64(o + p)
         vcc = t[VCC, p]
@@ -399,27 +426,11 @@ def astable_discharge(t, sc, quad, m, e, lg, out, flags, o):
         v_lo = 0.5 * t[VUP, p]
         v_bot = e[0, p]
         v_top = e[1, p]
-        vd_top = a_d + b_d * v_top
-        dis_peak = _fmin((vcc - vd_top) / ra_t + (v_top - vd_top) / rb_t, surge_a)
-        vd_bot = a_d + b_d * v_bot
-        steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
         i_start = (vcc - v_bot) / (ra_t + rb_t)
-        p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
         c_mean = _cap_at(quad, 0.5 * (v_lo + v_top), scale, stray, t[S0, p], t[S1, p], t[S2, p],
                          t[A, p], t[H, p])
-        energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
-        r_eff = _fmax(rs, v_top / surge_a - rb_t)
-        e_tr = energy * r_eff / (r_eff + rb_t)
-        r_loop = rs + rb_t
-        v_knee = _fmin(v_top, surge_a * r_loop)
-        t_cc = c_mean * (v_top - v_knee) / surge_a
-        out[A_PEAK, q] = dis_peak
-        out[A_PRES, q] = p_res
-        out[A_DUMP, q] = t_cc + (c_mean * r_loop) * lg[2, p]
-        f = flags[q]
-        f |= DISCHARGE if (steady > dis_max) | (e_tr > e_max) else np.uint32(0)
-        f |= OVERPOWERED if p_res > p_max else np.uint32(0)
-        flags[q] = f
+        surge_row(sc, vcc, ra_t, rb_t, a_d, b_d, v_bot, v_top, v_lo, i_start, c_mean, lg[2, p],
+                  out, flags, q)
 
 
 @njit(**OPTS)
