@@ -130,6 +130,12 @@ def main() -> None:
     ap.add_argument("--repeats", type=int, default=5)
     a = ap.parse_args()
     f = figures(a.points, a.repeats, a.diode_points)
+    report(f)
+    print(json.dumps(f))
+
+
+def report(f: dict) -> None:
+    """Print the figures of `figures()` as lines of text."""
     print(f"realistic X7R astable, {f['points']:.3g} points in blocks of {DEFAULT_CHUNK}")
     print(f"  kernel      {f['kernel_mpts_s']:8.1f} M points/s")
     print(f"  numpy model {f['numpy_mpts_s']:8.1f} M points/s   (same run, medians)")
@@ -143,7 +149,6 @@ def main() -> None:
     print(f"  first call in a fresh process: {f['first_call_compile_s']:.2f} s compiling, "
           f"{f['first_call_cached_s']:.2f} s from the cache, numpy model "
           f"{f['numpy_first_call_s']:.2f} s")
-    print(json.dumps(f))
 
 
 if __name__ == "__main__":

@@ -26,6 +26,7 @@ sys.path.insert(0, str(HERE.parents[1]))
 
 import corners as corners_bench        # noqa: E402
 import engine as engine_bench          # noqa: E402
+import kernel as kernel_bench          # noqa: E402
 import workbook_rows                   # noqa: E402
 from sweep.analysis import monte_carlo_block  # noqa: E402
 from sweep.study import parse_study    # noqa: E402
@@ -177,6 +178,10 @@ def main() -> None:
         print(json.dumps(figures))
         return
     figures.update(engine_bench.measure())
+    kf = kernel_bench.figures()
+    kernel_bench.report(kf)
+    figures.update({k if k.startswith(("kernel", "diode", "big_block", "first_call"))
+                    else f"kernel_bench_{k}": v for k, v in kf.items()})
     figures.update(corners_bench.figures())
     figures.update(monte_carlo_rate())
     wb = workbook_rows.measure(100_000, 10_000)
