@@ -20,9 +20,28 @@ from sweep.study import load_study, parse_study
 
 EXAMPLES = sorted(Path("studies").glob("*.toml"))
 
-#: variants that switch on the spreads the examples lack: electrolytic leakage, a fixed diode
-#: drop, a bipolar timer, a swept load resistor, a control voltage
+#: variants that switch on the spreads and the circuit the examples lack: electrolytic leakage,
+#: a fixed diode drop, a bipolar timer, a swept load resistor, a control voltage, the
+#: one-resistor astable (charged from the output, so its stage spread times it)
 VARIANTS = {
+    "symmetric-led": """
+[study]
+circuit = "astable-symmetric"
+timer = "bipolar"
+[design]
+r = { series = "E12", min = "1k", max = "1M" }
+c = ["10n", "100n"]
+[conditions]
+vcc = { min = 5, max = 15, steps = 3 }
+temperature = { min = -20, max = 70, steps = 3 }
+[parts]
+capacitor = "X7R"
+[load]
+resistance = "1k"
+to = "ground"
+forward_voltage = "2.0V"
+kind = "led"
+""",
     "electrolytic-bipolar": """
 [study]
 circuit = "astable"
