@@ -117,7 +117,8 @@ class Corners:
     shape (1, 2 or 1 per spread, conditions or 1), so an array that does not depend on a spread
     keeps length 1 on that spread's axis. Broadcasting then evaluates each step of the model once
     per combination of the spreads it depends on: the charge of an astable-diode's capacitor,
-    say, once per corner of RA, C and the diode rather than once per corner of all six spreads.
+    say, once per corner of RA, RB (in parallel with the diode), C and the diode rather than once
+    per corner of all six spreads.
     Every corner's figures are computed with the same arithmetic as when every corner is evaluated
     in full (tests/test_analysis_corners.py compares both element by element); only the
     repetitions are gone.
