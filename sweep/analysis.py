@@ -16,9 +16,11 @@ import numpy as np
 import pandas as pd
 
 from .case import axis_values
-from .engine import (TIMING, Variation, evaluate_block, flag_text,
+from .engine import (TIMING, Variation, can_fold, evaluate_block, flag_text, fold_block,
                      spec_fail)
+from .folds import Extremes, Moments
 from .physics import FLAG_BITS, REGISTRY
+from .physics.compiled.steps import BAND_FREQUENCY, BAND_MARGIN, BAND_NONE, BAND_TIMING
 from .sobol import sobol_points
 from . import grades, values as qv
 from .spreads import (build_spreads, draw_names, tolerance_of, varied_parts,
@@ -151,20 +153,13 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     # timer's drift band
     parts = varied_parts(study)
     corners = worst_case_corners(study, cond, ideal)
-    wc = evaluate_block(study.case, design, cond, ideal=ideal, variation=corners.variation, with_spec=False)
-    band = _band(study, cond, ideal)
-    band = np.reshape(band, (1,) * (wc["flag_mask"].ndim - 1) + (-1,))
+    if can_fold(study.case, design, ideal) and study.circuit in FOLDED_CORNERS:
+        wc_min, wc_max, first_stall = _folded_worst_case(study, design, cond, corners, outs,
+                                                         ideal)
+    else:
+        wc_min, wc_max, first_stall = _worst_case(study, design, cond, corners, outs, ideal)
     for o in outs:
-        v = _unrepeated(wc[o])
-        lo, hi = v, v
-        if o in TIMING:
-            lo, hi = v * (1 - band), v * (1 + band)
-        elif o == "frequency_hz":
-            lo, hi = v / (1 + band), v / (1 - band)
-        elif o == "timeout_margin_s":        # the timeout's band, less the input period
-            lo, hi = v - _unrepeated(wc["timeout_s"]) * band, v + _unrepeated(wc["timeout_s"]) * band
-        row[f"{o}_wc_min"] = _reduce(lo, np.min)
-        row[f"{o}_wc_max"] = _reduce(hi, np.max)
+        row[f"{o}_wc_min"], row[f"{o}_wc_max"] = wc_min[o], wc_max[o]
     # 4. elasticities of the main output at the nominal condition [derived: central difference]
     main = main_outputs(study.circuit)[:1]
     if main and parts:
@@ -193,14 +188,74 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     row["feasible"] = ~limits & ~nom_fail
     row["flag_mask"] = mask
     row["wc_margin"] = _wc_margin(study, row)
-    row["stalls_at"] = stall_text(study, cond, corners, sweep["flag_mask"][:, 0, :],
-                                  wc["flag_mask"].reshape(nd, corners.count, len(c_idx)))
+    row["stalls_at"] = stall_text(study, cond, corners, sweep["flag_mask"][:, 0, :], first_stall)
     df = pd.DataFrame(row)
     df["series_need"], df["distinct_values"] = plainness(study, df)
     df["uncommon"] = uncommon_parts(study, df)
     df["flags"] = flag_text(mask)
     points = points_frame(study, d_idx, c_idx, design, cond, sweep) if opt.keep_points else None
     return df, points
+
+
+#: circuits whose worst case the compiled kernel folds (every corner evaluated in full, each
+#: design's extremes taken tile by tile) where it runs the sweep; the others keep the factored
+#: corners on the numpy model, which evaluate each step once per combination of the spreads it
+#: depends on (measured with tests/benchmarks/corners.py)
+FOLDED_CORNERS = ("astable", "monostable", "missing-pulse")
+
+
+def _widening(o: str) -> int:
+    """How the worst case widens output o by the timer's band (physics.compiled.steps)."""
+    if o in TIMING:
+        return BAND_TIMING
+    if o == "frequency_hz":
+        return BAND_FREQUENCY
+    return BAND_MARGIN if o == "timeout_margin_s" else BAND_NONE
+
+
+def _worst_case(study, design, cond, corners, outs, ideal):
+    """Each output's minimum and maximum over every corner and condition, widened by the timer's
+    band (a timing x (1 -/+ band), a frequency / (1 +/- band), a timeout's margin -/+ the timeout
+    x band), NaN where any is NaN; and each design's first stalling corner x condition (corner
+    * conditions + condition, -1 for none). The corners factored on the numpy model."""
+    wc = evaluate_block(study.case, design, cond, ideal=ideal, variation=corners.variation,
+                        with_spec=False)
+    band = _band(study, cond, ideal)
+    band = np.reshape(band, (1,) * (wc["flag_mask"].ndim - 1) + (-1,))
+    lo_of, hi_of = {}, {}
+    for o in outs:
+        v = _unrepeated(wc[o])
+        lo, hi = v, v
+        w = _widening(o)
+        if w == BAND_TIMING:
+            lo, hi = v * (1 - band), v * (1 + band)
+        elif w == BAND_FREQUENCY:
+            lo, hi = v / (1 + band), v / (1 - band)
+        elif w == BAND_MARGIN:        # the timeout's band, less the input period
+            lo, hi = v - _unrepeated(wc["timeout_s"]) * band, v + _unrepeated(wc["timeout_s"]) * band
+        lo_of[o], hi_of[o] = _reduce(lo, np.min), _reduce(hi, np.max)
+    nd = len(lo_of[outs[0]])
+    mask = wc["flag_mask"]          # every corner written out: corner k is its C-order index
+    full = (nd,) + tuple(2 if i < len(corners.dims) else n
+                         for i, n in enumerate(mask.shape[1:-1])) + mask.shape[-1:]
+    cor = ((np.broadcast_to(mask, full) & STALL_BIT) != 0).reshape(nd, -1)
+    return lo_of, hi_of, np.where(cor.any(1), np.argmax(cor, 1), -1)
+
+
+def _folded_worst_case(study, design, cond, corners, outs, ideal):
+    """_worst_case's figures, every corner evaluated in full by the compiled kernel and each
+    design's extremes folded in tile by tile (engine.fold_block)."""
+    names = list(outs)
+    if "timeout_margin_s" in names and "timeout_s" not in names:
+        names.append("timeout_s")
+    nd = len(next(iter(design.values())))
+    fold = Extremes(names, nd, band=np.atleast_1d(_band(study, cond, ideal)).ravel(),
+                    widen=[_widening(o) for o in names],
+                    partner=[names.index("timeout_s") if o == "timeout_margin_s" else 0
+                             for o in names])
+    fold_block(study.case, design, cond, fold, ideal=ideal, variation=corners.variation)
+    return ({o: fold.minimum(i) for i, o in enumerate(outs)},
+            {o: fold.maximum(i) for i, o in enumerate(outs)}, fold.stall)
 
 
 def mc_columns(study: Study) -> list[str]:
@@ -279,6 +334,39 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
     z = mc_draws(study, n_mc)
     nd = len(next(iter(design.values()))) if design else 1   # no timing parts: one design
     nc = len(next(iter(cond.values())))
+    if can_fold(study.case, design, ideal):
+        ok, s1, s2, shift = _folded_monte_carlo(study, design, cond, outs, z, n_mc, ideal, nd, nc)
+    else:
+        ok, s1, s2, shift = _summed_monte_carlo(study, design, cond, outs, z, n_mc, ideal, nd, nc,
+                                                chunk)
+    n = n_mc * nc
+    mean = {o: s1[o] / n + shift[o] for o in outs}
+    std = {o: np.sqrt(np.maximum(s2[o] / n - (s1[o] / n) ** 2, 0.0) * n / max(n - 1, 1)) for o in outs}
+    return ok / n_mc, mean, std
+
+
+#: Monte Carlo evaluations per kernel call when the kernel folds the sums in (engine.fold_block):
+#: only the inputs and the condition-level arrays scale with it, never the grid of outputs
+FOLD_CHUNK = 1 << 18
+
+
+def _folded_monte_carlo(study, design, cond, outs, z, n_mc, ideal, nd, nc):
+    """_summed_monte_carlo's counts and sums, folded inside the compiled kernel."""
+    fold = Moments(list(outs), nd, spec=[(outs.index(s.column), s.lo, s.hi) for s in study.spec],
+                   main=outs.index(main_outputs(study.circuit)[0]) if main_outputs(study.circuit)
+                   else -1)
+    b_step = max(1, FOLD_CHUNK // max(1, nd * nc))
+    for b0 in range(0, n_mc, b_step):
+        sl = slice(b0, min(n_mc, b0 + b_step))
+        fold_block(study.case, design, cond, fold, ideal=ideal,
+                   variation=mc_variation(study, z, sl, cond, ideal))
+    return (fold.ok, dict(zip(outs, fold.s1)), dict(zip(outs, fold.s2)),
+            dict(zip(outs, fold.shift)))
+
+
+def _summed_monte_carlo(study, design, cond, outs, z, n_mc, ideal, nd, nc, chunk):
+    """Good builds, and each output's sum and sum of squares less its first value (the shift,
+    which keeps the variance accurate [derived]), over builds x conditions, per design."""
     b_step = max(1, chunk // max(1, nd * nc))
     ok = np.zeros(nd)
     s1 = {o: np.zeros(nd) for o in outs}
@@ -298,15 +386,12 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
         ok += good.sum(axis=1)
         for o in outs:
             v = out[o]
-            if shift[o] is None:          # shifted sums keep the variance accurate [derived]
+            if shift[o] is None:
                 shift[o] = v[:, :1, :1].copy()
             d = v - shift[o]
             s1[o] += d.sum(axis=(1, 2))
             s2[o] += (d * d).sum(axis=(1, 2))
-    n = n_mc * nc
-    mean = {o: s1[o] / n + shift[o][:, 0, 0] for o in outs}
-    std = {o: np.sqrt(np.maximum(s2[o] / n - (s1[o] / n) ** 2, 0.0) * n / max(n - 1, 1)) for o in outs}
-    return ok / n_mc, mean, std
+    return ok, s1, s2, {o: shift[o][:, 0, 0] for o in outs}
 
 
 def _wc_margin(study: Study, row: dict) -> np.ndarray:
@@ -348,17 +433,15 @@ def _condition_words(study: Study, cond: dict[str, np.ndarray], i: int) -> str:
 
 
 def stall_text(study: Study, cond: dict[str, np.ndarray], corners, nominal_mask: np.ndarray,
-               corner_mask: np.ndarray) -> np.ndarray:
+               first_stall: np.ndarray) -> np.ndarray:
     """Where each design first stalls (its capacitor never reaches the threshold): with its
     nominal parts at a condition, else at a worst-case corner (spreads.Corners); "" where it
-    never stalls. nominal_mask is (designs, conditions), corner_mask (designs, corners,
-    conditions)."""
+    never stalls. nominal_mask is (designs, conditions); first_stall the first stalling corner
+    x condition of each design (corner * conditions + condition), -1 for none."""
     nd, nc = nominal_mask.shape
     nom = (nominal_mask & STALL_BIT) != 0
-    cor = ((np.broadcast_to(corner_mask, (nd, corner_mask.shape[1], nc)) & STALL_BIT) != 0
-           ).reshape(nd, -1)
-    code = np.where(nom.any(1), np.argmax(nom, 1),
-                    np.where(cor.any(1), nc + np.argmax(cor, 1), -1))
+    first = np.asarray(first_stall)
+    code = np.where(nom.any(1), np.argmax(nom, 1), np.where(first >= 0, nc + first, -1))
     uniq, inv = np.unique(code, return_inverse=True)
     labels = []
     for u in uniq.tolist():

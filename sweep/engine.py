@@ -16,6 +16,7 @@ import numpy as np
 
 from .case import Case, axis_values
 from .physics import FLAG_BITS, REGISTRY, evaluate, flag_names, kernel
+from .physics.compiled.steps import INTO, LESS, OVER, PLAIN, TIMES, TIMES_LESS
 
 __all__ = ["Case", "Variation", "axis_values", "battery_life_h", "design_blocks",
            "evaluate_block",
@@ -89,7 +90,30 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
                                                   ideal, case.points)
     if compiled and factored:
         variation = _one_corner_axis(variation)       # the kernel takes one build axis
-    # builds take one axis; the worst case's corners one per spread (spreads.Corners)
+    kw, spreads = _inputs(design, conditions, variation)
+    model = kernel.evaluate if compiled else evaluate
+    out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
+    if variation is not None and not ideal:
+        # timer accuracy and drift act on every timed phase as a relative error [ds-bip]; the
+        # worst case's corners carry none (the analysis adds the timer's band), and multiplying
+        # by exactly 1 would change nothing
+        err = _timer_error(case, variation, kw)
+        if err is not None:
+            for k in TIMING:
+                out[k] = out[k] * err
+            out["frequency_hz"] = out["frequency_hz"] / err
+        if "input_period" in kw:
+            out["timeout_margin_s"] = out["timeout_s"] - kw["input_period"]
+    out["battery_life_h"] = battery_life_h(case, out)
+    if with_spec and case.spec:
+        out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(case, out), SPEC_MISS, np.uint32(0))
+    return out
+
+
+def _inputs(design: dict, conditions: dict, variation: Variation | None) -> tuple[dict, dict]:
+    """The model's keyword inputs: design arrays on the first axis, conditions on the last,
+    builds on one axis between them (the worst case's corners one per spread, spreads.Corners),
+    part multipliers applied; and the variation's spreads."""
     middle = 1 if variation is None else _axes(variation)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
@@ -104,26 +128,68 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
-    model = kernel.evaluate if compiled else evaluate
-    out = model(case.circuit, case.timer, case.parts, case.load, ideal=ideal, **spreads, **kw)
+    return kw, spreads
+
+
+def _timer_error(case: Case, variation: Variation, kw: dict) -> np.ndarray | None:
+    """1 + the timer's relative timing error of each build at each condition [ds-bip]; None
+    where every term is zero (the worst case's corners)."""
+    terms = (variation.accuracy, variation.drift_per_k, variation.supply_per_v)
+    if all(np.ndim(x) == 0 and x == 0 for x in terms):
+        return None
+    dt = kw.get("temperature", 25.0) - 25.0
+    dv = kw.get("vcc", case.nominal_vcc_v) - case.nominal_vcc_v
+    return 1.0 + variation.accuracy + variation.drift_per_k * dt + variation.supply_per_v * dv
+
+
+def can_fold(case: Case, design: dict, ideal: bool | None = None) -> bool:
+    """Whether fold_block can reduce this case's evaluations inside the compiled kernel: the
+    kernel is wanted for its sweep (evaluate_block's choice) and the designs are of one grade."""
+    ideal = case.ideal if ideal is None else ideal
+    return (not (case.grades and "grade" in design)
+            and kernel.wanted(case.circuit, case.timer, case.parts, case.load, ideal, case.points))
+
+
+def fold_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, np.ndarray],
+               fold, *, ideal: bool | None = None, variation: Variation | None = None) -> None:
+    """evaluate_block's outputs for fold.outputs (its `with_spec=False` values, bit for bit
+    given the same model outputs) reduced into fold's accumulators (folds.Moments, Extremes) by
+    the compiled kernel, tile by tile, instead of returned: the grid is never written to
+    memory. The worst case's factored corners go in with their spread axes flattened."""
+    ideal = case.ideal if ideal is None else ideal
+    if variation is not None and _axes(variation) > 1:
+        variation = _one_corner_axis(variation)
+    kw, spreads = _inputs(design, conditions, variation)
+    err = None
     if variation is not None and not ideal:
-        # timer accuracy and drift act on every timed phase as a relative error [ds-bip]; the
-        # worst case's corners carry none (the analysis adds the timer's band), and multiplying
-        # by exactly 1 would change nothing
-        terms = (variation.accuracy, variation.drift_per_k, variation.supply_per_v)
-        if not all(np.ndim(x) == 0 and x == 0 for x in terms):
-            dt = kw.get("temperature", 25.0) - 25.0
-            dv = kw.get("vcc", case.nominal_vcc_v) - case.nominal_vcc_v
-            err = 1.0 + variation.accuracy + variation.drift_per_k * dt + variation.supply_per_v * dv
-            for k in TIMING:
-                out[k] = out[k] * err
-            out["frequency_hz"] = out["frequency_hz"] / err
-        if "input_period" in kw:
-            out["timeout_margin_s"] = out["timeout_s"] - kw["input_period"]
-    out["battery_life_h"] = battery_life_h(case, out)
-    if with_spec and case.spec:
-        out["flag_mask"] = out["flag_mask"] | np.where(spec_fail(case, out), SPEC_MISS, np.uint32(0))
-    return out
+        err = _timer_error(case, variation, kw)
+    recipes = []
+    for o in fold.outputs:                   # evaluate_block's steps, output by output
+        if o == "battery_life_h":
+            if case.battery_capacity_ah is None:
+                recipes.append(("battery_life_h", PLAIN, None, None))    # NaN: no battery
+            else:
+                current = "idle_current_a" if REGISTRY[case.circuit].waits else "supply_current_a"
+                recipes.append((current, INTO, case.battery_capacity_ah * case.battery_usable,
+                                None))
+        elif (o == "timeout_margin_s" and variation is not None and not ideal
+              and "input_period" in kw):
+            recipes.append(("timeout_s", LESS if err is None else TIMES_LESS, err,
+                            kw["input_period"]))
+        elif err is not None and o in TIMING:
+            recipes.append((o, TIMES, err, None))
+        elif err is not None and o == "frequency_hz":
+            recipes.append((o, OVER, err, None))
+        else:
+            recipes.append((o, PLAIN, None, None))
+    fold.recipes = recipes
+    nd = max(len(np.atleast_1d(v)) for v in design.values()) if design else 1
+    nb = 1 if variation is None else max(np.shape(a)[1] if np.ndim(a) > 1 else 1
+                                         for a in _arrays(variation))
+    nc = max(len(np.atleast_1d(v)) for v in conditions.values()) if conditions else 1
+    fold.grid = (nd, nb, nc)
+    kernel.evaluate(case.circuit, case.timer, case.parts, case.load, ideal=ideal, fold=fold,
+                    **spreads, **kw)
 
 
 def _axes(variation: Variation) -> int:

@@ -209,10 +209,18 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
              c=np.nan, ra=np.nan, rb=np.nan, r=np.nan, control_voltage=np.nan,
              leak_factor=1.0, dc_bias_factor=1.0, diode_is_factor=1.0, iq_factor=1.0,
              load_factor=1.0, vf_shift=0.0, stage_factor=1.0,
-             ideal: bool = False, load_resistance=np.nan, input_period=np.nan) -> dict[str, np.ndarray]:
+             ideal: bool = False, load_resistance=np.nan, input_period=np.nan,
+             fold=None) -> dict[str, np.ndarray] | None:
     """`sweep.physics.model.evaluate`, compiled: the same parameters (SI units, broadcasting
     arrays), the same keys, shapes and dtypes, the same values to rounding. Circuits outside
-    COMPILED are passed to the reference."""
+    COMPILED are passed to the reference.
+
+    fold: a reduction folded in tile by tile instead of returning the grid (an object with
+    `grid`, the shape it reduces, and `start(stages, rows, extra, shape3, width)`, which gets
+    the output rows and condition-level outputs and returns the tile function; see
+    sweep.folds). The result is then None, and the grid is never written to memory."""
+    if fold is not None and circuit not in COMPILED:
+        raise ValueError(f"the kernel has no stages for the {circuit} circuit to fold")
     if circuit not in COMPILED:
         return model.evaluate(circuit, timer, parts, load, vcc=vcc, temperature=temperature, c=c,
                               ra=ra, rb=rb, r=r, control_voltage=control_voltage,
@@ -258,6 +266,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     if circuit == "missing-pulse":
         timing.append(t_in)
     shape = np.broadcast_shapes(cond["shape"], *(np.shape(x) for x in [c_nom, g_leak, *timing]))
+    if fold is not None:             # the grid the fold reduces may be wider than the inputs'
+        shape = np.broadcast_shapes(shape, fold.grid)
     shape3 = _shape3(shape)
     n = int(np.prod(shape3))
     quad = cond["quad"]
@@ -284,8 +294,6 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         pool, ix = _pool([inputs[k] for k in range(st.N_INPUTS)], shape, shape3)
     # --- the per-point stages, tile by tile ---------------------------------------------------
     n_out = st.N_ASTABLE if circuit in _TWO_RESISTOR else st.N_MONO
-    res = np.empty((n_out, n))
-    flags = np.empty(n, dtype=np.uint32)
     nb, nc = shape3[1], shape3[2]
     rows = shape3[0] * nb
     step = max(1, TILE_POINTS // max(nc, 1))
@@ -293,17 +301,28 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     bufs = (_buffer("t", st.N_ROWS, width), _buffer("e", 2, width), _buffer("lg", 3, width))
     if circuit == "astable-diode":
         bufs = bufs + (_buffer("d", st.diode.N_D, width),)
+    tile = None
+    if fold is None:
+        res = np.empty((n_out, n))
+        flags = np.empty(n, dtype=np.uint32)
+    else:                            # one tile's outputs at a time, folded while in the cache
+        res = _buffer("res", n_out, width)
+        flags = np.empty(res.shape[1], dtype=np.uint32)
+        tile = fold.start(st, _rows(circuit, st), _extra(circuit, cond["stage"]), shape3, width)
     with np.errstate(all="ignore"):       # NaN where a phase never ends, as in the reference
         _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, shockley,
-             v_drop)
+             v_drop, tile)
+    if fold is not None:
+        return None
     return _result(circuit, st, res, flags, shape, cond["stage"])
 
 
 def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, shockley=False,
-         v_drop=0.0):
+         v_drop=0.0, tile=None):
     """The stages over every tile of rows, numpy's exp and log between them (astable-diode: its
     one stage, the exponentials inside). The scratch buffers are passed whole (the stages use
-    their first m columns) so every call has the same array types."""
+    their first m columns) so every call has the same array types. With a fold's tile function,
+    each tile's outputs go to the start of res and tile(res, flags, r0, r1) folds them in."""
     t, e, lg = bufs[:3]
     astable = circuit == "astable"
     need = [st.VCC, st.TAMB, st.C, st.VUP, st.RF, st.CTF, st.GLEAK, st.IQH, st.IQL, st.VHIGH,
@@ -316,7 +335,7 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, 
     for r0 in range(0, rows, step):
         r1 = min(rows, r0 + step)
         m = (r1 - r0) * nc
-        o = r0 * nc
+        o = r0 * nc if tile is None else 0
         st.gather(pool, ix, need, r0, r1, nb, nc, t)
         e_m, lg_m = e[:, :m], lg[:, :m]
         if circuit == "astable-diode":
@@ -359,6 +378,8 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, 
             res[st.M_V0, o:o + m] = t[st.V0, :m]
             res[st.M_VTOP, o:o + m] = e[0, :m]
             res[st.M_VINF, o:o + m] = t[st.VINFC, :m]
+        if tile is not None:
+            tile(res, flags, r0, r1)
 
 
 def _omega(dg, d, r0, n, m):
@@ -427,6 +448,38 @@ def _diode_tile(st, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
     res[st.A_VTOP, o:o + m] = d[dg.VTOP, :m]
     res[st.A_VINFH, o:o + m] = d[dg.VINFH, :m]
     res[st.A_VINFL, o:o + m] = d[dg.VINFD, :m]
+
+
+def _rows(circuit, st) -> dict[str, int]:
+    """The row of the stages' output matrix that holds each per-point output (as `_result`
+    reads them)."""
+    if circuit in _TWO_RESISTOR:
+        return dict(high_time_s=st.A_TH, low_time_s=st.A_TL, period_s=st.A_PER,
+                    frequency_hz=st.A_FREQ, duty=st.A_DUTY, supply_current_a=st.A_SUPPLY,
+                    discharge_peak_a=st.A_PEAK, ra_power_w=st.A_PRES, wave_v_start_v=st.A_VBOT,
+                    wave_v_top_v=st.A_VTOP, wave_vinf_high_v=st.A_VINFH,
+                    wave_vinf_low_v=st.A_VINFL, discharge_dump_s=st.A_DUMP, power_w=st.A_POWER,
+                    junction_temp_c=st.A_TJ)
+    rows = dict(supply_current_a=st.M_SUPPLY, idle_current_a=st.M_IDLE,
+                discharge_peak_a=st.M_PEAK, ra_power_w=st.M_PRES, wave_v_start_v=st.M_V0,
+                wave_v_top_v=st.M_VTOP, wave_vinf_high_v=st.M_VINF, wave_vinf_low_v=st.M_V0,
+                discharge_dump_s=st.M_DUMP, power_w=st.M_POWER, junction_temp_c=st.M_TJ)
+    if circuit == "missing-pulse":
+        rows.update(timeout_s=st.M_PW, timeout_margin_s=st.M_MARGIN)
+    else:
+        rows.update(high_time_s=st.M_PW, pulse_width_s=st.M_PW)
+    return rows
+
+
+def _extra(circuit, stage) -> dict[str, object]:
+    """The outputs that are not per point: the output stage's, at the condition level, and NaN
+    for what the circuit does not have (as `_result` fills them)."""
+    out = dict(output_high_v=stage.v_high, output_low_v=stage.v_low,
+               output_current_a=np.maximum(stage.i_high, stage.i_low))
+    for k in ("high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
+              "idle_current_a", "timeout_s", "timeout_margin_s"):
+        out.setdefault(k, np.nan)
+    return out
 
 
 def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:
