@@ -110,24 +110,28 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
     return out
 
 
-def _inputs(design: dict, conditions: dict, variation: Variation | None) -> tuple[dict, dict]:
+def _inputs(design: dict, conditions: dict, variation: Variation | None,
+            factors: bool = False) -> tuple[dict, dict]:
     """The model's keyword inputs: design arrays on the first axis, conditions on the last,
     builds on one axis between them (the worst case's corners one per spread, spreads.Corners),
-    part multipliers applied; and the variation's spreads."""
+    part multipliers applied; and the variation's spreads. factors: the part multipliers go
+    with the spreads as the kernel's ra_factor, ... (applied per point) instead."""
     middle = 1 if variation is None else _axes(variation)
     kw: dict[str, np.ndarray] = {}
     for k, v in design.items():
         kw[k] = np.asarray(v, dtype=float).reshape((-1,) + (1,) * (middle + 1))
     for k, v in conditions.items():
         kw[k] = np.asarray(v, dtype=float).reshape((1,) * (middle + 1) + (-1,))
-    if variation is not None:
-        for k, m in variation.part.items():
-            if k in kw:
-                kw[k] = kw[k] * m
     spreads = {} if variation is None else dict(
         leak_factor=variation.leak, dc_bias_factor=variation.dc_bias,
         diode_is_factor=variation.diode_is, iq_factor=variation.iq, load_factor=variation.load_r,
         vf_shift=variation.led_vf, stage_factor=variation.stage)
+    if variation is not None:
+        for k, m in variation.part.items():
+            if k in kw and factors:
+                spreads[f"{k}_factor"] = m
+            elif k in kw:
+                kw[k] = kw[k] * m
     return kw, spreads
 
 
@@ -159,7 +163,7 @@ def fold_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, 
     ideal = case.ideal if ideal is None else ideal
     if variation is not None and _axes(variation) > 1:
         variation = _one_corner_axis(variation)
-    kw, spreads = _inputs(design, conditions, variation)
+    kw, spreads = _inputs(design, conditions, variation, factors=True)
     err = None
     if variation is not None and not ideal:
         err = _timer_error(case, variation, kw)

@@ -118,6 +118,33 @@ def test_agrees_with_variation_factors_as_arrays(circuit, drop, timer):
                                             diode_drop_v=drop), LOADS[load], **kw)
 
 
+@pytest.mark.parametrize("timer", TIMERS)
+@variants()
+@pytest.mark.parametrize("cap", CAPACITORS)
+def test_part_multipliers_given_apart_equal_their_product(circuit, drop, timer, cap):
+    """ra=x, ra_factor=m (the kernel applies m per point, as its folds pass a build's or a
+    corner's parts) gives what the reference gives for ra=x*m: every capacitor's leakage and
+    the part-limit flags follow the multiplied values."""
+    tm = TIMERS[timer]
+    rng = np.random.default_rng(zlib.crc32(f"{circuit} {drop} {timer} {cap}".encode()))
+    kw = grid(tm, seed=7, n_designs=12)
+    b = 5
+    factors = {k: rng.uniform(0.5, 1.5, (1, b, kw["vcc"].shape[-1])) for k in ("ra", "rb", "r", "c")}
+    factors["c"][0, 0, :] = 1e-3          # some capacitors pushed below the timer's minimum
+    factors["ra"][0, 1, :] = 1e-4         # and some resistors below theirs
+    factors["r"][0, 1, :] = 1e-4
+    leak = rng.uniform(1.0, 5.0, (1, b, 1))
+    parts = Parts(capacitor=cap, capacitor_voltage_v=16.0, diode_drop_v=drop)
+    extra = dict(input_period=2e-3) if circuit == "missing-pulse" else {}
+    want = model.evaluate(circuit, tm, parts, LOADS["led-ground"], leak_factor=leak,
+                          **{k: (kw[k] * factors[k] if k in factors else kw[k]) for k in kw}, **extra)
+    got = kernel.evaluate(circuit, tm, parts, LOADS["led-ground"], leak_factor=leak, **kw, **extra,
+                          **{f"{k}_factor": m for k, m in factors.items()})
+    assert_same(want, got)
+    bits = FLAG_BITS["capacitor-too-small"] | FLAG_BITS["resistor-too-small"]
+    assert (np.asarray(want["flag_mask"]) & bits).any()
+
+
 @variants()
 def test_agrees_on_swept_load_control_voltage_and_odd_shapes(circuit, drop):
     tm = TIMERS["bipolar"]

@@ -25,8 +25,9 @@ from .circuits import REGISTRY
 from .model import FLAG_BITS
 from .nodes import node_capacitance
 from .output import output_states
-from .parts import (Load, Parts, capacitance_temperature_factor, leakage_conductance_s,
-                    reverse_current_at, saturation_at, thermal_voltage_v)
+from .parts import (LEAKAGE_TYPICAL_SHARE, LEAKAGE_VOLTAGE_EXPONENT, Load, Parts,
+                    capacitance_temperature_factor, reverse_current_at, saturation_at,
+                    thermal_voltage_v)
 from .timer import TimerModel
 
 #: circuits with compiled stages; the others (astable-symmetric, bistable) use the reference model
@@ -39,6 +40,8 @@ _TWO_RESISTOR = ("astable", "astable-diode")
 #: 2-core machine); a study's first pass evaluates about ten model points per swept point
 #: (nominal, corners, elasticities), so it pays from about half a million swept points
 MIN_POINTS = 500_000
+#: the capacitor technologies whose leakage follows the wet-electrolyte rule [parts.leakage_max_a]
+WET = ("electrolytic", "tantalum")
 #: points per tile: the stages' buffers stay in the core's cache
 TILE_POINTS = 1 << 12
 #: environment variable: "0" keeps every sweep on the numpy model
@@ -174,13 +177,18 @@ def _conditions(st, circuit, timer, parts, load, ideal, *, vcc, temperature, con
         r_max = timer.resistance_derating * (vcc - v_up) / timer.threshold_current_max_a
     else:
         r_max = np.inf
-    inputs = {st.VCC: vcc, st.TAMB: t_amb, st.VUP: v_up, st.RF: rf, st.CTF: ctf,
+    # the wet capacitors' leakage factors of the condition [parts.leakage_conductance_s]
+    pt = 2.5 ** ((t_amb - 20.0) / 40.0)
+    v_rated = parts.capacitor_voltage_v
+    spow = np.clip(v_up / v_rated, 1e-6, 1.0) ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
+    inputs = {st.VCC: vcc, st.TAMB: t_amb, st.VUP: v_up, st.RF: rf, st.CTF: ctf, st.PT: pt,
+              st.SPOW: spow,
               st.IQH: iq_h, st.IQL: iq_l, st.VHIGH: stage.v_high, st.VLOW: stage.v_low,
               st.IHIGH: stage.i_high, st.ILOW: stage.i_low, st.RMAX: r_max, st.MASK_C: mask_c}
     inputs.update(zip((st.S0, st.S1, st.S2, st.A, st.H), shape_arrays))
     shape = np.broadcast_shapes(*(np.shape(x) for x in [
         vcc, t_amb, v_up, rf, ctf, iq_h, iq_l, stage.v_high, stage.v_low, stage.i_high,
-        stage.i_low, *(shape_arrays if quad else [])]))
+        stage.i_low, pt, spow, *(shape_arrays if quad else [])]))
     segments = {k: _segment(x) for k, x in inputs.items()} if len(shape) <= 3 else {}
     return dict(t_amb=t_amb, v_up=v_up, stage=stage, quad=quad, shape=shape, inputs=inputs,
                 segments=segments)
@@ -210,7 +218,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
              leak_factor=1.0, dc_bias_factor=1.0, diode_is_factor=1.0, iq_factor=1.0,
              load_factor=1.0, vf_shift=0.0, stage_factor=1.0,
              ideal: bool = False, load_resistance=np.nan, input_period=np.nan,
-             fold=None) -> dict[str, np.ndarray] | None:
+             fold=None, ra_factor=1.0, rb_factor=1.0, r_factor=1.0,
+             c_factor=1.0) -> dict[str, np.ndarray] | None:
     """`sweep.physics.model.evaluate`, compiled: the same parameters (SI units, broadcasting
     arrays), the same keys, shapes and dtypes, the same values to rounding. Circuits outside
     COMPILED are passed to the reference.
@@ -218,7 +227,13 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     fold: a reduction folded in tile by tile instead of returning the grid (an object with
     `grid`, the shape it reduces, and `start(stages, rows, extra, shape3, width)`, which gets
     the output rows and condition-level outputs and returns the tile function; see
-    sweep.folds). The result is then None, and the grid is never written to memory."""
+    sweep.folds). The result is then None, and the grid is never written to memory.
+    ra_factor, rb_factor, r_factor, c_factor: multipliers of the parts (a build's or a corner's),
+    applied per point: ra=x, ra_factor=m gives what ra=x*m gives, without the product's array."""
+    if circuit not in COMPILED and not all(np.ndim(f) == 0 and f == 1.0 for f in
+                                           (ra_factor, rb_factor, r_factor, c_factor)):
+        ra, rb, r, c = (np.multiply(x, f) for x, f in ((ra, ra_factor), (rb, rb_factor),
+                                                       (r, r_factor), (c, c_factor)))
     if fold is not None and circuit not in COMPILED:
         raise ValueError(f"the kernel has no stages for the {circuit} circuit to fold")
     if circuit not in COMPILED:
@@ -240,18 +255,23 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         control_voltage=control_voltage, load_resistance=load_resistance,
         load_factor=load_factor, vf_shift=vf_shift, stage_factor=stage_factor,
         iq_factor=iq_factor, dc_bias_factor=dc_bias_factor))
-    # --- what depends on the designs: the capacitor's leakage and the part-limit flags ---------
+    # --- what depends on the designs: the parts times their multipliers, the capacitor's
+    # leakage and the part-limit flags, per point in compiled/stages.parts_row -----------------
     cap = parts.technology
     c_nom = np.asarray(c, dtype=float)
-    g_leak = 0.0 if ideal else leak_factor * leakage_conductance_s(
-        cap, c_nom, parts.capacitor_voltage_v, cond["t_amb"], v_work_v=cond["v_up"])
+    lk = np.zeros(8)
+    lk[st.LK_KIND] = (st.LEAK_NONE if ideal else st.LEAK_WET if cap.leakage in WET
+                      else st.LEAK_INSULATION)
+    lk[st.LK_FLOOR] = 3e-6 if cap.leakage == "electrolytic" else 0.5e-6   # leakage_max_a's
+    lk[st.LK_VRATED] = parts.capacitor_voltage_v
+    lk[st.LK_SHARE] = LEAKAGE_TYPICAL_SHARE
+    lk[st.LK_RMIN], lk[st.LK_CMIN] = timer.min_resistance_ohm, timer.min_capacitance_f
+    lk[st.LK_BIT_R] = FLAG_BITS["resistor-too-small"]
+    lk[st.LK_BIT_C] = FLAG_BITS["capacitor-too-small"]
     t_in = np.asarray(input_period, dtype=float)
-    zero = np.uint32(0)
-    r_in = np.asarray(ra if circuit in _TWO_RESISTOR else r, dtype=float)
-    mask_d = (np.where(r_in < timer.min_resistance_ohm, np.uint32(FLAG_BITS["resistor-too-small"]), zero)
-              | np.where(c_nom < timer.min_capacitance_f, np.uint32(FLAG_BITS["capacitor-too-small"]), zero))
     # --- the output's shape: every array the reference's outputs broadcast ---------------------
-    timing = [ra, rb] if circuit in _TWO_RESISTOR else [r]
+    timing = [ra, rb, ra_factor, rb_factor] if circuit in _TWO_RESISTOR else [r, r_factor]
+    timing += [c_factor, leak_factor]
     # the Shockley diode of astable-diode [circuits.astable_diode.charge, phases]: its
     # saturation current (a build's factor on it), n Vt and reverse leakage
     shockley = circuit == "astable-diode" and not ideal and parts.diode_drop_v is None
@@ -265,7 +285,7 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     v_drop = 0.0 if ideal or parts.diode_drop_v is None else float(parts.diode_drop_v)
     if circuit == "missing-pulse":
         timing.append(t_in)
-    shape = np.broadcast_shapes(cond["shape"], *(np.shape(x) for x in [c_nom, g_leak, *timing]))
+    shape = np.broadcast_shapes(cond["shape"], *(np.shape(x) for x in [c_nom, *timing]))
     if fold is not None:             # the grid the fold reduces may be wider than the inputs'
         shape = np.broadcast_shapes(shape, fold.grid)
     shape3 = _shape3(shape)
@@ -282,8 +302,10 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
                    timer.max_frequency_hz, r_sat_mono, parts.discharge_resistor_ohm,
                    max(r_sat_mono, 1e-12)], dtype=np.float64)
     assert len(sc) == st.N_SCALARS
-    design = {st.RA: ra, st.RB: rb, st.R: r, st.C: c_nom, st.GLEAK: g_leak, st.TIN: t_in,
-              st.MASK_D: mask_d, st.ISAT: i_sat, st.NVT: n_vt, st.IREV: i_rev}
+    design = {st.RA: ra, st.RB: rb, st.R: r, st.C: c_nom, st.TIN: t_in, st.ISAT: i_sat,
+              st.NVT: n_vt, st.IREV: i_rev, st.MRA: ra_factor, st.MRB: rb_factor,
+              st.MR: r_factor, st.MC: c_factor, st.LF: leak_factor,
+              st.GLEAK: 0.0, st.MASK_D: 0.0}        # the last two: parts_row fills them
     if len(shape) <= 3:
         segments = dict(cond["segments"])
         segments.update((k, _segment(x)) for k, x in design.items())
@@ -310,24 +332,25 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         flags = np.empty(res.shape[1], dtype=np.uint32)
         tile = fold.start(st, _rows(circuit, st), _extra(circuit, cond["stage"]), shape3, width)
     with np.errstate(all="ignore"):       # NaN where a phase never ends, as in the reference
-        _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, shockley,
-             v_drop, tile)
+        _run(st, circuit, quad, pool, ix, sc, lk, rows, step, nb, nc, bufs, res, flags,
+             shockley, v_drop, tile)
     if fold is not None:
         return None
     return _result(circuit, st, res, flags, shape, cond["stage"])
 
 
-def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, shockley=False,
-         v_drop=0.0, tile=None):
+def _run(st, circuit, quad, pool, ix, sc, lk, rows, step, nb, nc, bufs, res, flags,
+         shockley=False, v_drop=0.0, tile=None):
     """The stages over every tile of rows, numpy's exp and log between them (astable-diode: its
     one stage, the exponentials inside). The scratch buffers are passed whole (the stages use
     their first m columns) so every call has the same array types. With a fold's tile function,
     each tile's outputs go to the start of res and tile(res, flags, r0, r1) folds them in."""
     t, e, lg = bufs[:3]
     astable = circuit == "astable"
-    need = [st.VCC, st.TAMB, st.C, st.VUP, st.RF, st.CTF, st.GLEAK, st.IQH, st.IQL, st.VHIGH,
-            st.VLOW, st.IHIGH, st.ILOW, st.RMAX, st.MASK_C, st.MASK_D]
-    need += [st.RA, st.RB] if circuit in _TWO_RESISTOR else [st.R]
+    two = circuit in _TWO_RESISTOR
+    need = [st.VCC, st.TAMB, st.C, st.MC, st.LF, st.PT, st.SPOW, st.VUP, st.RF, st.CTF, st.IQH,
+            st.IQL, st.VHIGH, st.VLOW, st.IHIGH, st.ILOW, st.RMAX, st.MASK_C]
+    need += [st.RA, st.RB, st.MRA, st.MRB] if two else [st.R, st.MR]
     need += [st.ISAT, st.NVT, st.IREV] if shockley else []
     need += [st.S0, st.S1, st.S2, st.A, st.H] if quad else []
     need += [st.TIN] if circuit == "missing-pulse" else []
@@ -337,6 +360,7 @@ def _run(st, circuit, quad, pool, ix, sc, rows, step, nb, nc, bufs, res, flags, 
         m = (r1 - r0) * nc
         o = r0 * nc if tile is None else 0
         st.gather(pool, ix, need, r0, r1, nb, nc, t)
+        st.parts_row(t, lk, two, m)
         e_m, lg_m = e[:, :m], lg[:, :m]
         if circuit == "astable-diode":
             _diode_tile(st, quad, shockley, v_drop, t, sc, m, bufs[3], res, flags, o)

@@ -42,7 +42,15 @@ FALSE_ALARM = np.uint32(FLAG_BITS["false-alarm"])
 # ISAT, NVT, IREV: the Shockley diode of astable-diode (saturation current, n Vt, reverse leakage)
 VCC, TAMB, RA, RB, R, C, VUP, RF, CTF, GLEAK, S0, S1, S2, A, H, IQH, IQL, VHIGH, VLOW, IHIGH, \
     ILOW, RMAX, TIN, MASK_C, MASK_D, ISAT, NVT, IREV = range(28)
-N_INPUTS = 28
+# the builds' or corners' part multipliers and leakage factor, and the leakage's factors of the
+# condition (2.5 ** ((T - 20) / 40) and (V_work / V_rated) ** (exponent - 1)), which `parts_row`
+# turns into each point's RA, RB, R, C, GLEAK and MASK_D
+MRA, MRB, MR, MC, LF, PT, SPOW = range(28, 35)
+N_INPUTS = 35
+# the leakage's kinds in parts_row: none (the ideal mode), ceramics and films, electrolytic and
+# tantalum [parts.leakage_conductance_s]; and the positions of its scalars
+LEAK_NONE, LEAK_INSULATION, LEAK_WET = range(3)
+LK_KIND, LK_FLOOR, LK_VRATED, LK_SHARE, LK_RMIN, LK_CMIN, LK_BIT_R, LK_BIT_C = range(8)
 # per-point networks, computed once per tile into rows after the inputs (each has several
 # divisions, which would otherwise be repeated in every stage)
 RAT, RBT, AD, BD, VINFD, GD, VINFH, GH = range(N_INPUTS, N_INPUTS + 8)
@@ -119,6 +127,42 @@ def _fmax(a, b):
     if a != a or b != b:
         return a + b
     return a if a >= b else b
+
+
+@njit(**OPTS)
+def parts_row(t, lk, two_resistor, m):
+    """Each point's parts: the design's values times the build's or corner's multipliers (the
+    product engine._inputs makes for the numpy model), the timing capacitor's typical leakage
+    conductance [S] from that capacitance times the leakage factor
+    [parts.leakage_conductance_s, parts.leakage_max_a: the same operations in the same order],
+    and the part-limit flags of the resistor and capacitor [model._flags]."""
+    kind, floor, vr, share = lk[LK_KIND], lk[LK_FLOOR], lk[LK_VRATED], lk[LK_SHARE]
+    r_min, c_min = lk[LK_RMIN], lk[LK_CMIN]
+    bit_r, bit_c = np.uint32(lk[LK_BIT_R]), np.uint32(lk[LK_BIT_C])
+    for p in range(m):
+        if two_resistor:
+            t[RA, p] = t[RA, p] * t[MRA, p]
+            t[RB, p] = t[RB, p] * t[MRB, p]
+            r_in = t[RA, p]
+        else:
+            t[R, p] = t[R, p] * t[MR, p]
+            r_in = t[R, p]
+        c = t[C, p] * t[MC, p]
+        t[C, p] = c
+        if kind == LEAK_INSULATION:         # 10 Gohm or 500 s / C, whichever is less
+            g = t[LF, p] * (1.0 / _fmin(10e9, 500.0 / c))
+        elif kind == LEAK_WET:              # 0.01 C V or the floor, at temperature and voltage
+            i_max = _fmax(0.01e-6 * (c * 1e6) * vr, floor) * t[PT, p]
+            g = t[LF, p] * (share * (i_max / vr) * t[SPOW, p])
+        else:
+            g = 0.0
+        t[GLEAK, p] = g
+        f = np.uint32(0)
+        if r_in < r_min:
+            f |= bit_r
+        if c < c_min:
+            f |= bit_c
+        t[MASK_D, p] = f
 
 
 @njit(**OPTS)
