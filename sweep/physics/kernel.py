@@ -26,8 +26,8 @@ from .model import FLAG_BITS
 from .nodes import node_capacitance
 from .output import output_states
 from .parts import (LEAKAGE_TYPICAL_SHARE, LEAKAGE_VOLTAGE_EXPONENT, Load, Parts,
-                    capacitance_temperature_factor, reverse_current_at, saturation_at,
-                    thermal_voltage_v)
+                    capacitance_temperature_factor, leakage_floor_a, reverse_current_at,
+                    saturation_at, thermal_voltage_v)
 from .timer import TimerModel
 
 #: circuits with compiled stages; the others (astable-symmetric, bistable) use the reference model
@@ -194,6 +194,23 @@ def _conditions(st, circuit, timer, parts, load, ideal, *, vcc, temperature, con
                 segments=segments)
 
 
+def _part_scalars(st, timer: TimerModel, parts: Parts, ideal: bool) -> np.ndarray:
+    """The scalars of stages.parts_row: the leakage's kind, floor [A], rated voltage [V] and
+    typical share [parts.leakage_conductance_s, leakage_max_a], the timer's smallest resistor
+    and capacitor and their flag bits."""
+    cap = parts.technology
+    lk = np.zeros(8)
+    lk[st.LK_KIND] = (st.LEAK_NONE if ideal else st.LEAK_WET if cap.leakage in WET
+                      else st.LEAK_INSULATION)
+    lk[st.LK_FLOOR] = leakage_floor_a(cap)
+    lk[st.LK_VRATED] = parts.capacitor_voltage_v
+    lk[st.LK_SHARE] = LEAKAGE_TYPICAL_SHARE
+    lk[st.LK_RMIN], lk[st.LK_CMIN] = timer.min_resistance_ohm, timer.min_capacitance_f
+    lk[st.LK_BIT_R] = FLAG_BITS["resistor-too-small"]
+    lk[st.LK_BIT_C] = FLAG_BITS["capacitor-too-small"]
+    return lk
+
+
 def _segment(x):
     """An input of at most three axes as (its values, element strides along designs, builds,
     conditions), its axes right-aligned to the grid's; 0 where it does not vary."""
@@ -257,17 +274,8 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
         iq_factor=iq_factor, dc_bias_factor=dc_bias_factor))
     # --- what depends on the designs: the parts times their multipliers, the capacitor's
     # leakage and the part-limit flags, per point in compiled/stages.parts_row -----------------
-    cap = parts.technology
     c_nom = np.asarray(c, dtype=float)
-    lk = np.zeros(8)
-    lk[st.LK_KIND] = (st.LEAK_NONE if ideal else st.LEAK_WET if cap.leakage in WET
-                      else st.LEAK_INSULATION)
-    lk[st.LK_FLOOR] = 3e-6 if cap.leakage == "electrolytic" else 0.5e-6   # leakage_max_a's
-    lk[st.LK_VRATED] = parts.capacitor_voltage_v
-    lk[st.LK_SHARE] = LEAKAGE_TYPICAL_SHARE
-    lk[st.LK_RMIN], lk[st.LK_CMIN] = timer.min_resistance_ohm, timer.min_capacitance_f
-    lk[st.LK_BIT_R] = FLAG_BITS["resistor-too-small"]
-    lk[st.LK_BIT_C] = FLAG_BITS["capacitor-too-small"]
+    lk = _part_scalars(st, timer, parts, ideal)
     t_in = np.asarray(input_period, dtype=float)
     # --- the output's shape: every array the reference's outputs broadcast ---------------------
     timing = [ra, rb, ra_factor, rb_factor] if circuit in _TWO_RESISTOR else [r, r_factor]

@@ -175,6 +175,12 @@ LEAKAGE_TYPICAL_SHARE = 0.2
 LEAKAGE_VOLTAGE_EXPONENT = 2.0
 
 
+def leakage_floor_a(cap: Capacitor) -> float:
+    """The floor of leakage_max_a's rule [A]: 3 uA for an aluminium electrolytic, 0.5 uA for a
+    tantalum [cp] (specification maxima)."""
+    return 3e-6 if cap.leakage == "electrolytic" else 0.5e-6
+
+
 def leakage_max_a(cap: Capacitor, c_f, v_rated_v, temperature_c):
     """Specification maximum of the leakage current [A] at the rated voltage (a guaranteed bound,
     not a nominal figure).
@@ -183,7 +189,7 @@ def leakage_max_a(cap: Capacitor, c_f, v_rated_v, temperature_c):
     after 2 min at rated voltage [cp; test method in IEC 60384-4]; tantalum the same rule with a
     0.5 uA floor [cp]. Both rise 2-3x from 20 to 60 °C [mem]: factor 2.5 ** ((T - 20) / 40).
     """
-    floor_a = 3e-6 if cap.leakage == "electrolytic" else 0.5e-6
+    floor_a = leakage_floor_a(cap)
     i_a = np.maximum(0.01e-6 * (np.asarray(c_f, dtype=float) * 1e6) * v_rated_v, floor_a)
     return i_a * 2.5 ** ((np.asarray(temperature_c, dtype=float) - 20.0) / 40.0)
 
