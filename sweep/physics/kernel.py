@@ -83,7 +83,7 @@ def _buffer(name: str, rows: int, n: int) -> np.ndarray:
     fall into the same cache set."""
     buf = getattr(_buffers, name, None)
     if buf is None or buf.shape[0] < rows or buf.shape[1] < n:
-        buf = np.empty((rows, max(n, TILE_POINTS) + 8))
+        buf = np.zeros((rows, max(n, TILE_POINTS) + 8))
         setattr(_buffers, name, buf)
     return buf
 
