@@ -21,11 +21,12 @@ import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
 from . import __version__
-from .analysis import (RANK_KEYS, Options, analyse_block, finish_keys, graded_analyse_block,
+from .analysis import (RANK_KEYS, Options, analyse_block, block_points, finish_keys,
+                       graded_analyse_block,
                        graded_monte_carlo_block, mc_columns,
                        monte_carlo_block, points_frame)
 from .case import axis_values
-from .engine import ANALYSIS_CHUNK, DEFAULT_CHUNK, design_blocks, evaluate_block
+from .engine import DEFAULT_CHUNK, design_blocks, evaluate_block
 from .errors import InputError
 from . import grades
 from .limits import MC_DESIGNS, PARQUET_POINTS, WORKBOOK_DESIGNS, WORKBOOK_POINTS
@@ -119,12 +120,12 @@ def analyse(study: Study, opt: Options, tmp_dir: Path, chunk: int | None = None,
     Monte Carlo on the designs whose worst case can still meet the spec, best margins first.
 
     `mapper(fn, study, opt, jobs)` may run jobs elsewhere (processes, a Dask cluster); it must
-    return results in job order. chunk: points per block (None: engine.ANALYSIS_CHUNK).
+    return results in job order. chunk: points per block (None: analysis.block_points).
     """
     # a block's largest arrays hold every worst-case corner at every condition: size blocks by
     # that, so they stay bounded (a whole small study in one block ran 3x slower, measured)
     corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, opt.ideal)))
-    chunk = chunk or ANALYSIS_CHUNK
+    chunk = chunk or block_points(study, opt.ideal)
     blocks = list(design_blocks(study, chunk, per_design=study.n_conditions * (1 + corners)))
     stream = points_path is not None and study.n_points <= points_limit
     o = Options(**{**opt.__dict__, "keep_points": stream})

@@ -356,9 +356,11 @@ def _run(st, circuit, quad, pool, ix, sc, lk, rows, step, nb, nc, bufs, res, fla
     t, e, lg = bufs[:3]
     astable = circuit == "astable"
     two = circuit in _TWO_RESISTOR
-    need = [st.VCC, st.TAMB, st.C, st.MC, st.LF, st.PT, st.SPOW, st.VUP, st.RF, st.CTF, st.IQH,
-            st.IQL, st.VHIGH, st.VLOW, st.IHIGH, st.ILOW, st.RMAX, st.MASK_C]
+    need = [st.VCC, st.TAMB, st.C, st.MC, st.VUP, st.RF, st.CTF, st.IQH, st.IQL, st.VHIGH,
+            st.VLOW, st.IHIGH, st.ILOW, st.RMAX, st.MASK_C]
     need += [st.RA, st.RB, st.MRA, st.MRB] if two else [st.R, st.MR]
+    need += [] if lk[st.LK_KIND] == st.LEAK_NONE else [st.LF]        # what parts_row reads
+    need += [st.PT, st.SPOW] if lk[st.LK_KIND] == st.LEAK_WET else []
     need += [st.ISAT, st.NVT, st.IREV] if shockley else []
     need += [st.S0, st.S1, st.S2, st.A, st.H] if quad else []
     need += [st.TIN] if circuit == "missing-pulse" else []

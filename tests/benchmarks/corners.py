@@ -9,9 +9,9 @@ condition, and where it first stalls) taken three ways from the same designs in 
 - and, as the baseline, every corner written out in full on the numpy model, the evaluation
   alone (the way before the corners were factored, its reductions not counted).
 
-Figures are corner evaluations per second: designs x corners x conditions over the time. The
-designs are as many as one of the analysis's blocks holds (engine.ANALYSIS_CHUNK), unless
---designs says. Ends with one JSON line.
+Figures are corner evaluations per second: designs x corners x conditions over the time. Each
+way runs as many designs as one of the analysis's blocks holds for it (engine.ANALYSIS_CHUNK,
+analysis.FOLDED_CHUNK where the corners are folded), unless --designs says. Ends with one JSON line.
 
     python tests/benchmarks/corners.py [--designs N] [--repeats K]
 
@@ -59,25 +59,28 @@ resistance = "1k"
 def _case(study, designs: int | None, repeats: int) -> dict:
     cond = axis_values(study.conditions, np.arange(study.n_conditions))
     corners = worst_case_corners(study, cond, False)
-    if designs is None:        # one analysis block (pipeline.analyse sizes them so)
-        designs = max(1, ANALYSIS_CHUNK // (study.n_conditions * (1 + corners.count)))
-    design = axis_values(study.design, np.arange(min(designs, study.n_designs)))
+    per = study.n_conditions * (1 + corners.count)
+    # each way at the block size the analysis gives it (pipeline.analyse), unless --designs says
+    size = {"factored": ANALYSIS_CHUNK, "folded": analysis.FOLDED_CHUNK, "full_numpy": ANALYSIS_CHUNK}
+    count = {k: min(study.n_designs, designs or max(1, v // per)) for k, v in size.items()}
+    design = {k: axis_values(study.design, np.arange(n)) for k, n in count.items()}
     full = _one_corner_axis(corners.variation)
     outs = analysis.summary_outputs(study)
-    runs = {"factored": lambda: analysis._worst_case(study, design, cond, corners, outs, False),
-            "folded": lambda: analysis._folded_worst_case(study, design, cond, corners, outs, False),
-            "full_numpy": lambda: evaluate_block(study.case, design, cond, variation=full,
-                                                 with_spec=False, compiled=False)}
-    for f in runs.values():           # warm up (the kernel compiles or loads its cache once)
-        f()
+    runs = {"factored": lambda d: analysis._worst_case(study, d, cond, corners, outs, False),
+            "folded": lambda d: analysis._folded_worst_case(study, d, cond, corners, outs, False),
+            "full_numpy": lambda d: evaluate_block(study.case, d, cond, variation=full,
+                                                   with_spec=False, compiled=False)}
+    for k, f in runs.items():         # warm up (the kernel compiles or loads its cache once)
+        f(design[k])
     times = {k: [] for k in runs}
     for _ in range(repeats):
         for k, f in runs.items():
             t0 = time.perf_counter()
-            f()
+            f(design[k])
             times[k].append(time.perf_counter() - t0)
-    n = len(next(iter(design.values()))) * corners.count * study.n_conditions
-    return {k: n / statistics.median(v) for k, v in times.items()} | {"evaluations": n}
+    n = {k: c * corners.count * study.n_conditions for k, c in count.items()}
+    return ({k: n[k] / statistics.median(v) for k, v in times.items()}
+            | {"evaluations": n["factored"], "folded_evaluations": n["folded"]})
 
 
 def figures(designs: int | None = None, repeats: int = 5) -> dict:
@@ -86,7 +89,8 @@ def figures(designs: int | None = None, repeats: int = 5) -> dict:
                "astable": parse_study(ASTABLE, "astable.toml")}
     for name, study in studies.items():
         r = _case(study, designs, repeats)
-        print(f"worst-case corners, {name} ({r['evaluations']:,} corner evaluations): factored "
+        print(f"worst-case corners, {name} (blocks of {r['evaluations']:,} corner evaluations, "
+              f"{r['folded_evaluations']:,} folded): factored "
               f"{r['factored'] / 1e6:.1f} M/s, folded in the kernel {r['folded'] / 1e6:.1f} M/s; "
               f"every corner in full on numpy {r['full_numpy'] / 1e6:.1f} M/s (evaluation alone): "
               f"folded {r['folded'] / r['factored']:.2f}x factored, "

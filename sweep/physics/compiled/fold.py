@@ -20,40 +20,53 @@ import numpy as np
 from numba import njit
 
 from .stages import OPTS, STALLS
-from .steps import (BAND_FREQUENCY, BAND_NONE, BAND_TIMING, INTO, LESS, OVER, TIMES,  # noqa: F401
-                    TIMES_LESS)
+from .steps import BAND_FREQUENCY, BAND_NONE, BAND_TIMING, INTO, OVER, PLAIN, TIMES, TIMES_LESS
 
 
 @njit(**OPTS)
-def _at(pool, ix, k, d, b, c):
-    """Operand k at design d, build b, condition c."""
-    return pool[ix[k, 0] + d * ix[k, 1] + b * ix[k, 2] + c * ix[k, 3]]
+def _base(ix, k, d, b):
+    """Where operand k's values at design d, build b start in the pool, and their stride along
+    the conditions."""
+    return ix[k, 0] + d * ix[k, 1] + b * ix[k, 2], ix[k, 3]
 
 
 @njit(**OPTS)
 def values(res, r0, r1, nb, nc, src, op, opa, opb, pool, ix, vals):
     """vals[o, p] for every reduced output o and tile point p: the model output (row src[o] of
     res, or operand -src[o]-1 where negative) taken through step op[o] with operands opa[o],
-    opb[o]."""
+    opb[o]. Each step is its own loop over a row's conditions."""
     for o in range(src.size):
-        s, k, a, bb = src[o], op[o], opa[o], opb[o]
+        s, k = src[o], op[o]
         for r in range(r0, r1):
             d = r // nb
             b = r - d * nb
             p0 = (r - r0) * nc
-            for c in range(nc):
-                x = res[s, p0 + c] if s >= 0 else _at(pool, ix, -s - 1, d, b, c)
-                if k == TIMES:
-                    x = x * _at(pool, ix, a, d, b, c)
-                elif k == OVER:
-                    x = x / _at(pool, ix, a, d, b, c)
-                elif k == INTO:
-                    x = _at(pool, ix, a, d, b, c) / x
-                elif k == TIMES_LESS:
-                    x = x * _at(pool, ix, a, d, b, c) - _at(pool, ix, bb, d, b, c)
-                elif k == LESS:
-                    x = x - _at(pool, ix, bb, d, b, c)
-                vals[o, p0 + c] = x
+            out = vals[o, p0:p0 + nc]
+            if s >= 0:
+                out[:] = res[s, p0:p0 + nc]
+            else:
+                q, sq = _base(ix, -s - 1, d, b)
+                for c in range(nc):
+                    out[c] = pool[q + c * sq]
+            if k == PLAIN:
+                continue
+            qa, sa = _base(ix, opa[o], d, b)
+            qb, sb = _base(ix, opb[o], d, b)
+            if k == TIMES:
+                for c in range(nc):
+                    out[c] = out[c] * pool[qa + c * sa]
+            elif k == OVER:
+                for c in range(nc):
+                    out[c] = out[c] / pool[qa + c * sa]
+            elif k == INTO:
+                for c in range(nc):
+                    out[c] = pool[qa + c * sa] / out[c]
+            elif k == TIMES_LESS:
+                for c in range(nc):
+                    out[c] = out[c] * pool[qa + c * sa] - pool[qb + c * sb]
+            else:
+                for c in range(nc):
+                    out[c] = out[c] - pool[qb + c * sb]
 
 
 @njit(**OPTS)
@@ -111,29 +124,38 @@ def extremes(vals, flags, r0, r1, nb, nc, band, widen, partner, lo, hi, nan, sta
                     break
         for o in range(vals.shape[0]):
             w = widen[o]
+            x = vals[o, p0:p0 + nc]
             m_lo, m_hi = lo[o, d], hi[o, d]
             bad = False
-            for c in range(nc):
-                x = vals[o, p0 + c]
-                if w == BAND_NONE:
-                    x_lo = x
-                    x_hi = x
-                elif w == BAND_TIMING:
-                    x_lo = x * (1 - band[c])
-                    x_hi = x * (1 + band[c])
-                elif w == BAND_FREQUENCY:
-                    x_lo = x / (1 + band[c])
-                    x_hi = x / (1 - band[c])
-                else:
-                    t = vals[partner[o], p0 + c] * band[c]
-                    x_lo = x - t
-                    x_hi = x + t
-                if x_lo != x_lo or x_hi != x_hi:
-                    bad = True
-                if x_lo < m_lo:
-                    m_lo = x_lo
-                if x_hi > m_hi:
-                    m_hi = x_hi
+            if w == BAND_NONE:
+                for c in range(nc):
+                    v = x[c]
+                    bad |= v != v
+                    m_lo = min(m_lo, v)
+                    m_hi = max(m_hi, v)
+            elif w == BAND_TIMING:
+                for c in range(nc):
+                    v_lo = x[c] * (1 - band[c])
+                    v_hi = x[c] * (1 + band[c])
+                    bad |= (v_lo != v_lo) | (v_hi != v_hi)
+                    m_lo = min(m_lo, v_lo)
+                    m_hi = max(m_hi, v_hi)
+            elif w == BAND_FREQUENCY:
+                for c in range(nc):
+                    v_lo = x[c] / (1 + band[c])
+                    v_hi = x[c] / (1 - band[c])
+                    bad |= (v_lo != v_lo) | (v_hi != v_hi)
+                    m_lo = min(m_lo, v_lo)
+                    m_hi = max(m_hi, v_hi)
+            else:
+                y = vals[partner[o], p0:p0 + nc]
+                for c in range(nc):
+                    t = y[c] * band[c]
+                    v_lo = x[c] - t
+                    v_hi = x[c] + t
+                    bad |= (v_lo != v_lo) | (v_hi != v_hi)
+                    m_lo = min(m_lo, v_lo)
+                    m_hi = max(m_hi, v_hi)
             lo[o, d], hi[o, d] = m_lo, m_hi
             if bad:
                 nan[o, d] = True
