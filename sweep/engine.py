@@ -167,25 +167,7 @@ def fold_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, 
     err = None
     if variation is not None and not ideal:
         err = _timer_error(case, variation, kw)
-    recipes = []
-    for o in fold.outputs:                   # evaluate_block's steps, output by output
-        if o == "battery_life_h":
-            if case.battery_capacity_ah is None:
-                recipes.append(("battery_life_h", PLAIN, None, None))    # NaN: no battery
-            else:
-                current = "idle_current_a" if REGISTRY[case.circuit].waits else "supply_current_a"
-                recipes.append((current, INTO, case.battery_capacity_ah * case.battery_usable,
-                                None))
-        elif (o == "timeout_margin_s" and variation is not None and not ideal
-              and "input_period" in kw):
-            recipes.append(("timeout_s", LESS if err is None else TIMES_LESS, err,
-                            kw["input_period"]))
-        elif err is not None and o in TIMING:
-            recipes.append((o, TIMES, err, None))
-        elif err is not None and o == "frequency_hz":
-            recipes.append((o, OVER, err, None))
-        else:
-            recipes.append((o, PLAIN, None, None))
+    recipes = _recipes(case, fold.outputs, err, kw, variation is not None and not ideal)
     fold.recipes = recipes
     nd = max(len(np.atleast_1d(v)) for v in design.values()) if design else 1
     nb = 1 if variation is None else max(np.shape(a)[1] if np.ndim(a) > 1 else 1
@@ -194,6 +176,30 @@ def fold_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, 
     fold.grid = (nd, nb, nc)
     kernel.evaluate(case.circuit, case.timer, case.parts, case.load, ideal=ideal, fold=fold,
                     **spreads, **kw)
+
+
+def _recipes(case: Case, outputs: list[str], err, kw: dict, varied: bool) -> list[tuple]:
+    """How evaluate_block makes each output from the model's: (model output, step, operand a,
+    operand b), steps as in physics/compiled/steps.py. err: 1 + the timer's error (None: none);
+    varied: a variation in realistic mode (the timeout's margin is taken again after the timer's
+    error)."""
+    out = []
+    for o in outputs:
+        if o == "battery_life_h":
+            if case.battery_capacity_ah is None:       # NaN: no battery
+                out.append(("supply_current_a", TIMES, np.nan, None))
+            else:
+                current = "idle_current_a" if REGISTRY[case.circuit].waits else "supply_current_a"
+                out.append((current, INTO, case.battery_capacity_ah * case.battery_usable, None))
+        elif o == "timeout_margin_s" and varied and "input_period" in kw:
+            out.append(("timeout_s", LESS if err is None else TIMES_LESS, err, kw["input_period"]))
+        elif err is not None and o in TIMING:
+            out.append((o, TIMES, err, None))
+        elif err is not None and o == "frequency_hz":
+            out.append((o, OVER, err, None))
+        else:
+            out.append((o, PLAIN, None, None))
+    return out
 
 
 def _axes(variation: Variation) -> int:
