@@ -72,9 +72,15 @@ def luminance(hex_colour: str) -> float:
     return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
 
 
+def shown(fig):
+    """The traces of a figure (plotly's figure JSON) that draw designs: legend-only entries
+    carry no hover data."""
+    return [t for t in fig["data"] if t.get("customdata") is not None]
+
+
 def map_points(fig):
-    """Design numbers drawn as data marks on the design map (legend-only entries carry none)."""
-    return [row[0] for t in fig.data if t.customdata is not None for row in t.customdata]
+    """Design numbers drawn as data marks on the design map."""
+    return [row[0] for t in shown(fig) for row in t["customdata"]]
 
 
 # --- the file ----------------------------------------------------------------------------------
@@ -131,7 +137,7 @@ def test_failed_write_keeps_the_old_file_and_leaves_no_temporary(tmp_path, monke
 def test_hover_and_ticks_use_engineering_notation():
     r = make_report(n_designs=40)
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    row = next(t.customdata[0] for t in fig.data if t.customdata is not None)
+    row = shown(fig)[0]["customdata"][0]
     design = r.designs.set_index("design").loc[int(row[0])]
     # common practice: 4700 ohm is written 4.7 kΩ, 1e-7 F is 100 nF
     expected = {4.7e3: "4.7 kΩ", 1e3: "1 kΩ", 2.2e3: "2.2 kΩ", 10e3: "10 kΩ", 22e3: "22 kΩ",
@@ -139,10 +145,11 @@ def test_hover_and_ticks_use_engineering_notation():
                 470e-9: "470 nF"}
     assert list(row[2:5]) == [expected[design["ra_ohm"]], expected[design["rb_ohm"]],
                               expected[design["c_f"]]]
-    assert fig.layout.xaxis.type == "log" and fig.layout.yaxis.type == "log"
-    assert "4.7 kΩ" in fig.layout.xaxis.ticktext or "4.7 kΩ" in fig.layout.yaxis.ticktext
+    xaxis, yaxis = fig["layout"]["xaxis"], fig["layout"]["yaxis"]
+    assert xaxis["type"] == "log" and yaxis["type"] == "log"
+    assert "4.7 kΩ" in xaxis["ticktext"] or "4.7 kΩ" in yaxis["ticktext"]
     duty = next(s.figure for s in build_sections(r) if s.key == "duty")
-    assert duty.layout.xaxis.type == "log"
+    assert duty["layout"]["xaxis"]["type"] == "log"
 
 
 def test_map_draws_each_design_in_its_state_and_the_states_apart_without_colour():
@@ -157,19 +164,19 @@ def test_map_draws_each_design_in_its_state_and_the_states_apart_without_colour(
             "near": set(d.loc[inside & ~passes, "design"].astype(str)),
             "breaks": set(d.loc[~inside & ~passes, "design"].astype(str))}
     assert all(want.values()), "the example must have designs in every state"
-    drawn = [t for t in fig.data if t.customdata is not None and t.legendgroup in want]
-    got = {k: {row[0] for t in drawn if t.legendgroup == k for row in t.customdata}
+    drawn = [t for t in shown(fig) if t["legendgroup"] in want]
+    got = {k: {row[0] for t in drawn if t["legendgroup"] == k for row in t["customdata"]}
            for k in want}
     assert got == want
-    style = {t.legendgroup: t.marker for t in drawn}
+    style = {t["legendgroup"]: t["marker"] for t in drawn}
     # told apart by size, fill and edge, not by colour alone (colour-blind readers)
-    assert style["breaks"].size < style["near"].size <= style["meets"].size
-    assert style["breaks"].opacity < 1 and not style["breaks"].line.width
-    assert style["near"].symbol == "circle-open" and style["meets"].symbol == "circle"
-    assert style["meets"].line.width >= 1 and style["meets"].line.color == "#000000"
+    assert style["breaks"]["size"] < style["near"]["size"] <= style["meets"]["size"]
+    assert style["breaks"]["opacity"] < 1 and not style["breaks"]["line"]["width"]
+    assert style["near"]["symbol"] == "circle-open" and style["meets"]["symbol"] == "circle"
+    assert style["meets"]["line"]["width"] >= 1 and style["meets"]["line"]["color"] == "#000000"
     # in every panel the good designs are drawn after (on top of) the faded ones
-    for panel in {t.xaxis for t in drawn}:
-        order = [t.legendgroup for t in drawn if t.xaxis == panel]
+    for panel in {t["xaxis"] for t in drawn}:
+        order = [t["legendgroup"] for t in drawn if t["xaxis"] == panel]
         later = [k for k in ("near", "meets") if k in order]
         if "breaks" in order and later:
             assert order.index("breaks") < min(order.index(k) for k in later)
@@ -191,29 +198,31 @@ def test_map_states_at_realistic_density():
     assert (states[outside & ~ds.passes] == "breaks").all()
     # the marks shrink with the grid but stay visible
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    sizes = [t.marker.size for t in fig.data if t.customdata is not None]
+    sizes = [t["marker"]["size"] for t in shown(fig)]
     assert min(sizes) >= 3
 
 
 def test_map_axis_titles_sit_on_the_axes_held_off_the_ticks():
     fig = next(s.figure for s in build_sections(make_report(n_designs=60)) if s.key == "map")
     # titles placed as free annotations at a fixed distance ran into long tick labels
-    assert not any(a.text in ("RA [Ω]", "RB [Ω]") for a in fig.layout.annotations)
-    assert fig.layout.yaxis.title.text == "RB [Ω]" and fig.layout.yaxis.title.standoff >= 8
-    bottom = [fig.layout[k] for k in fig.layout if k.startswith("xaxis")]
-    assert any(ax.title.text == "RA [Ω]" and ax.title.standoff >= 8 for ax in bottom)
-    assert fig.layout.template.layout.yaxis.automargin      # the margin grows to hold them
+    layout = fig["layout"]
+    assert not any(a["text"] in ("RA [Ω]", "RB [Ω]") for a in layout.get("annotations", []))
+    ytitle = layout["yaxis"]["title"]
+    assert ytitle["text"] == "RB [Ω]" and ytitle["standoff"] >= 8
+    bottom = [layout[k]["title"] for k in layout if k.startswith("xaxis") and "title" in layout[k]]
+    assert any(t["text"] == "RA [Ω]" and t["standoff"] >= 8 for t in bottom)
+    assert layout["template"]["layout"]["yaxis"]["automargin"]    # the margin grows to hold them
 
 
 def test_parallel_lines_put_the_good_designs_on_top_in_dark_colours():
     r = make_report(n_designs=200)
-    pc = next(s.figure for s in build_sections(r) if s.key == "parallel").data[0]
-    colours = np.asarray(pc.line.color, dtype=float)
+    pc = next(s.figure for s in build_sections(r) if s.key == "parallel")["data"][0]
+    colours = np.asarray(pc["line"]["color"], dtype=float)
     # drawn in rising yield, so the best lines come last and lie on top
     assert (np.diff(colours) >= 0).all()
     assert colours[-1] == pytest.approx(r.designs["yield"].max())
     # no yield is pale, full yield dark: a yield of 0 must not be the loudest colour
-    scale = pc.line.colorscale
+    scale = pc["line"]["colorscale"]
     assert scale[0][0] == 0 and scale[-1][0] == 1
     assert luminance(scale[0][1]) > 0.7 and luminance(scale[-1][1]) < 0.1
     lum = [luminance(c) for _, c in scale]
@@ -245,10 +254,10 @@ def test_latch_charts_follow_the_supply_current_with_units_and_its_builds():
     assert mc.note.startswith("100 builds × 9 conditions = 900 results")
     assert "dashed" not in mc.explain, "the latch spec has no target line to describe"
     # SI quantities carry their unit on every tick (common practice: 40 mA, not 40m)
-    ticks = list(mc.figure.layout.xaxis.ticktext)
+    ticks = list(mc.figure["layout"]["xaxis"]["ticktext"])
     assert ticks and all(t.endswith(" mA") for t in ticks), ticks
     temp = sections["temperature"].figure
-    ticks = list(temp.layout.yaxis.ticktext)
+    ticks = list(temp["layout"]["yaxis"]["ticktext"])
     assert ticks and all(t.endswith(" mA") for t in ticks), ticks
     assert "five best-ranked" not in sections["temperature"].explain
     # with Monte Carlo turned off the section says so, and does not blame the circuit
@@ -260,7 +269,7 @@ def test_latch_charts_follow_the_supply_current_with_units_and_its_builds():
 def test_timer_histogram_and_drift_ticks_carry_hertz():
     sections = {s.key: s for s in build_sections(make_report())}
     for fig, axis in ((sections["mc"].figure, "xaxis"), (sections["temperature"].figure, "yaxis")):
-        ticks = list(fig.layout[axis].ticktext)
+        ticks = list(fig["layout"][axis]["ticktext"])
         assert len(ticks) >= 3 and all(t.endswith("Hz") for t in ticks), ticks
 
 
@@ -269,14 +278,14 @@ def test_many_values_of_the_third_part_give_a_dropdown():
     values = np.array([1e-9, 2.2e-9, 4.7e-9, 10e-9, 22e-9, 47e-9, 100e-9, 220e-9])
     r.designs["c_f"] = values[np.arange(len(r.designs)) % len(values)]
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    buttons = fig.layout.updatemenus[0].buttons
-    assert [b.label for b in buttons] == ["C = 1 nF", "C = 2.2 nF", "C = 4.7 nF", "C = 10 nF",
-                                          "C = 22 nF", "C = 47 nF", "C = 100 nF", "C = 220 nF"]
+    buttons = fig["layout"]["updatemenus"][0]["buttons"]
+    assert [b["label"] for b in buttons] == ["C = 1 nF", "C = 2.2 nF", "C = 4.7 nF", "C = 10 nF",
+                                             "C = 22 nF", "C = 47 nF", "C = 100 nF", "C = 220 nF"]
     c_of = r.designs.set_index("design")["c_f"]
     for b, value in zip(buttons, values):
-        shown = [t for t, vis in zip(fig.data, b.args[0]["visible"])
-                 if vis and t.customdata is not None]
-        designs = [int(row[0]) for t in shown for row in t.customdata]
+        visible = [t for t, vis in zip(fig["data"], b["args"][0]["visible"])
+                   if vis and t.get("customdata") is not None]
+        designs = [int(row[0]) for t in visible for row in t["customdata"]]
         assert designs and all(c_of[n] == value for n in designs)
 
 
@@ -287,7 +296,7 @@ def test_cap_keeps_the_best_ranked_and_says_so(monkeypatch):
     best = set(r.designs.loc[r.designs["rank"] <= 5, "design"].astype(str))
     assert set(map_points(sections["map"].figure)) == best
     assert "30 designs" in sections["map"].note and "5 best-ranked" in sections["map"].note
-    assert len(sections["parallel"].figure.data[0].dimensions[0].values) == 5
+    assert len(sections["parallel"].figure["data"][0]["dimensions"][0]["values"]) == 5
 
 
 def brute_force_frontier(current, yld):
