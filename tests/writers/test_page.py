@@ -5,11 +5,16 @@ checks that plotly really drew every chart with no script error.
 """
 from __future__ import annotations
 
+import base64
+import copy
 import dataclasses
 import html
+import json
 import os
 import pathlib
 import re
+import subprocess
+import sys
 
 import numpy as np
 import pandas as pd
@@ -315,6 +320,154 @@ def test_frontier_matches_the_definition():
     # a hand example: (1 mA, 50 %), (2 mA, 90 %) on it; (3 mA, 80 %) beaten by (2 mA, 90 %)
     got = pareto_frontier(np.array([1e-3, 2e-3, 3e-3, np.nan]), np.array([0.5, 0.9, 0.8, 1.0]))
     assert got.tolist() == [True, True, False, False]
+
+
+# --- the charts as the page writes them -------------------------------------------------------
+def page_charts(text: str) -> dict[str, tuple[list, dict]]:
+    """Chart id -> (data, layout): the figure JSON each ``Plotly.newPlot`` call of a page draws."""
+    charts, decoder = {}, json.JSONDecoder()
+    for m in re.finditer(r'Plotly\.newPlot\("([^"]+)", ', text):
+        data, end = decoder.raw_decode(text, m.end())
+        layout, _ = decoder.raw_decode(text, end + 2)
+        charts[m.group(1)] = (data, layout)
+    return charts
+
+
+def values(v) -> list:
+    """An array of a chart: a list, or plotly.js's typed array (its bytes in base64)."""
+    if isinstance(v, dict):
+        dtype = {"f8": "<f8", "f4": "<f4", "i1": "i1", "i2": "<i2", "i4": "<i4", "u1": "u1",
+                 "u2": "<u2", "u4": "<u4"}[v["dtype"]]
+        return np.frombuffer(base64.b64decode(v["bdata"]), dtype=dtype).tolist()
+    return list(v)
+
+
+def test_page_charts_hold_what_the_page_promises(tmp_path):
+    r = make_report(n_designs=60)
+    out = tmp_path / "demo.html"
+    write_page(out, r)
+    charts = page_charts(out.read_text(encoding="utf-8"))
+    assert list(charts) == ["chart-map", "chart-duty", "chart-yield", "chart-mc",
+                            "chart-temperature", "chart-parallel"]
+    d = r.designs.set_index("design")
+    pick = int(r.designs.loc[r.designs["rank"] == 1, "design"].iloc[0])
+    for key, (xcol, ycol) in {"map": ("ra_ohm", "rb_ohm"),
+                              "duty": ("frequency_hz_nom", "duty_nom"),
+                              "yield": ("supply_current_a_max", "yield")}.items():
+        data, layout = charts[f"chart-{key}"]
+        # the star is the rank-1 design, drawn where its values are
+        stars = [t for t in data if t.get("marker", {}).get("symbol") == "star"
+                 and t.get("customdata")]
+        assert len(stars) == 1 and stars[0]["name"] == "The pick (rank 1)", key
+        assert [int(row[0]) for row in stars[0]["customdata"]] == [pick]
+        assert values(stars[0]["x"]) == pytest.approx([d.loc[pick, xcol]], rel=1e-12)
+        assert values(stars[0]["y"]) == pytest.approx([d.loc[pick, ycol]], rel=1e-12)
+        # every design's hover text: the fields the template names, the design's own verdict
+        for t in data:
+            if not t.get("customdata"):
+                continue
+            fields = [int(k) for k in re.findall(r"customdata\[(\d+)\]", t["hovertemplate"])]
+            verdict = int(re.search(r"Verdict: %\{customdata\[(\d+)\]\}",
+                                    t["hovertemplate"]).group(1))
+            assert "RA: %{customdata[" in t["hovertemplate"]
+            for row in t["customdata"]:
+                assert len(row) == max(fields) + 1
+                assert row[verdict] == d.loc[int(row[0]), "verdict"]
+    # axis titles carry their units (common practice: quantity [unit])
+    def title(key: str, axis: str) -> str:
+        return charts[f"chart-{key}"][1][axis]["title"]["text"]
+
+    assert (title("map", "xaxis"), title("map", "yaxis")) == ("RA [Ω]", "RB [Ω]")
+    assert title("duty", "xaxis").endswith("[Hz]") and title("yield", "xaxis").endswith("[A]")
+    assert title("mc", "xaxis").endswith("[Hz]") and title("temperature", "yaxis").endswith("[Hz]")
+    assert title("temperature", "xaxis").endswith("[°C]")
+    # the spec (1.8 to 2.2 Hz, target 2 Hz): lines across the histogram and the drift chart
+    for key, across in (("mc", "x"), ("temperature", "y")):
+        data, layout = charts[f"chart-{key}"]
+        other = "y" if across == "x" else "x"
+        lines = {(sh[f"{across}0"], sh["line"].get("dash", "solid")) for sh in layout["shapes"]
+                 if sh[f"{other}ref"] == f"{other} domain" and sh[f"{other}0"] == 0
+                 and sh[f"{other}1"] == 1 and sh[f"{across}0"] == sh[f"{across}1"]}
+        assert lines == {(1.8, "solid"), (2.2, "solid"), (2.0, "dash")}, key
+        names = [t["name"] for t in data if t.get("legendgroup") == "spec"]
+        assert names == ["Spec limits: 1.8 Hz and 2.2 Hz", "Target: 2 Hz"], key
+
+
+def test_chart_json_is_plotly_figure_json_as_plotly_writes_it():
+    """plotly's own figure objects accept every chart (they refuse an unknown property or a
+    value of the wrong kind) and write the same JSON the page does."""
+    go = pytest.importorskip("plotly.graph_objects")
+    import plotly.io as pio
+    r = make_report(n_designs=80)
+    r.designs.loc[3, "frequency_hz_nom"] = np.nan        # a design whose timing stalls
+    sections = [s for s in build_sections(r) if s.figure is not None]
+    assert len(sections) == 6
+    for s in sections:
+        theirs = json.loads(pio.to_json(go.Figure(s.figure), validate=True))
+        assert json.loads(page._to_json(s.figure["data"])) == theirs["data"], s.key
+        assert json.loads(page._to_json(s.figure["layout"])) == theirs["layout"], s.key
+
+
+def test_json_writer_encodes_arrays_and_non_numbers_as_plotly_does():
+    pytest.importorskip("plotly")
+    from _plotly_utils.utils import convert_to_base64
+    from plotly.io.json import to_json_plotly
+    obj = {"floats": [1.5, float("nan"), float("inf"), -float("inf")],
+           "array": np.array([0.1, np.nan, np.inf, -2.0]), "small": np.array([1, -5, 120]),
+           "wide": np.array([0, 70_000]), "huge": np.array([0, 2 ** 40]),
+           "unsigned": np.array([1, 300], dtype=np.uint64), "grid": np.arange(6.0).reshape(2, 3),
+           "text": np.array(["a", "</script><b>"], dtype=object), "empty": np.array([]),
+           "scalars": [np.float64(2.5), np.int64(3), np.bool_(True)],
+           "label": "</script><script>alert(1)</script>"}
+    ours = page._to_json(obj)
+    theirs = copy.deepcopy(obj)
+    convert_to_base64(theirs)
+    assert json.loads(ours) == json.loads(to_json_plotly(theirs))
+    assert "</" not in ours and "<script" not in ours      # nothing can close the page's script
+
+
+@pytest.mark.parametrize("n", [1, 2, 3, 4, 5, 6])
+def test_design_map_panels_are_laid_out_as_plotly_lays_out_subplots(n):
+    subplots = pytest.importorskip("plotly.subplots")
+    ncols = 2 if n == 4 else min(n, 3)
+    nrows = -(-n // ncols)
+    titles = [f"C = {k} nF" for k in range(n)]
+    theirs = subplots.make_subplots(rows=nrows, cols=ncols, shared_xaxes="all",
+                                    shared_yaxes="all", subplot_titles=titles,
+                                    horizontal_spacing=0.06,
+                                    vertical_spacing=0.16 if nrows > 1 else 0.1).to_dict()["layout"]
+    theirs.pop("template")
+    ours = json.loads(json.dumps(page.map_grid(nrows, ncols, titles)))
+    assert _close(ours, theirs), (ours, theirs)
+
+
+def _close(a, b) -> bool:
+    """Equal structures, numbers equal to a relative 1e-12."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        return a.keys() == b.keys() and all(_close(a[k], b[k]) for k in a)
+    if isinstance(a, list) and isinstance(b, list):
+        return len(a) == len(b) and all(_close(x, y) for x, y in zip(a, b))
+    if isinstance(a, float) or isinstance(b, float):
+        return a == pytest.approx(b, rel=1e-12, abs=1e-15)
+    return a == b
+
+
+def test_writing_the_page_loads_no_plotly_python_and_embeds_plotlys_own_script(tmp_path):
+    out = tmp_path / "demo.html"
+    probe = f"""
+import sys
+from tests.fake_report import make_report
+from sweep.writers.page import write_page
+write_page({str(out)!r}, make_report())
+print(sorted(m for m in sys.modules if m.split(".")[0] in ("plotly", "_plotly_utils")))
+"""
+    r = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=300,
+                       cwd=pathlib.Path(__file__).resolve().parents[2])
+    assert r.returncode == 0, r.stderr
+    assert r.stdout.strip() == "[]"
+    plotly_offline = pytest.importorskip("plotly.offline")
+    text = out.read_text(encoding="utf-8")
+    assert text.count(plotly_offline.get_plotlyjs()) == 1
 
 
 # --- a real browser --------------------------------------------------------------------------
