@@ -17,6 +17,7 @@ import json
 import math
 import pathlib
 import re
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import functools
@@ -113,19 +114,29 @@ def _fmt_unit(name: str) -> str:
     return "%" if v.fmt == "pct" else v.unit
 
 
-def _fmt(value: float, name: str) -> str:
-    """One value as text a person reads: 4.7 kΩ, 100 nF, 35 %, 9.00 V."""
+def _formatter(name: str) -> Callable[[float], str]:
+    """How the values of column ``name`` are written (the registry is read once per column)."""
     v = _var(_base(name))
     if v.fmt in ("fixed1", "fixed2"):
-        x = float(value)
-        return "" if math.isnan(x) else f"{x:.{v.fmt[-1]}f} {v.unit}".strip()
-    return format_eng(value, _fmt_unit(name))
+        pattern = f"{{:.{v.fmt[-1]}f}} {v.unit}"
+
+        def fixed(value: float) -> str:
+            x = float(value)
+            return "" if math.isnan(x) else pattern.format(x).strip()
+        return fixed
+    unit = _fmt_unit(name)
+    return lambda value: format_eng(value, unit)
+
+
+def _fmt(value: float, name: str) -> str:
+    """One value as text a person reads: 4.7 kΩ, 100 nF, 35 %, 9.00 V."""
+    return _formatter(name)(value)
 
 
 def _fmt_series(values: pd.Series, name: str) -> pd.Series:
     """Text for a whole column, formatting each distinct value once (part columns repeat)."""
-    uniq = pd.unique(values.to_numpy())
-    text = {u: _fmt(u, name) for u in uniq}
+    fmt = _formatter(name)
+    text = {u: fmt(u) for u in pd.unique(values.to_numpy())}
     return values.map(text).fillna("").astype(str)
 
 
