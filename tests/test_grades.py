@@ -236,12 +236,12 @@ def test_design_map_colour_is_the_percent_error_from_the_target():
     r.spec = [SpecRow("frequency", "frequency_hz", 90.0, 110.0, 100.0)]     # +-10 % window
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
     nom = dict(zip(r.designs["design"].astype(str), r.designs["frequency_hz_nom"]))
-    coloured = [t for t in fig.data if t.customdata is not None
-                and getattr(t.marker, "coloraxis", None) == "coloraxis"]
+    coloured = [t for t in fig["data"] if t.get("customdata") is not None
+                and t["marker"].get("coloraxis") == "coloraxis"]
     assert coloured
     for t in coloured:
-        want = [(nom[row[0]] / 100.0 - 1.0) * 100.0 for row in t.customdata]
-        np.testing.assert_allclose(np.asarray(t.marker.color, float), want, rtol=1e-9)
-    cax = fig.layout.coloraxis
-    assert (cax.cmin, cax.cmax) == pytest.approx((-20.0, 20.0))   # twice the window each side
-    assert "error from the target" in cax.colorbar.title.text
+        want = [(nom[row[0]] / 100.0 - 1.0) * 100.0 for row in t["customdata"]]
+        np.testing.assert_allclose(np.asarray(t["marker"]["color"], float), want, rtol=1e-9)
+    cax = fig["layout"]["coloraxis"]
+    assert (cax["cmin"], cax["cmax"]) == pytest.approx((-20.0, 20.0))   # twice the window each side
+    assert "error from the target" in cax["colorbar"]["title"]["text"]

@@ -10,13 +10,17 @@ the page and inside the charts, whose labels plotly reads as a small subset of H
 """
 from __future__ import annotations
 
+import base64
 import html
+import importlib.util
+import json
 import math
 import pathlib
+import re
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import functools
-import importlib
 
 import numpy as np
 import pandas as pd
@@ -25,22 +29,6 @@ from sweep.report import Report
 from sweep.writers.atomic import atomic_path
 from sweep.values import format_eng
 from sweep.variables import STATS, VARIABLES, Variable
-
-
-class _OnFirstUse:
-    """A module imported when one of its names is first used: plotly takes a fifth of a second
-    to import, and commands that only read this module's constants (``check``) never draw."""
-
-    def __init__(self, name: str):
-        self._name = name
-
-    def __getattr__(self, attr: str):
-        return getattr(importlib.import_module(self._name), attr)
-
-
-go = _OnFirstUse("plotly.graph_objects")
-pio = _OnFirstUse("plotly.io")
-_subplots = _OnFirstUse("plotly.subplots")
 
 #: most designs drawn in any chart, the best-ranked first; the page says so when it cuts
 MAX_DESIGNS = 20_000
@@ -54,7 +42,13 @@ BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY, BLACK = (
 PALETTE = [BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY, BLACK]
 SYMBOLS = ["circle", "square", "diamond", "triangle-up", "triangle-down", "pentagon", "hexagon"]
 DASHES = ["solid", "dash", "dot", "dashdot", "longdash", "longdashdot"]
-SEQUENTIAL = "Cividis"   # sequential scale designed to read the same with colour-vision deficiency
+#: sequential scale designed to read the same with colour-vision deficiency: cividis (Nuñez,
+#: Anderton & Renslow 2018, "Optimizing colormaps with consideration for color vision deficiency
+#: to enable accurate interpretation of scientific data", PLoS ONE 13(7)), in the ten evenly
+#: spaced stops plotly's Python package gives it
+CIVIDIS = ["#00224e", "#123570", "#3b496c", "#575d6d", "#707173", "#8a8678", "#a59c74",
+           "#c3b369", "#e1cc55", "#fee838"]
+SEQUENTIAL = [[i / (len(CIVIDIS) - 1), c] for i, c in enumerate(CIVIDIS)]
 #: error from the target: Okabe-Ito blue (below) through pale grey (on target) to vermillion (above)
 DIVERGING = [[0.0, "#0072B2"], [0.5, "#f2f2f2"], [1.0, "#D55E00"]]
 YELLOW = "#F0E442"   # Okabe-Ito yellow: only as the fill of the black-edged pick star
@@ -74,12 +68,6 @@ HEADINGS = {
 #: the section a study with part grades adds
 COST_HEADING = "Yield against the cost of part grades"
 
-@functools.cache
-def _template():
-    """The page's chart template (made once, on first use)."""
-    return go.layout.Template(layout=_TEMPLATE_LAYOUT)
-
-
 _TEMPLATE_LAYOUT = dict(
     font=dict(family=FONT, size=13, color="#222222"),
     paper_bgcolor="white", plot_bgcolor="white", colorway=PALETTE,
@@ -92,6 +80,8 @@ _TEMPLATE_LAYOUT = dict(
                     font=dict(family=FONT, size=12, color="#222222")),
     margin=dict(l=70, r=30, t=30, b=60),
 )
+#: the page's chart template, in every figure's layout
+_TEMPLATE = {"layout": _TEMPLATE_LAYOUT}
 _CONFIG = {"displaylogo": False, "responsive": True,
            "modeBarButtonsToRemove": ["select2d", "lasso2d", "autoScale2d"]}
 
@@ -102,7 +92,7 @@ class Section:
     key: str
     heading: str
     explain: str
-    figure: go.Figure | None = None
+    figure: dict | None = None   # plotly's figure JSON: {"data": [traces], "layout": {...}}
     note: str = ""          # plain text shown above the chart (a cap, left-out rows, a skip reason)
 
 
@@ -124,19 +114,29 @@ def _fmt_unit(name: str) -> str:
     return "%" if v.fmt == "pct" else v.unit
 
 
-def _fmt(value: float, name: str) -> str:
-    """One value as text a person reads: 4.7 kΩ, 100 nF, 35 %, 9.00 V."""
+def _formatter(name: str) -> Callable[[float], str]:
+    """How the values of column ``name`` are written (the registry is read once per column)."""
     v = _var(_base(name))
     if v.fmt in ("fixed1", "fixed2"):
-        x = float(value)
-        return "" if math.isnan(x) else f"{x:.{v.fmt[-1]}f} {v.unit}".strip()
-    return format_eng(value, _fmt_unit(name))
+        pattern = f"{{:.{v.fmt[-1]}f}} {v.unit}"
+
+        def fixed(value: float) -> str:
+            x = float(value)
+            return "" if math.isnan(x) else pattern.format(x).strip()
+        return fixed
+    unit = _fmt_unit(name)
+    return lambda value: format_eng(value, unit)
+
+
+def _fmt(value: float, name: str) -> str:
+    """One value as text a person reads: 4.7 kΩ, 100 nF, 35 %, 9.00 V."""
+    return _formatter(name)(value)
 
 
 def _fmt_series(values: pd.Series, name: str) -> pd.Series:
     """Text for a whole column, formatting each distinct value once (part columns repeat)."""
-    uniq = pd.unique(values.to_numpy())
-    text = {u: _fmt(u, name) for u in uniq}
+    fmt = _formatter(name)
+    text = {u: fmt(u) for u in pd.unique(values.to_numpy())}
     return values.map(text).fillna("").astype(str)
 
 
@@ -226,18 +226,102 @@ def _axis(name: str, title: str | None = None, values: np.ndarray | None = None,
     return ax
 
 
-def _html_div(fig: go.Figure, div_id: str, first: bool, ds: "_Designs | None" = None) -> str:
-    """The chart's HTML. A trace showing the designs' hover text carries only their row
-    numbers while it is a figure object (plotly deep-copies every text cell of an object array
-    on each step: most of a big study's page time [measured]); the text goes straight into the
-    JSON here."""
-    d = fig.to_dict()
-    if ds is not None:
-        for trace, out in zip(fig.data, d.get("data", ())):
-            if _shows_designs(trace, ds):
-                out["customdata"] = ds.custom[np.asarray(trace.customdata, dtype=np.intp)]
-    return pio.to_html(d, validate=False, include_plotlyjs=first, full_html=False,
-                       config=_CONFIG, div_id=div_id, default_width="100%")
+# --- the charts as plotly's figure JSON ------------------------------------------------------
+# Each chart is the plain data plotly.js draws: {"data": [traces], "layout": {...}}, every trace
+# a dict with its "type" (plotly's figure schema, the same JSON plotly's Python figure objects
+# write). Building those objects cost most of the page's time (validation and deep copies of
+# every property [measured]), so the page writes the JSON itself.
+def _figure(data: list[dict], **layout) -> dict:
+    """A chart: its traces and its layout, on the page's template."""
+    return {"data": data, "layout": {"template": _TEMPLATE, **layout}}
+
+
+def _scatter(**props) -> dict:
+    return {"type": "scatter", **props}
+
+
+def _hline(y: float, line: dict) -> dict:
+    """A horizontal line across the whole plot at ``y`` (data units)."""
+    return dict(type="line", xref="x domain", x0=0, x1=1, yref="y", y0=y, y1=y, line=line)
+
+
+def _vline(x: float, line: dict) -> dict:
+    """A vertical line across the whole plot at ``x`` (data units)."""
+    return dict(type="line", xref="x", x0=x, x1=x, yref="y domain", y0=0, y1=1, line=line)
+
+
+#: plotly.js's names of the typed arrays it reads from base64
+_TYPED = {"int8": "i1", "uint8": "u1", "int16": "i2", "uint16": "u2", "int32": "i4",
+          "uint32": "u4", "float32": "f4", "float64": "f8"}
+
+
+def _typed_array(a: np.ndarray):
+    """A numeric array as plotly.js's typed-array JSON ({"dtype", "bdata"}: the values' bytes in
+    base64, exact and compact); 64-bit integers, which plotly.js does not read, narrowed to the
+    smallest type that holds them. Any other array as a list."""
+    if a.size and a.dtype.kind in "iu" and a.dtype.itemsize == 8:
+        lo, hi = a.min(), a.max()
+        kinds = (np.int8, np.int16, np.int32) if a.dtype.kind == "i" else (
+            np.uint8, np.uint16, np.uint32)
+        fit = next((t for t in kinds if np.iinfo(t).min <= lo and hi <= np.iinfo(t).max), None)
+        if fit is None:
+            return a.tolist()
+        a = a.astype(fit)
+    name = _TYPED.get(str(a.dtype))
+    if not a.size or name is None:
+        return a.tolist()
+    out = {"dtype": name, "bdata": base64.b64encode(np.ascontiguousarray(a)).decode("ascii")}
+    if a.ndim > 1:
+        out["shape"] = ", ".join(str(n) for n in a.shape)
+    return out
+
+
+def _json_default(o):
+    if isinstance(o, np.ndarray):
+        return _typed_array(o)
+    if isinstance(o, (pd.Series, pd.Index)):
+        return _typed_array(o.to_numpy())
+    if isinstance(o, np.generic):
+        return o.item()
+    raise TypeError(f"cannot write {type(o).__name__} into a chart")
+
+
+_BARE_CONSTANT = re.compile(r"[\[:,](?:NaN|-?Infinity)[,\]}]")
+
+
+def _to_json(obj) -> str:
+    """``obj`` as JSON to put inside a script: numpy arrays as above, NaN and infinities as
+    null (strict JSON, as plotly.js expects), and ``<``, ``>`` and ``/`` escaped, so that no text
+    in a chart can close the script or open a tag."""
+    text = json.dumps(obj, default=_json_default, separators=(",", ":"))
+    if ("NaN" in text or "Infinity" in text) and _BARE_CONSTANT.search(text):
+        text = json.dumps(json.loads(text, parse_constant=lambda _: None), separators=(",", ":"))
+    return text.replace("<", "\\u003c").replace(">", "\\u003e").replace("/", "\\u002f")
+
+
+@functools.cache
+def _plotly_js() -> str:
+    """plotly.js, as the plotly package ships it (read from the package's folder: importing the
+    package costs time the page has no use for)."""
+    spec = importlib.util.find_spec("plotly")
+    if spec is None or not spec.submodule_search_locations:
+        raise RuntimeError("the chart page needs the plotly package (its plotly.js)")
+    folder = pathlib.Path(next(iter(spec.submodule_search_locations)))
+    return (folder / "package_data" / "plotly.min.js").read_text(encoding="utf-8")
+
+
+def _chart_html(fig: dict, div_id: str, first: bool) -> str:
+    """The chart's HTML: a div and the script that draws it; the first chart of the page brings
+    plotly.js itself."""
+    height = fig["layout"].get("height")
+    height = f"{height}px" if isinstance(height, (int, float)) else "100%"
+    script = (f'if (document.getElementById("{div_id}")) {{Plotly.newPlot("{div_id}", '
+              f"{_to_json(fig['data'])}, {_to_json(fig['layout'])}, {_to_json(_CONFIG)})}};")
+    library = ("<script>window.PlotlyConfig = {MathJaxConfig: 'local'};</script>\n"
+               f'<script charset="utf-8">{_plotly_js()}</script>\n') if first else ""
+    return (f'<div style="height:{height}; width:100%;">{library}'
+            f'<div id="{div_id}" class="plotly-graph-div" style="height:100%; width:100%;"></div>'
+            f"<script>window.PLOTLYENV=window.PLOTLYENV || {{}}; {script}</script></div>")
 
 
 def _finite(a) -> np.ndarray:
@@ -293,10 +377,9 @@ class _Designs:
         return self.total > len(self.table)
 
     def hover(self, rows) -> dict:
-        """Trace settings that show the hover text of ``rows`` (mask or indices). The layout is
-        written once per trace; each design carries only its formatted values, put in place of
-        its row number when the chart is written (``_html_div``)."""
-        return dict(customdata=np.arange(len(self.custom))[rows], hovertemplate=self.template)
+        """Trace settings that show the hover text of ``rows`` (mask or indices): the layout is
+        written once per trace, each design carries only its formatted values."""
+        return dict(customdata=self.custom[rows], hovertemplate=self.template)
 
 
 def _designs(report: Report) -> _Designs:
@@ -361,36 +444,36 @@ def _cap_note(ds: _Designs) -> str:
             f"{_count(len(ds.table))} best-ranked.")
 
 
-def _pick_trace(x, y, hover: dict, size: float = 19, **kw) -> go.Scatter:
-    return go.Scatter(x=x, y=y, mode="markers", name="The pick (rank 1)", legendgroup="pick",
-                      **hover,
-                      marker=dict(symbol="star", size=size, color=YELLOW,
-                                  line=dict(color=BLACK, width=1.5)), **kw)
+def _pick_trace(x, y, hover: dict, size: float = 19, **kw) -> dict:
+    return _scatter(x=x, y=y, mode="markers", name="The pick (rank 1)", legendgroup="pick",
+                    **hover, marker=dict(symbol="star", size=size, color=YELLOW,
+                                         line=dict(color=BLACK, width=1.5)), **kw)
 
 
-def _legend_only(name: str, group: str, **style) -> go.Scatter:
+def _legend_only(name: str, group: str, **style) -> dict:
     """A legend entry with no data: it explains a mark or line drawn elsewhere."""
-    return go.Scatter(x=[None], y=[None], name=name, legendgroup=group, hoverinfo="skip",
-                      **style)
+    return _scatter(x=[None], y=[None], name=name, legendgroup=group, hoverinfo="skip", **style)
 
 
-def _spec_lines(fig: go.Figure, report: Report, axis: str) -> None:
+def _spec_lines(report: Report, axis: str) -> tuple[list[dict], list[dict]]:
     """The spec limits (solid) and target (dashed) on the main output as lines across the
-    plot, named in the legend rather than with labels that could sit on the data."""
+    plot, named in the legend rather than with labels that could sit on the data: (the lines,
+    their legend entries)."""
     lo, hi, target = _main_limits(report)
     unit = _fmt_unit(report.main_output)
-    add = fig.add_vline if axis == "x" else fig.add_hline
+    line_at = _vline if axis == "x" else _hline
     limits = [v for v in (lo, hi) if np.isfinite(v)]
-    for v in limits:
-        add(v, line=dict(color=LIMIT, width=2.5))
+    shapes = [line_at(v, dict(color=LIMIT, width=2.5)) for v in limits]
+    legend = []
     if limits:
         text = " and ".join(format_eng(v, unit) for v in limits)
-        fig.add_trace(_legend_only(f"Spec limit{'s' if len(limits) > 1 else ''}: {text}", "spec",
+        legend.append(_legend_only(f"Spec limit{'s' if len(limits) > 1 else ''}: {text}", "spec",
                                    mode="lines", line=dict(color=LIMIT, width=2.5)))
     if target is not None and np.isfinite(target):
-        add(target, line=dict(color=BLACK, width=1.5, dash="dash"))
-        fig.add_trace(_legend_only(f"Target: {format_eng(target, unit)}", "spec", mode="lines",
+        shapes.append(line_at(target, dict(color=BLACK, width=1.5, dash="dash")))
+        legend.append(_legend_only(f"Target: {format_eng(target, unit)}", "spec", mode="lines",
                                    line=dict(color=BLACK, width=1.5, dash="dash")))
+    return shapes, legend
 
 
 # --- 1. design map -----------------------------------------------------------------------------
@@ -492,14 +575,11 @@ def _map_section(report: Report, ds: _Designs) -> Section:
 
     xax, yax = _axis(xcol, values=x_all, discrete=True), _axis(ycol, values=y_all, discrete=True)
     xtitle, ytitle = xax.pop("title")["text"], yax.pop("title")["text"]
-    fig = _subplots.make_subplots(rows=nrows, cols=ncols, shared_xaxes="all", shared_yaxes="all",
-                        subplot_titles=[html.escape(n) for n in names] if facets and fcol else None,
-                        horizontal_spacing=0.06, vertical_spacing=0.16 if nrows > 1 else 0.1)
-    spans = []
+    data, spans = [], []
     for i, (value, m) in enumerate(groups):
-        row, col = (i // ncols + 1, i % ncols + 1) if facets else (1, 1)
+        panel = _panel_axes(i + 1 if facets else 1)
         show = facets or i == 0
-        start = len(fig.data)
+        start = len(data)
         for key in (MAP_BREAKS, MAP_BLANK, MAP_NEAR, MAP_MEETS):   # faded first, best on top
             sel = m & (state == key)
             if not sel.any():
@@ -507,37 +587,38 @@ def _map_section(report: Report, ds: _Designs) -> Section:
             name, style, colour = marks[key]
             marker = dict(style, color=colour) if colour else dict(
                 style, color=cval[sel], coloraxis="coloraxis")
-            fig.add_trace(go.Scatter(
+            data.append(_scatter(
                 x=x_all[sel], y=y_all[sel], mode="markers", name=name, legendgroup=key,
-                showlegend=False, marker=marker, **ds.hover(sel), visible=show), row=row, col=col)
+                showlegend=False, marker=marker, **ds.hover(sel), visible=show, **panel))
         sel = m & ds.pick
         if sel.any():
-            fig.add_trace(_pick_trace(x_all[sel], y_all[sel], ds.hover(sel), visible=show,
-                                      showlegend=False, size=size + 9), row=row, col=col)
-        spans.append((start, len(fig.data)))
+            data.append(_pick_trace(x_all[sel], y_all[sel], ds.hover(sel), visible=show,
+                                    showlegend=False, size=size + 9, **panel))
+        spans.append((start, len(data)))
     # the legend: one entry per state present, in the order a reader looks for them
-    keys = len(fig.data)
+    keys = len(data)
     for key in (MAP_MEETS, MAP_NEAR, MAP_BREAKS, MAP_BLANK):
         if (state == key).any():
             name, style, colour = marks[key]
             legend = dict(style, size=max(style["size"], 7) if key == MAP_BREAKS else 12,
                           color=colour or "#6b6b6b")
-            fig.add_trace(_legend_only(name, key, mode="markers", marker=legend))
+            data.append(_legend_only(name, key, mode="markers", marker=legend))
     if ds.pick.any():
-        fig.add_trace(_legend_only("The pick (rank 1)", "pick", mode="markers", marker=dict(
+        data.append(_legend_only("The pick (rank 1)", "pick", mode="markers", marker=dict(
             symbol="star", size=17, color=YELLOW, line=dict(color=BLACK, width=1.5))))
 
-    _map_axes(fig, xax, yax, (xtitle, ytitle), nrows, ncols, len(groups) if facets else 1)
+    layout = map_grid(nrows, ncols, [html.escape(n) for n in names] if facets and fcol else [])
+    _map_axes(layout, xax, yax, (xtitle, ytitle), nrows, ncols, len(groups) if facets else 1)
     cax = _map_colour_axis(ccol, nomcol, craw, clog, err_span, main)
     top = 80 if not facets else 50
     plot_h = 360 * nrows
     height = plot_h + top + 150
-    fig.update_layout(template=_template(), coloraxis=cax, height=height,
-                      legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
-                      margin=dict(l=90, r=30, t=top, b=150))
+    layout.update(coloraxis=cax, height=height,
+                  legend=dict(orientation="h", x=0, y=-105 / plot_h, yanchor="top"),
+                  margin=dict(l=90, r=30, t=top, b=150))
     if not facets:
-        _map_dropdown(fig, spans, names, keys, flabel)
-    sec.figure = fig
+        _map_dropdown(layout, spans, names, keys, len(data), flabel)
+    sec.figure = _figure(data, **layout)
 
     sec.explain = _map_explain(report, (xcol, ycol, fcol), len(groups), facets, err_span,
                                (nomcol, ccol), state, has_spec)
@@ -548,24 +629,70 @@ def _map_section(report: Report, ds: _Designs) -> Section:
     return sec
 
 
-def _map_axes(fig, xax: dict, yax: dict, titles: tuple[str, str], nrows: int, ncols: int,
-              used: int) -> None:
+def _panel_axes(k: int) -> dict:
+    """The axes of the map's ``k``-th panel (from 1, row by row from the top left), as a trace
+    names them."""
+    return dict(xaxis=f"x{k if k > 1 else ''}", yaxis=f"y{k if k > 1 else ''}")
+
+
+def map_grid(nrows: int, ncols: int, titles: list[str]) -> dict:
+    """The layout of the map's grid of panels (axes and panel titles), laid out as plotly's
+    ``make_subplots`` lays out a grid whose panels all share their x and their y axis: the
+    panels 0.06 of the width apart across and 0.16 of the height apart down (0.1 with one row),
+    numbered row by row from the top left; every axis matches the lowest-left panel's, whose
+    tick labels stand for the rest (the x ticks on the lowest row, the y ticks on the first
+    column); each title centred above its panel."""
+    hspace, vspace = 0.06, 0.16 if nrows > 1 else 0.1
+    widths = [(1.0 - hspace * (ncols - 1)) / ncols] * ncols
+    heights = [(1.0 - vspace * (nrows - 1)) / nrows] * nrows
+    first = (nrows - 1) * ncols + 1
+    layout: dict = {}
+    notes = []
+    for i in range(nrows * ncols):
+        row, col = divmod(i, ncols)
+        k = i + 1
+        x0 = sum(widths[:col]) + col * hspace
+        up = nrows - 1 - row                    # rows below this one
+        y0 = sum(heights[:up]) + up * vspace
+        xdom, ydom = [x0, x0 + widths[col]], [y0, min(y0 + heights[-1 - row], 1.0)]
+        own, lowest_left = _panel_axes(k), _panel_axes(first)
+        xaxis = dict(anchor=own["yaxis"], domain=xdom)
+        yaxis = dict(anchor=own["xaxis"], domain=ydom)
+        if k != first:
+            xaxis["matches"], yaxis["matches"] = lowest_left["xaxis"], lowest_left["yaxis"]
+            if row < nrows - 1:
+                xaxis["showticklabels"] = False
+            if col > 0:
+                yaxis["showticklabels"] = False
+        layout[f"xaxis{k if k > 1 else ''}"] = xaxis
+        layout[f"yaxis{k if k > 1 else ''}"] = yaxis
+        if i < len(titles) and titles[i]:
+            notes.append(dict(text=titles[i], x=sum(xdom) / 2.0, y=ydom[1], xref="paper",
+                              yref="paper", xanchor="center", yanchor="bottom", showarrow=False,
+                              font=dict(size=16)))
+    if notes:
+        layout["annotations"] = notes
+    return layout
+
+
+def _map_axes(layout: dict, xax: dict, yax: dict, titles: tuple[str, str], nrows: int,
+              ncols: int, used: int) -> None:
     """The map's axes: titles on the axes themselves, held off the tick labels, so long ticks
     never cover them; the x ticks on the lowest panel of each column; unused panels hidden."""
     xtitle, ytitle = titles
-    fig.update_xaxes(**xax)
-    fig.update_yaxes(**yax)
     for i in range(nrows * ncols):
-        row, col = i // ncols + 1, i % ncols + 1
+        col = i % ncols + 1
+        k = "" if i == 0 else i + 1
+        xaxis, yaxis = layout[f"xaxis{k}"], layout[f"yaxis{k}"]
+        xaxis.update(xax)
+        yaxis.update(yax)
         if i >= used:
-            fig.update_xaxes(visible=False, row=row, col=col)
-            fig.update_yaxes(visible=False, row=row, col=col)
+            xaxis["visible"] = yaxis["visible"] = False
             continue
         if i + ncols >= used:          # nothing below it: this panel carries the x ticks
-            fig.update_xaxes(showticklabels=True, title=dict(text=html.escape(xtitle), standoff=12),
-                             row=row, col=col)
+            xaxis.update(showticklabels=True, title=dict(text=html.escape(xtitle), standoff=12))
         if col == 1:
-            fig.update_yaxes(title=dict(text=html.escape(ytitle), standoff=12), row=row, col=col)
+            yaxis["title"] = dict(text=html.escape(ytitle), standoff=12)
 
 
 def _map_colour_axis(ccol: str | None, nomcol: str | None, craw: np.ndarray, clog: bool,
@@ -591,21 +718,19 @@ def _map_colour_axis(ccol: str | None, nomcol: str | None, craw: np.ndarray, clo
     return cax
 
 
-def _map_dropdown(fig, spans: list[tuple[int, int]], names: list[str], keys: int,
-                  flabel: str) -> None:
+def _map_dropdown(layout: dict, spans: list[tuple[int, int]], names: list[str], keys: int,
+                  n: int, flabel: str) -> None:
     """One panel at a time: a list at the top left shows one value of the third part (the
-    legend traces, from index ``keys`` on, stay visible)."""
-    n = len(fig.data)
+    legend traces, from index ``keys`` on, stay visible; ``n`` traces in all)."""
     buttons = [dict(label=html.escape(name), method="update",
                     args=[{"visible": [start <= k < stop or k >= keys for k in range(n)]}])
                for (start, stop), name in zip(spans, names)]
-    fig.update_layout(
-        updatemenus=[dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left", y=1.02,
-                          yanchor="bottom", showactive=True, bgcolor="white",
-                          bordercolor="#9a9a9a")])
-    fig.add_annotation(text=f"Showing {html.escape(flabel)}:", x=0, xref="paper",
-                       xanchor="right", xshift=-6, y=1.045, yref="paper", yanchor="bottom",
-                       showarrow=False)
+    layout["updatemenus"] = [dict(type="dropdown", buttons=buttons, x=0.0, xanchor="left",
+                                  y=1.02, yanchor="bottom", showactive=True, bgcolor="white",
+                                  bordercolor="#9a9a9a")]
+    layout.setdefault("annotations", []).append(dict(
+        text=f"Showing {html.escape(flabel)}:", x=0, xref="paper", xanchor="right", xshift=-6,
+        y=1.045, yref="paper", yanchor="bottom", showarrow=False))
 
 
 def _map_explain(report: Report, cols: tuple, n_groups: int, facets: bool,
@@ -684,12 +809,12 @@ MARKS_BREAK = dict(symbol="circle", size=5, color="#9a9a9a", opacity=0.55, line=
 MARKS_MEET = dict(symbol="circle", size=9, color=BLUE, line=dict(width=1.2, color=BLACK))
 
 
-def _design_marks(fig: go.Figure, x: np.ndarray, y: np.ndarray, ds: _Designs) -> None:
-    for name, sel, marker in (("Not a pass (small, grey)", ~ds.passes, MARKS_BREAK),
-                              ("Verdict pass (blue, dark edge)", ds.passes, MARKS_MEET)):
-        if sel.any():
-            fig.add_trace(go.Scatter(x=x[sel], y=y[sel], mode="markers", name=name,
-                                     marker=marker, **ds.hover(sel)))
+def _design_marks(x: np.ndarray, y: np.ndarray, ds: _Designs) -> list[dict]:
+    return [_scatter(x=x[sel], y=y[sel], mode="markers", name=name, marker=marker,
+                     **ds.hover(sel))
+            for name, sel, marker in (("Not a pass (small, grey)", ~ds.passes, MARKS_BREAK),
+                                      ("Verdict pass (blue, dark edge)", ds.passes, MARKS_MEET))
+            if sel.any()]
 
 
 def _duty_section(report: Report, ds: _Designs) -> Section:
@@ -712,32 +837,30 @@ def _duty_section(report: Report, ds: _Designs) -> Section:
     dlo, dhi = _spec_of(report, "duty")
     xr = _padded(f, (flo, fhi), log=True)
     yr = _padded(du, (dlo, dhi), log=False, clip=(0.0, 1.0))
-    fig = go.Figure()
-    notes = []
+    data, shapes, notes = [], [], []
     if any(np.isfinite(v) for v in (flo, fhi, dlo, dhi)):
         x0 = flo if np.isfinite(flo) and flo > 0 else 10 ** xr[0]
         x1 = fhi if np.isfinite(fhi) else 10 ** xr[1]
         y0 = dlo if np.isfinite(dlo) else yr[0]
         y1 = dhi if np.isfinite(dhi) else yr[1]
         box = dict(fillcolor="rgba(86,180,233,0.28)", line=dict(color=BLUE, width=1.5, dash="dash"))
-        fig.add_shape(type="rect", xref="x", yref="y", x0=x0, x1=x1, y0=y0, y1=y1,
-                      layer="below", **box)
-        fig.add_trace(_legend_only("Spec: the allowed region", "spec", mode="markers",
-                                   marker=dict(symbol="square", size=15, color=box["fillcolor"],
-                                               line=dict(color=BLUE, width=1.5))))
+        shapes.append(dict(type="rect", xref="x", yref="y", x0=x0, x1=x1, y0=y0, y1=y1,
+                           layer="below", **box))
+        data.append(_legend_only("Spec: the allowed region", "spec", mode="markers",
+                                 marker=dict(symbol="square", size=15, color=box["fillcolor"],
+                                             line=dict(color=BLUE, width=1.5))))
     else:
         notes.append("The spec sets no limit on frequency or duty, so no box is drawn.")
-    _design_marks(fig, f, du, ds)
+    data += _design_marks(f, du, ds)
     if ds.pick.any():
-        fig.add_trace(_pick_trace(f[ds.pick], du[ds.pick], ds.hover(ds.pick)))
+        data.append(_pick_trace(f[ds.pick], du[ds.pick], ds.hover(ds.pick)))
     xax = _axis("frequency_hz", _header("frequency_hz", "(nominal)"), values=f,
                 span=(10 ** xr[0], 10 ** xr[1]))
-    fig.update_layout(template=_template(), height=480,
-                      xaxis=dict(**xax, range=list(xr)),
-                      yaxis=dict(**_axis("duty", "Duty cycle (nominal)"), range=list(yr)),
-                      legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
-                      margin=dict(b=110))
-    sec.figure = fig
+    sec.figure = _figure(data, height=480, **({"shapes": shapes} if shapes else {}),
+                         xaxis=dict(**xax, range=list(xr)),
+                         yaxis=dict(**_axis("duty", "Duty cycle (nominal)"), range=list(yr)),
+                         legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
+                         margin=dict(b=110))
     sec.note = " ".join(n for n in notes + [_cap_note(ds)] if n)
     return sec
 
@@ -764,25 +887,23 @@ def _yield_section(report: Report, ds: _Designs) -> Section:
     x, y = d[cur].to_numpy(float), d["yield"].to_numpy(float)
     front = pareto_frontier(x, y)
     order = np.flatnonzero(front)[np.argsort(x[front], kind="stable")]
-    fig = go.Figure()
-    _design_marks(fig, x, y, ds)
-    fig.add_trace(go.Scatter(x=x[order], y=y[order], mode="lines+markers", line_shape="hv",
-                             name="Frontier: no design has more yield for less current",
-                             line=dict(color=BLACK, width=2),
-                             marker=dict(symbol="circle-open", size=12, color=BLACK,
-                                         line=dict(width=1.5)),
-                             **ds.hover(order)))
+    data = _design_marks(x, y, ds)
+    data.append(_scatter(x=x[order], y=y[order], mode="lines+markers",
+                         name="Frontier: no design has more yield for less current",
+                         line=dict(color=BLACK, width=2, shape="hv"),
+                         marker=dict(symbol="circle-open", size=12, color=BLACK,
+                                     line=dict(width=1.5)),
+                         **ds.hover(order)))
     if ds.pick.any():
-        fig.add_trace(_pick_trace(x[ds.pick], y[ds.pick], ds.hover(ds.pick)))
+        data.append(_pick_trace(x[ds.pick], y[ds.pick], ds.hover(ds.pick)))
     xr = _padded(x, (np.nan, np.nan), log=True)
     xax = _axis(cur, _header(cur, "(highest)" if worst else "(nominal)"), values=x,
                 span=(10 ** xr[0], 10 ** xr[1]))
-    fig.update_layout(template=_template(), height=480,
-                      xaxis=dict(**xax, range=list(xr)),
-                      yaxis=dict(title=dict(text="Yield"), tickformat=".0%", range=[-0.04, 1.06]),
-                      legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
-                      margin=dict(b=110))
-    sec.figure = fig
+    sec.figure = _figure(data, height=480, xaxis=dict(**xax, range=list(xr)),
+                         yaxis=dict(title=dict(text="Yield"), tickformat=".0%",
+                                    range=[-0.04, 1.06]),
+                         legend=dict(orientation="h", x=0, y=-0.22, yanchor="top"),
+                         margin=dict(b=110))
     sec.note = _cap_note(ds)
     return sec
 
@@ -849,20 +970,19 @@ def _mc_section(report: Report) -> Section:
         sec.note = "none of the pick's Monte Carlo builds produced a value (the timing stalls)."
         return sec
     unit = _fmt_unit(main)
-    fig = go.Figure(go.Histogram(x=vals, nbinsx=min(60, max(10, int(np.sqrt(vals.size)))),
-                                 marker=dict(color=BLUE, line=dict(color="white", width=0.5)),
-                                 name="Results", showlegend=False,
-                                 hovertemplate=f"%{{x}} {html.escape(unit)}: %{{y}} results"
-                                               "<extra></extra>"))
-    _spec_lines(fig, report, "x")
+    bars = dict(type="histogram", x=vals, nbinsx=min(60, max(10, int(np.sqrt(vals.size)))),
+                marker=dict(color=BLUE, line=dict(color="white", width=0.5)),
+                name="Results", showlegend=False,
+                hovertemplate=f"%{{x}} {html.escape(unit)}: %{{y}} results<extra></extra>")
+    shapes, legend = _spec_lines(report, "x")
     xr = _padded(vals, _main_limits(report)[:2], log=False)
     xax = _axis(main, values=vals, span=xr, log=False, count=10)
-    fig.update_layout(template=_template(), height=440, bargap=0.02,
-                      xaxis=dict(**xax, range=list(xr)),
-                      yaxis=dict(title=dict(text="Results (build × condition)")),
-                      legend=dict(orientation="h", x=0, y=-0.24, yanchor="top"),
-                      margin=dict(t=20, b=110))
-    sec.figure = fig
+    sec.figure = _figure([bars] + legend, height=440, bargap=0.02,
+                         **({"shapes": shapes} if shapes else {}),
+                         xaxis=dict(**xax, range=list(xr)),
+                         yaxis=dict(title=dict(text="Results (build × condition)")),
+                         legend=dict(orientation="h", x=0, y=-0.24, yanchor="top"),
+                         margin=dict(t=20, b=110))
     notes = [_mc_counts(report, raw.size)]
     dropped = raw.size - vals.size
     if dropped:
@@ -902,8 +1022,7 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
     if "rank" in ds.table.columns and "design" in ds.table.columns:
         design_of = dict(zip(ds.table["rank"], ds.table["design"]))
     unit = _fmt_unit(main)
-    fig = go.Figure()
-    _drift_band(fig, tc, ranks[0], vccs, unit)
+    data = _drift_band(tc, ranks[0], vccs)
     for i, r in enumerate(ranks):
         colour, symbol = PALETTE[i % len(PALETTE)], SYMBOLS[i % len(SYMBOLS)]
         group = f"Rank {r}" + (f" (design {design_of[r]})" if r in design_of else "")
@@ -914,46 +1033,48 @@ def _temperature_section(report: Report, ds: _Designs) -> Section:
             vt = format_eng(v, "V")
             hover = [f"{html.escape(group)}, {vt} supply<br>{t:g} °C: {format_eng(val, unit)}"
                      for t, val in zip(sub["temperature_c"], sub["value"])]
-            fig.add_trace(go.Scatter(
-                x=sub["temperature_c"], y=sub["value"], mode="lines+markers",
-                name=f"{vt} supply", legendgroup=f"rank{r}",
+            data.append(_scatter(
+                x=sub["temperature_c"].to_numpy(), y=sub["value"].to_numpy(),
+                mode="lines+markers", name=f"{vt} supply", legendgroup=f"rank{r}",
                 legendgrouptitle=dict(text=html.escape(group)),
                 line=dict(color=colour, dash=DASHES[j % len(DASHES)], width=2),
                 marker=dict(symbol=symbol, size=8, color=colour),
                 text=hover, hovertemplate="%{text}<extra></extra>"))
-    _spec_lines(fig, report, "y")
+    shapes, legend = _spec_lines(report, "y")
     lo, hi, target = _main_limits(report)
     yr = _padded(tc["value"].to_numpy(float), (lo, hi, np.nan if target is None else target),
                  log=False)
     rows = len(ranks) * (len(vccs) + 1) + 2          # legend lines: group titles, supplies, spec
-    fig.update_layout(template=_template(), height=max(460, 190 + 21 * rows + 8 * len(ranks)),
-                      xaxis=dict(title=dict(text=_header("temperature_c")), ticksuffix=" °C"),
-                      yaxis=dict(**_axis(main, values=tc["value"].to_numpy(float), span=yr,
-                                         log=False, count=8), range=list(yr)),
-                      legend=dict(groupclick="toggleitem", tracegroupgap=8),
-                      margin=dict(r=20, t=20))
-    sec.figure = fig
+    sec.figure = _figure(data + legend, height=max(460, 190 + 21 * rows + 8 * len(ranks)),
+                         **({"shapes": shapes} if shapes else {}),
+                         xaxis=dict(title=dict(text=_header("temperature_c")), ticksuffix=" °C"),
+                         yaxis=dict(**_axis(main, values=tc["value"].to_numpy(float), span=yr,
+                                            log=False, count=8), range=list(yr)),
+                         legend=dict(groupclick="toggleitem", tracegroupgap=8),
+                         margin=dict(r=20, t=20))
     return sec
 
 
-def _drift_band(fig, tc: pd.DataFrame, rank, vccs, unit: str) -> None:
+def _drift_band(tc: pd.DataFrame, rank, vccs) -> list[dict]:
     """Shaded bands around the best design's line at the middle supply: the chip's drift and
     supply sensitivity at their maximum (light) and typical (darker) figures."""
     if not {"drift_typ", "drift_max"} <= set(tc.columns):
-        return
+        return []
     v = vccs[len(vccs) // 2]
     sub = tc[(tc["rank"] == rank) & (tc["vcc_v"] == v)]
     if sub.empty or not np.any(sub["drift_max"].to_numpy(float) > 0):
-        return
+        return []
     t = sub["temperature_c"].to_numpy(float)
     y = sub["value"].to_numpy(float)
+    bands = []
     for col, shade, name in (("drift_max", "rgba(120,120,120,0.16)", "chip drift, maximum"),
                              ("drift_typ", "rgba(120,120,120,0.30)", "chip drift, typical")):
         w = sub[col].to_numpy(float)
-        fig.add_trace(go.Scatter(
+        bands.append(_scatter(
             x=np.r_[t, t[::-1]], y=np.r_[y * (1 + w), (y * (1 - w))[::-1]], fill="toself",
             fillcolor=shade, line=dict(width=0), mode="lines", name=name, legendgroup="drift",
             hoverinfo="skip"))
+    return bands
 
 
 # --- 6. parallel coordinates -------------------------------------------------------------------
@@ -1038,12 +1159,10 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
     # right margin below the labels
     half = [4.0 * len(labels[0]) + 16, 4.0 * len(labels[-1]) + 16]
     right = max(half[1], 110 if "yield" in cols else 30)
-    fig = go.Figure(go.Parcoords(dimensions=dims, line=line,
-                                 labelfont=dict(size=13), tickfont=dict(size=11),
-                                 rangefont=dict(size=1, color="rgba(0,0,0,0)")))
-    fig.update_layout(template=_template(), height=540,
-                      margin=dict(l=max(80, int(half[0])), r=int(right), t=80, b=40))
-    sec.figure = fig
+    lines = dict(type="parcoords", dimensions=dims, line=line, labelfont=dict(size=13),
+                 tickfont=dict(size=11), rangefont=dict(size=1, color="rgba(0,0,0,0)"))
+    sec.figure = _figure([lines], height=540,
+                         margin=dict(l=max(80, int(half[0])), r=int(right), t=80, b=40))
     good = ("Colour is the yield: pale grey lines are designs with little or none, and the "
             "darker and bluer a line the higher its yield; the best are drawn last, on top. "
             if "yield" in cols else "")
@@ -1074,20 +1193,9 @@ def _parallel_section(report: Report, ds: _Designs) -> Section:
 
 # --- the page ----------------------------------------------------------------------------------
 def build_sections(report: Report) -> list[Section]:
-    """The sections of the page, each with its figure or the reason it has none; every trace
-    that shows the designs' hover text carries that text, as the page's JSON does."""
-    ds = _designs(report)
-    sections = _sections(report, ds)
-    for s in sections:
-        for trace in (s.figure.data if s.figure is not None else ()):
-            if _shows_designs(trace, ds):
-                trace.customdata = ds.custom[np.asarray(trace.customdata, dtype=np.intp)]
-    return sections
-
-
-def _shows_designs(trace, ds: _Designs) -> bool:
-    """The trace shows the designs' hover text (and carries their row numbers)."""
-    return getattr(trace, "hovertemplate", None) == ds.template and trace.customdata is not None
+    """The sections of the page, each with its figure (plotly's figure JSON, as the page
+    writes it) or the reason it has none."""
+    return _sections(report, _designs(report))
 
 
 def _sections(report: Report, ds: _Designs) -> list[Section]:
@@ -1111,24 +1219,26 @@ def _waveform_section(report: Report) -> Section:
                    f"show: {what}. Blue is the nominal condition, vermillion the condition where "
                    "the pick's timing lies farthest from nominal; the dotted lines are the "
                    "thresholds. The same table is in waveform.csv.")
-    fig = go.Figure()
+    data, shapes = [], []
     for (label, colour) in (("nominal", BLUE), ("worst case", VERMILLION)):
         sub = tr.table[tr.table["condition"] == label]
         if sub.empty:
             continue
         name = html.escape(f"{label} ({tr.described.get(label, '')})")
-        fig.add_trace(go.Scatter(x=sub["time_s"], y=sub["capacitor_v"], mode="lines",
-                                 name=f"capacitor, {name}", line=dict(color=colour, width=2)))
-        fig.add_trace(go.Scatter(x=sub["time_s"], y=sub["output_v"], mode="lines",
-                                 name=f"output, {name}", line=dict(color=colour, width=1.5, dash="dash")))
-        for v in tr.thresholds.get(label, ()):
-            fig.add_hline(y=v, line=dict(color=colour, width=1, dash="dot"))
-    fig.update_layout(template=_template(), height=560,
-                      xaxis=dict(title=dict(text="Time [s]"), exponentformat="SI", ticksuffix="s"),
-                      yaxis=dict(title=dict(text="Voltage [V]"), ticksuffix=" V"),
-                      legend=dict(orientation="h", yanchor="top", y=-0.22, x=0),
-                      margin=dict(r=20, t=20, b=140))
-    sec.figure = fig
+        time_s = sub["time_s"].to_numpy()
+        data.append(_scatter(x=time_s, y=sub["capacitor_v"].to_numpy(), mode="lines",
+                             name=f"capacitor, {name}", line=dict(color=colour, width=2)))
+        data.append(_scatter(x=time_s, y=sub["output_v"].to_numpy(), mode="lines",
+                             name=f"output, {name}",
+                             line=dict(color=colour, width=1.5, dash="dash")))
+        shapes += [_hline(v, dict(color=colour, width=1, dash="dot"))
+                   for v in tr.thresholds.get(label, ())]
+    sec.figure = _figure(data, height=560, **({"shapes": shapes} if shapes else {}),
+                         xaxis=dict(title=dict(text="Time [s]"), exponentformat="SI",
+                                    ticksuffix="s"),
+                         yaxis=dict(title=dict(text="Voltage [V]"), ticksuffix=" V"),
+                         legend=dict(orientation="h", yanchor="top", y=-0.22, x=0),
+                         margin=dict(r=20, t=20, b=140))
     return sec
 
 
@@ -1154,13 +1264,13 @@ def _cost_section(report: Report) -> Section:
              + (f"yield {r['yield'] * 100:.1f} % (95 %: {r.yield_lo * 100:.1f} to "
                 f"{r.yield_hi * 100:.1f} %)" if np.isfinite(r["yield"]) else "no yield figure")
              for _, r in g.iterrows()]
-    fig = go.Figure()
+    data, shapes = [], []
     reach = g["reaches"].to_numpy(bool)
     for mask, name, colour in ((reach, "Reaches the yield target", BLUE),
                                (~reach, "Does not reach it", VERMILLION)):
         if not mask.any():
             continue
-        fig.add_trace(go.Scatter(
+        data.append(_scatter(
             x=cost[mask], y=y[mask], mode="markers+text", name=name,
             text=[html.escape(str(t)) for t in g["grade_label"][mask]], textposition="top center",
             error_y=dict(type="data", symmetric=False, array=(hi - y)[mask],
@@ -1168,18 +1278,20 @@ def _cost_section(report: Report) -> Section:
             marker=dict(size=11, color=colour, symbol="circle", line=dict(width=1, color=BLACK)),
             hovertext=np.array(hover, dtype=object)[mask], hoverinfo="text"))
     if pick.any():
-        fig.add_trace(_pick_trace(cost[pick], y[pick], dict(hovertext=np.array(hover, dtype=object)[pick],
-                                                            hoverinfo="text")))
+        data.append(_pick_trace(cost[pick], y[pick],
+                                dict(hovertext=np.array(hover, dtype=object)[pick],
+                                     hoverinfo="text")))
     if target:
-        fig.add_hline(target * 100, line=dict(color=BLACK, width=1.5, dash="dash"))
-        fig.add_trace(_legend_only(f"Yield target: {target * 100:g} %", "spec", mode="lines",
-                                   line=dict(color=BLACK, width=1.5, dash="dash")))
-    fig.update_layout(template=_template(), height=460, margin=dict(l=90, r=30, t=40, b=120),
-                      legend=dict(orientation="h", x=0, y=-0.25, yanchor="top"),
-                      xaxis=dict(title="Relative cost index of the timing parts' grades "
-                                       "(rough common-practice figures [cp], not quotes)"),
-                      yaxis=dict(title="Yield of the grade's best design [%]"))
-    sec.figure = fig
+        shapes.append(_hline(target * 100, dict(color=BLACK, width=1.5, dash="dash")))
+        data.append(_legend_only(f"Yield target: {target * 100:g} %", "spec", mode="lines",
+                                 line=dict(color=BLACK, width=1.5, dash="dash")))
+    sec.figure = _figure(data, height=460, **({"shapes": shapes} if shapes else {}),
+                         margin=dict(l=90, r=30, t=40, b=120),
+                         legend=dict(orientation="h", x=0, y=-0.25, yanchor="top"),
+                         xaxis=dict(title=dict(text="Relative cost index of the timing parts' "
+                                                    "grades (rough common-practice figures "
+                                                    "[cp], not quotes)")),
+                         yaxis=dict(title=dict(text="Yield of the grade's best design [%]")))
     return sec
 
 
@@ -1278,7 +1390,8 @@ def render_page(report: Report) -> str:
             parts.append(f'<p class="how">{s.explain}</p>')
             if s.note:
                 parts.append(f'<p class="note">{s.note}</p>')
-            parts.append(f'<div class="chart">{_html_div(s.figure, f"chart-{s.key}", first, ds)}</div>')
+            chart = _chart_html(s.figure, f"chart-{s.key}", first)
+            parts.append(f'<div class="chart">{chart}</div>')
             first = False
         parts.append("</section>")
     parts.append("</main>")

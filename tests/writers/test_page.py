@@ -5,11 +5,16 @@ checks that plotly really drew every chart with no script error.
 """
 from __future__ import annotations
 
+import base64
+import copy
 import dataclasses
 import html
+import json
 import os
 import pathlib
 import re
+import subprocess
+import sys
 
 import numpy as np
 import pandas as pd
@@ -72,9 +77,15 @@ def luminance(hex_colour: str) -> float:
     return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
 
 
+def shown(fig):
+    """The traces of a figure (plotly's figure JSON) that draw designs: legend-only entries
+    carry no hover data."""
+    return [t for t in fig["data"] if t.get("customdata") is not None]
+
+
 def map_points(fig):
-    """Design numbers drawn as data marks on the design map (legend-only entries carry none)."""
-    return [row[0] for t in fig.data if t.customdata is not None for row in t.customdata]
+    """Design numbers drawn as data marks on the design map."""
+    return [row[0] for t in shown(fig) for row in t["customdata"]]
 
 
 # --- the file ----------------------------------------------------------------------------------
@@ -131,7 +142,7 @@ def test_failed_write_keeps_the_old_file_and_leaves_no_temporary(tmp_path, monke
 def test_hover_and_ticks_use_engineering_notation():
     r = make_report(n_designs=40)
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    row = next(t.customdata[0] for t in fig.data if t.customdata is not None)
+    row = shown(fig)[0]["customdata"][0]
     design = r.designs.set_index("design").loc[int(row[0])]
     # common practice: 4700 ohm is written 4.7 kΩ, 1e-7 F is 100 nF
     expected = {4.7e3: "4.7 kΩ", 1e3: "1 kΩ", 2.2e3: "2.2 kΩ", 10e3: "10 kΩ", 22e3: "22 kΩ",
@@ -139,10 +150,11 @@ def test_hover_and_ticks_use_engineering_notation():
                 470e-9: "470 nF"}
     assert list(row[2:5]) == [expected[design["ra_ohm"]], expected[design["rb_ohm"]],
                               expected[design["c_f"]]]
-    assert fig.layout.xaxis.type == "log" and fig.layout.yaxis.type == "log"
-    assert "4.7 kΩ" in fig.layout.xaxis.ticktext or "4.7 kΩ" in fig.layout.yaxis.ticktext
+    xaxis, yaxis = fig["layout"]["xaxis"], fig["layout"]["yaxis"]
+    assert xaxis["type"] == "log" and yaxis["type"] == "log"
+    assert "4.7 kΩ" in xaxis["ticktext"] or "4.7 kΩ" in yaxis["ticktext"]
     duty = next(s.figure for s in build_sections(r) if s.key == "duty")
-    assert duty.layout.xaxis.type == "log"
+    assert duty["layout"]["xaxis"]["type"] == "log"
 
 
 def test_map_draws_each_design_in_its_state_and_the_states_apart_without_colour():
@@ -157,19 +169,19 @@ def test_map_draws_each_design_in_its_state_and_the_states_apart_without_colour(
             "near": set(d.loc[inside & ~passes, "design"].astype(str)),
             "breaks": set(d.loc[~inside & ~passes, "design"].astype(str))}
     assert all(want.values()), "the example must have designs in every state"
-    drawn = [t for t in fig.data if t.customdata is not None and t.legendgroup in want]
-    got = {k: {row[0] for t in drawn if t.legendgroup == k for row in t.customdata}
+    drawn = [t for t in shown(fig) if t["legendgroup"] in want]
+    got = {k: {row[0] for t in drawn if t["legendgroup"] == k for row in t["customdata"]}
            for k in want}
     assert got == want
-    style = {t.legendgroup: t.marker for t in drawn}
+    style = {t["legendgroup"]: t["marker"] for t in drawn}
     # told apart by size, fill and edge, not by colour alone (colour-blind readers)
-    assert style["breaks"].size < style["near"].size <= style["meets"].size
-    assert style["breaks"].opacity < 1 and not style["breaks"].line.width
-    assert style["near"].symbol == "circle-open" and style["meets"].symbol == "circle"
-    assert style["meets"].line.width >= 1 and style["meets"].line.color == "#000000"
+    assert style["breaks"]["size"] < style["near"]["size"] <= style["meets"]["size"]
+    assert style["breaks"]["opacity"] < 1 and not style["breaks"]["line"]["width"]
+    assert style["near"]["symbol"] == "circle-open" and style["meets"]["symbol"] == "circle"
+    assert style["meets"]["line"]["width"] >= 1 and style["meets"]["line"]["color"] == "#000000"
     # in every panel the good designs are drawn after (on top of) the faded ones
-    for panel in {t.xaxis for t in drawn}:
-        order = [t.legendgroup for t in drawn if t.xaxis == panel]
+    for panel in {t["xaxis"] for t in drawn}:
+        order = [t["legendgroup"] for t in drawn if t["xaxis"] == panel]
         later = [k for k in ("near", "meets") if k in order]
         if "breaks" in order and later:
             assert order.index("breaks") < min(order.index(k) for k in later)
@@ -191,29 +203,31 @@ def test_map_states_at_realistic_density():
     assert (states[outside & ~ds.passes] == "breaks").all()
     # the marks shrink with the grid but stay visible
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    sizes = [t.marker.size for t in fig.data if t.customdata is not None]
+    sizes = [t["marker"]["size"] for t in shown(fig)]
     assert min(sizes) >= 3
 
 
 def test_map_axis_titles_sit_on_the_axes_held_off_the_ticks():
     fig = next(s.figure for s in build_sections(make_report(n_designs=60)) if s.key == "map")
     # titles placed as free annotations at a fixed distance ran into long tick labels
-    assert not any(a.text in ("RA [Ω]", "RB [Ω]") for a in fig.layout.annotations)
-    assert fig.layout.yaxis.title.text == "RB [Ω]" and fig.layout.yaxis.title.standoff >= 8
-    bottom = [fig.layout[k] for k in fig.layout if k.startswith("xaxis")]
-    assert any(ax.title.text == "RA [Ω]" and ax.title.standoff >= 8 for ax in bottom)
-    assert fig.layout.template.layout.yaxis.automargin      # the margin grows to hold them
+    layout = fig["layout"]
+    assert not any(a["text"] in ("RA [Ω]", "RB [Ω]") for a in layout.get("annotations", []))
+    ytitle = layout["yaxis"]["title"]
+    assert ytitle["text"] == "RB [Ω]" and ytitle["standoff"] >= 8
+    bottom = [layout[k]["title"] for k in layout if k.startswith("xaxis") and "title" in layout[k]]
+    assert any(t["text"] == "RA [Ω]" and t["standoff"] >= 8 for t in bottom)
+    assert layout["template"]["layout"]["yaxis"]["automargin"]    # the margin grows to hold them
 
 
 def test_parallel_lines_put_the_good_designs_on_top_in_dark_colours():
     r = make_report(n_designs=200)
-    pc = next(s.figure for s in build_sections(r) if s.key == "parallel").data[0]
-    colours = np.asarray(pc.line.color, dtype=float)
+    pc = next(s.figure for s in build_sections(r) if s.key == "parallel")["data"][0]
+    colours = np.asarray(pc["line"]["color"], dtype=float)
     # drawn in rising yield, so the best lines come last and lie on top
     assert (np.diff(colours) >= 0).all()
     assert colours[-1] == pytest.approx(r.designs["yield"].max())
     # no yield is pale, full yield dark: a yield of 0 must not be the loudest colour
-    scale = pc.line.colorscale
+    scale = pc["line"]["colorscale"]
     assert scale[0][0] == 0 and scale[-1][0] == 1
     assert luminance(scale[0][1]) > 0.7 and luminance(scale[-1][1]) < 0.1
     lum = [luminance(c) for _, c in scale]
@@ -245,10 +259,10 @@ def test_latch_charts_follow_the_supply_current_with_units_and_its_builds():
     assert mc.note.startswith("100 builds × 9 conditions = 900 results")
     assert "dashed" not in mc.explain, "the latch spec has no target line to describe"
     # SI quantities carry their unit on every tick (common practice: 40 mA, not 40m)
-    ticks = list(mc.figure.layout.xaxis.ticktext)
+    ticks = list(mc.figure["layout"]["xaxis"]["ticktext"])
     assert ticks and all(t.endswith(" mA") for t in ticks), ticks
     temp = sections["temperature"].figure
-    ticks = list(temp.layout.yaxis.ticktext)
+    ticks = list(temp["layout"]["yaxis"]["ticktext"])
     assert ticks and all(t.endswith(" mA") for t in ticks), ticks
     assert "five best-ranked" not in sections["temperature"].explain
     # with Monte Carlo turned off the section says so, and does not blame the circuit
@@ -260,7 +274,7 @@ def test_latch_charts_follow_the_supply_current_with_units_and_its_builds():
 def test_timer_histogram_and_drift_ticks_carry_hertz():
     sections = {s.key: s for s in build_sections(make_report())}
     for fig, axis in ((sections["mc"].figure, "xaxis"), (sections["temperature"].figure, "yaxis")):
-        ticks = list(fig.layout[axis].ticktext)
+        ticks = list(fig["layout"][axis]["ticktext"])
         assert len(ticks) >= 3 and all(t.endswith("Hz") for t in ticks), ticks
 
 
@@ -269,14 +283,14 @@ def test_many_values_of_the_third_part_give_a_dropdown():
     values = np.array([1e-9, 2.2e-9, 4.7e-9, 10e-9, 22e-9, 47e-9, 100e-9, 220e-9])
     r.designs["c_f"] = values[np.arange(len(r.designs)) % len(values)]
     fig = next(s.figure for s in build_sections(r) if s.key == "map")
-    buttons = fig.layout.updatemenus[0].buttons
-    assert [b.label for b in buttons] == ["C = 1 nF", "C = 2.2 nF", "C = 4.7 nF", "C = 10 nF",
-                                          "C = 22 nF", "C = 47 nF", "C = 100 nF", "C = 220 nF"]
+    buttons = fig["layout"]["updatemenus"][0]["buttons"]
+    assert [b["label"] for b in buttons] == ["C = 1 nF", "C = 2.2 nF", "C = 4.7 nF", "C = 10 nF",
+                                             "C = 22 nF", "C = 47 nF", "C = 100 nF", "C = 220 nF"]
     c_of = r.designs.set_index("design")["c_f"]
     for b, value in zip(buttons, values):
-        shown = [t for t, vis in zip(fig.data, b.args[0]["visible"])
-                 if vis and t.customdata is not None]
-        designs = [int(row[0]) for t in shown for row in t.customdata]
+        visible = [t for t, vis in zip(fig["data"], b["args"][0]["visible"])
+                   if vis and t.get("customdata") is not None]
+        designs = [int(row[0]) for t in visible for row in t["customdata"]]
         assert designs and all(c_of[n] == value for n in designs)
 
 
@@ -287,7 +301,7 @@ def test_cap_keeps_the_best_ranked_and_says_so(monkeypatch):
     best = set(r.designs.loc[r.designs["rank"] <= 5, "design"].astype(str))
     assert set(map_points(sections["map"].figure)) == best
     assert "30 designs" in sections["map"].note and "5 best-ranked" in sections["map"].note
-    assert len(sections["parallel"].figure.data[0].dimensions[0].values) == 5
+    assert len(sections["parallel"].figure["data"][0]["dimensions"][0]["values"]) == 5
 
 
 def brute_force_frontier(current, yld):
@@ -306,6 +320,154 @@ def test_frontier_matches_the_definition():
     # a hand example: (1 mA, 50 %), (2 mA, 90 %) on it; (3 mA, 80 %) beaten by (2 mA, 90 %)
     got = pareto_frontier(np.array([1e-3, 2e-3, 3e-3, np.nan]), np.array([0.5, 0.9, 0.8, 1.0]))
     assert got.tolist() == [True, True, False, False]
+
+
+# --- the charts as the page writes them -------------------------------------------------------
+def page_charts(text: str) -> dict[str, tuple[list, dict]]:
+    """Chart id -> (data, layout): the figure JSON each ``Plotly.newPlot`` call of a page draws."""
+    charts, decoder = {}, json.JSONDecoder()
+    for m in re.finditer(r'Plotly\.newPlot\("([^"]+)", ', text):
+        data, end = decoder.raw_decode(text, m.end())
+        layout, _ = decoder.raw_decode(text, end + 2)
+        charts[m.group(1)] = (data, layout)
+    return charts
+
+
+def values(v) -> list:
+    """An array of a chart: a list, or plotly.js's typed array (its bytes in base64)."""
+    if isinstance(v, dict):
+        dtype = {"f8": "<f8", "f4": "<f4", "i1": "i1", "i2": "<i2", "i4": "<i4", "u1": "u1",
+                 "u2": "<u2", "u4": "<u4"}[v["dtype"]]
+        return np.frombuffer(base64.b64decode(v["bdata"]), dtype=dtype).tolist()
+    return list(v)
+
+
+def test_page_charts_hold_what_the_page_promises(tmp_path):
+    r = make_report(n_designs=60)
+    out = tmp_path / "demo.html"
+    write_page(out, r)
+    charts = page_charts(out.read_text(encoding="utf-8"))
+    assert list(charts) == ["chart-map", "chart-duty", "chart-yield", "chart-mc",
+                            "chart-temperature", "chart-parallel"]
+    d = r.designs.set_index("design")
+    pick = int(r.designs.loc[r.designs["rank"] == 1, "design"].iloc[0])
+    for key, (xcol, ycol) in {"map": ("ra_ohm", "rb_ohm"),
+                              "duty": ("frequency_hz_nom", "duty_nom"),
+                              "yield": ("supply_current_a_max", "yield")}.items():
+        data, layout = charts[f"chart-{key}"]
+        # the star is the rank-1 design, drawn where its values are
+        stars = [t for t in data if t.get("marker", {}).get("symbol") == "star"
+                 and t.get("customdata")]
+        assert len(stars) == 1 and stars[0]["name"] == "The pick (rank 1)", key
+        assert [int(row[0]) for row in stars[0]["customdata"]] == [pick]
+        assert values(stars[0]["x"]) == pytest.approx([d.loc[pick, xcol]], rel=1e-12)
+        assert values(stars[0]["y"]) == pytest.approx([d.loc[pick, ycol]], rel=1e-12)
+        # every design's hover text: the fields the template names, the design's own verdict
+        for t in data:
+            if not t.get("customdata"):
+                continue
+            fields = [int(k) for k in re.findall(r"customdata\[(\d+)\]", t["hovertemplate"])]
+            verdict = int(re.search(r"Verdict: %\{customdata\[(\d+)\]\}",
+                                    t["hovertemplate"]).group(1))
+            assert "RA: %{customdata[" in t["hovertemplate"]
+            for row in t["customdata"]:
+                assert len(row) == max(fields) + 1
+                assert row[verdict] == d.loc[int(row[0]), "verdict"]
+    # axis titles carry their units (common practice: quantity [unit])
+    def title(key: str, axis: str) -> str:
+        return charts[f"chart-{key}"][1][axis]["title"]["text"]
+
+    assert (title("map", "xaxis"), title("map", "yaxis")) == ("RA [Ω]", "RB [Ω]")
+    assert title("duty", "xaxis").endswith("[Hz]") and title("yield", "xaxis").endswith("[A]")
+    assert title("mc", "xaxis").endswith("[Hz]") and title("temperature", "yaxis").endswith("[Hz]")
+    assert title("temperature", "xaxis").endswith("[°C]")
+    # the spec (1.8 to 2.2 Hz, target 2 Hz): lines across the histogram and the drift chart
+    for key, across in (("mc", "x"), ("temperature", "y")):
+        data, layout = charts[f"chart-{key}"]
+        other = "y" if across == "x" else "x"
+        lines = {(sh[f"{across}0"], sh["line"].get("dash", "solid")) for sh in layout["shapes"]
+                 if sh[f"{other}ref"] == f"{other} domain" and sh[f"{other}0"] == 0
+                 and sh[f"{other}1"] == 1 and sh[f"{across}0"] == sh[f"{across}1"]}
+        assert lines == {(1.8, "solid"), (2.2, "solid"), (2.0, "dash")}, key
+        names = [t["name"] for t in data if t.get("legendgroup") == "spec"]
+        assert names == ["Spec limits: 1.8 Hz and 2.2 Hz", "Target: 2 Hz"], key
+
+
+def test_chart_json_is_plotly_figure_json_as_plotly_writes_it():
+    """plotly's own figure objects accept every chart (they refuse an unknown property or a
+    value of the wrong kind) and write the same JSON the page does."""
+    go = pytest.importorskip("plotly.graph_objects")
+    import plotly.io as pio
+    r = make_report(n_designs=80)
+    r.designs.loc[3, "frequency_hz_nom"] = np.nan        # a design whose timing stalls
+    sections = [s for s in build_sections(r) if s.figure is not None]
+    assert len(sections) == 6
+    for s in sections:
+        theirs = json.loads(pio.to_json(go.Figure(s.figure), validate=True))
+        assert json.loads(page._to_json(s.figure["data"])) == theirs["data"], s.key
+        assert json.loads(page._to_json(s.figure["layout"])) == theirs["layout"], s.key
+
+
+def test_json_writer_encodes_arrays_and_non_numbers_as_plotly_does():
+    pytest.importorskip("plotly")
+    from _plotly_utils.utils import convert_to_base64
+    from plotly.io.json import to_json_plotly
+    obj = {"floats": [1.5, float("nan"), float("inf"), -float("inf")],
+           "array": np.array([0.1, np.nan, np.inf, -2.0]), "small": np.array([1, -5, 120]),
+           "wide": np.array([0, 70_000]), "huge": np.array([0, 2 ** 40]),
+           "unsigned": np.array([1, 300], dtype=np.uint64), "grid": np.arange(6.0).reshape(2, 3),
+           "text": np.array(["a", "</script><b>"], dtype=object), "empty": np.array([]),
+           "scalars": [np.float64(2.5), np.int64(3), np.bool_(True)],
+           "label": "</script><script>alert(1)</script>"}
+    ours = page._to_json(obj)
+    theirs = copy.deepcopy(obj)
+    convert_to_base64(theirs)
+    assert json.loads(ours) == json.loads(to_json_plotly(theirs))
+    assert "</" not in ours and "<script" not in ours      # nothing can close the page's script
+
+
+@pytest.mark.parametrize("n", [1, 2, 3, 4, 5, 6])
+def test_design_map_panels_are_laid_out_as_plotly_lays_out_subplots(n):
+    subplots = pytest.importorskip("plotly.subplots")
+    ncols = 2 if n == 4 else min(n, 3)
+    nrows = -(-n // ncols)
+    titles = [f"C = {k} nF" for k in range(n)]
+    theirs = subplots.make_subplots(rows=nrows, cols=ncols, shared_xaxes="all",
+                                    shared_yaxes="all", subplot_titles=titles,
+                                    horizontal_spacing=0.06,
+                                    vertical_spacing=0.16 if nrows > 1 else 0.1).to_dict()["layout"]
+    theirs.pop("template")
+    ours = json.loads(json.dumps(page.map_grid(nrows, ncols, titles)))
+    assert _close(ours, theirs), (ours, theirs)
+
+
+def _close(a, b) -> bool:
+    """Equal structures, numbers equal to a relative 1e-12."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        return a.keys() == b.keys() and all(_close(a[k], b[k]) for k in a)
+    if isinstance(a, list) and isinstance(b, list):
+        return len(a) == len(b) and all(_close(x, y) for x, y in zip(a, b))
+    if isinstance(a, float) or isinstance(b, float):
+        return a == pytest.approx(b, rel=1e-12, abs=1e-15)
+    return a == b
+
+
+def test_writing_the_page_loads_no_plotly_python_and_embeds_plotlys_own_script(tmp_path):
+    out = tmp_path / "demo.html"
+    probe = f"""
+import sys
+from tests.fake_report import make_report
+from sweep.writers.page import write_page
+write_page({str(out)!r}, make_report())
+print(sorted(m for m in sys.modules if m.split(".")[0] in ("plotly", "_plotly_utils")))
+"""
+    r = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=300,
+                       cwd=pathlib.Path(__file__).resolve().parents[2])
+    assert r.returncode == 0, r.stderr
+    assert r.stdout.strip() == "[]"
+    plotly_offline = pytest.importorskip("plotly.offline")
+    text = out.read_text(encoding="utf-8")
+    assert text.count(plotly_offline.get_plotlyjs()) == 1
 
 
 # --- a real browser --------------------------------------------------------------------------
