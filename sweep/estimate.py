@@ -84,8 +84,8 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     return Estimate(nd * nc, evals, int(mem), seconds, rate, write)
 
 
-PAGE_SECONDS = 0.5      # the chart page: plotly's script and six charts [measured: 0.45-0.53 s
-                        # for the example studies]
+PAGE_SECONDS = 0.15     # the chart page: plotly's script and six charts [measured: 0.13-0.18 s
+                        # for bike-light on a loaded 2-core machine]
 PAGE_DESIGN_SECONDS = 20e-6   # per design drawn on the page (up to its cap) [measured]
 
 
