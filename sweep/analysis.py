@@ -86,7 +86,7 @@ def mc_draws(study: Study, n: int) -> dict[str, np.ndarray]:
         return {k: np.zeros(0) for k in names}
     u = sobol_points(n, len(names), study.seed).T    # a count not a power of two is fine here
     u = np.clip(u, 1e-12, 1 - 1e-12)
-    from scipy.special import ndtri     # the standard normal's inverse distribution function
+    from .normal import ndtri     # the standard normal's inverse distribution function
     z = ndtri(u)
     out = {}
     for i, k in enumerate(names):

@@ -101,9 +101,10 @@ def test_run_loads_the_writers_only_when_it_writes(tmp_path, study):
     assert (tmp_path / "out" / "small.xlsx").is_file()
 
 
-def test_a_monte_carlo_run_never_imports_scipy_stats(tmp_path):
-    """The Monte Carlo's Sobol points come from sweep.sobol: scipy.stats (about 1 s to import)
-    stays out of a run that draws builds."""
+def test_a_monte_carlo_run_never_imports_scipy_stats_or_special(tmp_path):
+    """The Monte Carlo's Sobol points come from sweep.sobol and its normal deviates from
+    sweep.normal: scipy.stats (about 1 s to import) and scipy.special (about 0.2 s) stay out of
+    a run that draws builds."""
     study = tmp_path / "mc.toml"
     study.write_text(SMALL.replace("monte_carlo = 0", "monte_carlo = 64"), encoding="utf-8")
     _, out = loaded_after(f"""
@@ -114,8 +115,9 @@ def test_a_monte_carlo_run_never_imports_scipy_stats(tmp_path):
         run_study(load_study({str(study)!r}), Path({str(tmp_path / 'out')!r}))
         designs = pd.read_parquet({str(tmp_path / 'out' / 'designs.parquet')!r})
         print(int(designs.filter(like="_mc_").notna().to_numpy().sum()))
-        print("scipy.stats" in sys.modules, "sweep.sobol" in sys.modules)
+        print(*(m in sys.modules for m in ("scipy.stats", "scipy.special", "sweep.sobol",
+                                            "sweep.normal")))
         """, tmp_path)
     mc_cells, flags = out.split("\n", 1)
     assert int(mc_cells) > 0                  # the probe's run really drew builds
-    assert flags.split() == ["False", "True"], flags
+    assert flags.split() == ["False", "False", "True", "True"], flags
