@@ -364,7 +364,7 @@ def _monte_carlo(study, design, cond, outs, n_mc, ideal, chunk):
 
 #: Monte Carlo evaluations per kernel call when the kernel folds the sums in (engine.fold_block):
 #: only the inputs and the condition-level arrays scale with it, never the grid of outputs
-FOLD_CHUNK = 1 << 18
+FOLD_CHUNK = 1 << 20
 
 
 def _folded_monte_carlo(study, design, cond, outs, z, n_mc, ideal, nd, nc):
