@@ -146,6 +146,33 @@ def test_part_multipliers_given_apart_equal_their_product(circuit, drop, timer, 
 
 
 @variants()
+@pytest.mark.parametrize("builds", [3, 4], ids=["builds-divide-a-tile", "builds-straddle-tiles"])
+def test_agrees_across_many_tiles(circuit, drop, builds):
+    """Enough points for many tiles, with builds whose factors vary along the builds and the
+    conditions: the kernel gathers an input that lays out the same in every tile only once,
+    which must hold whether a tile holds whole periods of builds (273 rows of 15 conditions,
+    3 builds) or not (4 builds)."""
+    tm = TIMERS["cmos"]
+    rng = np.random.default_rng(21)
+    kw = grid(tm, seed=9, n_designs=1000)
+    kw["c"] = np.array(4.7e-6)          # one capacitor: C lays out the same in every tile too
+    nc = kw["vcc"].shape[-1]
+    assert kernel.TILE_POINTS // nc % 3 == 0 and kernel.TILE_POINTS // nc % 4 != 0
+    cond_build = (1, builds, nc)
+    kw.update(iq_factor=rng.uniform(0.5, 2.0, cond_build), load_factor=rng.uniform(0.9, 1.1, cond_build),
+              stage_factor=rng.uniform(0.8, 1.3, (1, builds, 1)), leak_factor=rng.uniform(1, 5, cond_build),
+              input_period=2e-3)
+    factors = {"c": rng.uniform(0.8, 1.2, cond_build), "ra": rng.uniform(0.9, 1.1, (1, builds, 1))}
+    parts = Parts(capacitor="electrolytic", capacitor_voltage_v=16.0, diode_drop_v=drop)
+    want = model.evaluate(circuit, tm, parts, LOADS["led-ground"],
+                          **{k: (v * factors[k] if k in factors else v) for k, v in kw.items()})
+    got = kernel.evaluate(circuit, tm, parts, LOADS["led-ground"], **kw,
+                          **{f"{k}_factor": m for k, m in factors.items()})
+    assert np.prod(np.shape(got["flag_mask"])) > 8 * kernel.TILE_POINTS
+    assert_same(want, got)
+
+
+@variants()
 def test_agrees_on_swept_load_control_voltage_and_odd_shapes(circuit, drop):
     tm = TIMERS["bipolar"]
     parts = Parts(capacitor="X7R", discharge_resistor_ohm=47.0, diode_drop_v=drop)

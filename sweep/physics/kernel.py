@@ -364,12 +364,18 @@ def _run(st, circuit, quad, pool, ix, sc, lk, rows, step, nb, nc, bufs, res, fla
     need += [st.ISAT, st.NVT, st.IREV] if shockley else []
     need += [st.S0, st.S1, st.S2, st.A, st.H] if quad else []
     need += [st.TIN] if circuit == "missing-pulse" else []
+    # an input that does not vary along the designs, and either not along the builds or in
+    # whole periods of them per tile, lays out the same in every tile: gathered once, in the
+    # first tile (the longest). parts_row rewrites RA, RB, R and C in place: gathered each time.
+    same = [n for n in need if ix[n, 1] == 0 and (ix[n, 2] == 0 or step % nb == 0)
+            and n not in (st.RA, st.RB, st.R, st.C)]
+    varying = np.array([n for n in need if n not in same], dtype=np.int64)
     need = np.array(need, dtype=np.int64)
     for r0 in range(0, rows, step):
         r1 = min(rows, r0 + step)
         m = (r1 - r0) * nc
         o = r0 * nc if tile is None else 0
-        st.gather(pool, ix, need, r0, r1, nb, nc, t)
+        st.gather(pool, ix, need if r0 == 0 else varying, r0, r1, nb, nc, t)
         st.parts_row(t, lk, two, m)
         e_m, lg_m = e[:, :m], lg[:, :m]
         if circuit == "astable-diode":
