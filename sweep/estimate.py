@@ -13,6 +13,7 @@ from .spreads import extra_spreads
 from .case import axis_values
 from .engine import DEFAULT_CHUNK, evaluate_block
 from .errors import InputError
+from .physics import kernel
 from .limits import MC_DESIGNS, PARQUET_POINTS, WORKBOOK_DESIGNS, WORKBOOK_POINTS
 from .study import Study
 
@@ -81,9 +82,14 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     ncol = 7 * len(summary_outputs(study)) + 20
     mem = (250 * 2**20 + max(DEFAULT_CHUNK, nc) * 16 * 80 * 8 + nd * 10 * 8 * 3
            + min(nd, WORKBOOK_DESIGNS) * ncol * 8 * 4)
+    case = study.case
+    if kernel.wanted(case.circuit, case.timer, case.parts, case.load, case.ideal, nd * nc):
+        mem += KERNEL_BYTES
     return Estimate(nd * nc, evals, int(mem), seconds, rate, write)
 
 
+#: numba and the kernel's cached stages, loaded where the kernel runs the sweep [measured: 61 MiB]
+KERNEL_BYTES = 64 * 2**20
 PAGE_SECONDS = 0.15     # the chart page: plotly's script and six charts [measured: 0.13-0.18 s
                         # for bike-light on a loaded 2-core machine]
 PAGE_DESIGN_SECONDS = 20e-6   # per design drawn on the page (up to its cap) [measured]

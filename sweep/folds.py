@@ -34,12 +34,12 @@ class _Fold:
     def start(self, st, rows: dict[str, int], extra: dict, shape3: tuple, width: int):
         """The tile function of one kernel call: rows are the stages' output rows, extra the
         outputs at the condition level (physics.kernel._rows, _extra)."""
-        from .physics.kernel import _join, _segment
+        from .physics.kernel import operand_pool
         fd = _compiled()
         operands: list = []
 
         def operand(x) -> int:
-            operands.append(_segment(np.asarray(x, dtype=np.float64)))
+            operands.append(x)
             return len(operands) - 1
         n = len(self.recipes)
         src, op = np.zeros(n, np.int64), np.zeros(n, np.int64)
@@ -49,7 +49,7 @@ class _Fold:
             op[o] = step
             opa[o] = operand(1.0 if a is None else a)
             opb[o] = operand(0.0 if b is None else b)
-        pool, ix = _join(operands)
+        pool, ix = operand_pool(operands)
         vals = np.empty((n, width))
         nb, nc = shape3[1], shape3[2]
         fold = self._tile(fd, nb, nc)

@@ -91,3 +91,16 @@ def test_the_guard_names_each_limit_crossed_and_the_largest_axis(study):
 def test_human_time_converts_with_60_s_a_minute_and_3600_s_an_hour(seconds, words):
     # [std: the minute and the hour, BIPM SI brochure table 8]
     assert human_time(seconds) == words
+
+
+def test_the_memory_counts_the_kernel_where_it_runs(study, monkeypatch):
+    # numba and the cached stages take about 61 MiB once loaded [measured]; the estimate adds
+    # them only where the kernel runs the sweep
+    from sweep.estimate import KERNEL_BYTES
+    from sweep.physics import kernel
+    monkeypatch.setenv(kernel.ENV, "0")
+    without = estimate(study, sample=200).bytes
+    monkeypatch.setenv(kernel.ENV, "1")
+    monkeypatch.setattr(kernel, "MIN_POINTS", 1)
+    with_kernel = estimate(study, sample=200).bytes
+    assert with_kernel - without == (KERNEL_BYTES if kernel.available() else 0)

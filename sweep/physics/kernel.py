@@ -219,6 +219,14 @@ def _segment(x):
     return a3.ravel(), [0 if a3.shape[d] == 1 else a3.strides[d] // 8 for d in range(3)]
 
 
+def operand_pool(arrays) -> tuple[np.ndarray, np.ndarray]:
+    """Arrays of at most three axes (designs, builds, conditions; scalars too) as one float64
+    pool and an index of (offset, strides along designs, builds, conditions) per array, the
+    layout the compiled stages and folds read (an axis an array does not vary along has stride
+    0)."""
+    return _join([_segment(np.asarray(x, dtype=np.float64)) for x in arrays])
+
+
 def _join(segments):
     """One pool of every segment's values and the index of (offset, strides) per input."""
     index = np.zeros((len(segments), 4), dtype=np.int64)
