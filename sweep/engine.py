@@ -80,12 +80,10 @@ def evaluate_block(case: Case, design: dict[str, np.ndarray], conditions: dict[s
                                 with_spec=with_spec, compiled=compiled)
     factored = variation is not None and _axes(variation) > 1
     if compiled is None:
-        # the worst case's factored corners (spreads.Corners) stay on the numpy model, whose
-        # broadcasting evaluates each step once per combination of the spreads it depends on;
-        # the kernel would evaluate every corner in full. Measured with
-        # tests/benchmarks/corners.py at the analysis's block size: factored 1.6x the kernel's
-        # speed on the astable-diode, 1.2x on the astable; pass 1 of a 1e8-point astable sweep
-        # ran as fast either way (395-422 k points/s)
+        # the worst case's factored corners stay on the numpy model, whose broadcasting
+        # evaluates each step once per combination of the spreads it depends on; where the
+        # kernel runs the sweep, the analysis folds the corners of the circuits in
+        # analysis.FOLDED_CORNERS through fold_block instead (tests/benchmarks/corners.py)
         compiled = not factored and kernel.wanted(case.circuit, case.timer, case.parts, case.load,
                                                   ideal, case.points)
     if compiled and factored:

@@ -18,7 +18,7 @@ p = 0 gives -inf, p = 1 gives +inf, p outside [0, 1] or NaN gives NaN (a NaN inp
 sign bit flipped, as in the C code; a scalar gives a numpy scalar).
 
 The natural logarithms must be the C library's ``log``, which the compiled ndtri calls: numpy's
-own vectorised float64 log (on processors with AVX-512) differs from it by one unit in the last
+own vectorised float64 log (on processors with the widest vector instructions) differs from it by one unit in the last
 place on about one input in a thousand, enough to move the tail's result by one unit too.
 numpy's vectorised loop takes only outputs of positive stride; `_c_log` writes into a reversed
 view, so numpy calls the C library's log element by element (still one ufunc call, no Python

@@ -47,10 +47,27 @@ monte_carlo = 60
 """
 
 
+#: every part given as a condition: no design axis at all, one design
+NO_DESIGN = """
+[study]
+circuit = "astable"
+timer = "cmos"
+[design]
+[conditions]
+vcc = [5, 12]
+ra = ["10k"]
+rb = ["47k"]
+c = ["100n"]
+[analysis]
+monte_carlo = 40
+"""
+
+
 def _compiled_studies():
     out = [pytest.param(load_study(p), id=p.stem) for p in EXAMPLES]
     out += [pytest.param(parse_study(t, f"{k}.toml"), id=k) for k, t in VARIANTS.items()]
     out.append(pytest.param(parse_study(STALLS, "stalls.toml"), id="stalls"))
+    out.append(pytest.param(parse_study(NO_DESIGN, "no-design.toml"), id="no-design"))
     return [p for p in out if p.values[0].circuit in kernel.COMPILED]
 
 
@@ -146,3 +163,27 @@ def test_a_big_sweep_folds_inside_the_kernel(monkeypatch):
     kinds = {type(f).__name__ for f in calls}
     assert "Moments" in kinds
     assert ("Extremes" in kinds) == (study.circuit in analysis.FOLDED_CORNERS)
+
+
+def test_graded_blocks_grow_only_where_every_grade_folds(monkeypatch):
+    # each grade's sub-study counts only its own points: where they fall under the kernel's
+    # threshold they keep the factored corners, and with them the smaller blocks
+    study = parse_study("""
+[study]
+circuit = "astable"
+timer = "cmos"
+[design]
+ra = { series = "E12", min = "1k", max = "1M" }
+rb = { series = "E12", min = "1k", max = "1M" }
+c = ["1n", "10n"]
+resistor_tolerance = ["1%", "5%"]
+[conditions]
+vcc = [5, 15]
+""", "grades.toml")
+    assert len(study.grade_plan) == 2
+    monkeypatch.setattr(kernel, "MIN_POINTS", study.n_points)          # the whole study, no grade
+    assert not analysis.folds_corners(study, False)
+    assert analysis.block_points(study, False) == analysis.ANALYSIS_CHUNK
+    monkeypatch.setattr(kernel, "MIN_POINTS", 1)
+    assert analysis.folds_corners(study, False)
+    assert analysis.block_points(study, False) == analysis.FOLDED_CHUNK

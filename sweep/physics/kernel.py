@@ -25,9 +25,10 @@ from .circuits import REGISTRY
 from .model import FLAG_BITS
 from .nodes import node_capacitance
 from .output import output_states
-from .parts import (LEAKAGE_TYPICAL_SHARE, LEAKAGE_VOLTAGE_EXPONENT, Load, Parts,
-                    capacitance_temperature_factor, leakage_floor_a, reverse_current_at,
-                    saturation_at, thermal_voltage_v)
+from .parts import (INSULATION_MAX_OHM, INSULATION_TIME_S, LEAKAGE_A_PER_UF_V,
+                    LEAKAGE_TYPICAL_SHARE, LEAKAGE_VOLTAGE_EXPONENT, Load, Parts,
+                    capacitance_temperature_factor, leakage_floor_a, leakage_temperature_factor,
+                    reverse_current_at, saturation_at, thermal_voltage_v)
 from .timer import TimerModel
 
 #: circuits with compiled stages; the others (astable-symmetric, bistable) use the reference model
@@ -178,7 +179,7 @@ def _conditions(st, circuit, timer, parts, load, ideal, *, vcc, temperature, con
     else:
         r_max = np.inf
     # the wet capacitors' leakage factors of the condition [parts.leakage_conductance_s]
-    pt = 2.5 ** ((t_amb - 20.0) / 40.0)
+    pt = leakage_temperature_factor(t_amb)
     v_rated = parts.capacitor_voltage_v
     spow = np.clip(v_up / v_rated, 1e-6, 1.0) ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
     inputs = {st.VCC: vcc, st.TAMB: t_amb, st.VUP: v_up, st.RF: rf, st.CTF: ctf, st.PT: pt,
@@ -195,11 +196,11 @@ def _conditions(st, circuit, timer, parts, load, ideal, *, vcc, temperature, con
 
 
 def _part_scalars(st, timer: TimerModel, parts: Parts, ideal: bool) -> np.ndarray:
-    """The scalars of stages.parts_row: the leakage's kind, floor [A], rated voltage [V] and
-    typical share [parts.leakage_conductance_s, leakage_max_a], the timer's smallest resistor
-    and capacitor and their flag bits."""
+    """The scalars of stages.parts_row: the leakage's kind, floor [A], rated voltage [V],
+    typical share and rules [parts.leakage_conductance_s, leakage_max_a], the timer's smallest
+    resistor and capacitor and their flag bits."""
     cap = parts.technology
-    lk = np.zeros(8)
+    lk = np.zeros(st.N_LK)
     lk[st.LK_KIND] = (st.LEAK_NONE if ideal else st.LEAK_WET if cap.leakage in WET
                       else st.LEAK_INSULATION)
     lk[st.LK_FLOOR] = leakage_floor_a(cap)
@@ -208,6 +209,8 @@ def _part_scalars(st, timer: TimerModel, parts: Parts, ideal: bool) -> np.ndarra
     lk[st.LK_RMIN], lk[st.LK_CMIN] = timer.min_resistance_ohm, timer.min_capacitance_f
     lk[st.LK_BIT_R] = FLAG_BITS["resistor-too-small"]
     lk[st.LK_BIT_C] = FLAG_BITS["capacitor-too-small"]
+    lk[st.LK_RULE], lk[st.LK_INS_R], lk[st.LK_INS_T] = (LEAKAGE_A_PER_UF_V, INSULATION_MAX_OHM,
+                                                        INSULATION_TIME_S)
     return lk
 
 

@@ -167,6 +167,12 @@ def dc_bias_factor(cap: Capacitor, v_mean_v, v_rated_v, loss: float | None = Non
     return np.clip(1.0 - k * ratio ** 1.3, 0.05, 1.0)
 
 
+#: the wet capacitors' leakage rule: I <= 0.01 C V [uA, C in uF, V rated] [cp; IEC 60384-4 method],
+#: rising LEAKAGE_RISE times per LEAKAGE_RISE_SPAN_K kelvin [mem] (see leakage_max_a)
+LEAKAGE_A_PER_UF_V = 0.01e-6
+LEAKAGE_RISE, LEAKAGE_RISE_SPAN_K = 2.5, 40.0
+#: ceramics and films: insulation resistance 10 Gohm or 500 s / C, whichever is less [cp, mem]
+INSULATION_MAX_OHM, INSULATION_TIME_S = 10e9, 500.0
 #: typical leakage of an electrolytic or tantalum at its rated voltage as a share of the
 #: specification maximum: typical parts leak several times less than the limit [cp]
 LEAKAGE_TYPICAL_SHARE = 0.2
@@ -190,8 +196,13 @@ def leakage_max_a(cap: Capacitor, c_f, v_rated_v, temperature_c):
     0.5 uA floor [cp]. Both rise 2-3x from 20 to 60 °C [mem]: factor 2.5 ** ((T - 20) / 40).
     """
     floor_a = leakage_floor_a(cap)
-    i_a = np.maximum(0.01e-6 * (np.asarray(c_f, dtype=float) * 1e6) * v_rated_v, floor_a)
-    return i_a * 2.5 ** ((np.asarray(temperature_c, dtype=float) - 20.0) / 40.0)
+    i_a = np.maximum(LEAKAGE_A_PER_UF_V * (np.asarray(c_f, dtype=float) * 1e6) * v_rated_v, floor_a)
+    return i_a * leakage_temperature_factor(temperature_c)
+
+
+def leakage_temperature_factor(temperature_c):
+    """The wet capacitors' leakage at temperature_c [°C] relative to 20 °C: 2.5x per 40 K [mem]."""
+    return LEAKAGE_RISE ** ((np.asarray(temperature_c, dtype=float) - 20.0) / LEAKAGE_RISE_SPAN_K)
 
 
 def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c, v_work_v=None,
@@ -217,7 +228,7 @@ def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c, v_work_
         share = np.clip(np.asarray(v_work_v, dtype=float) / v_rated_v, 1e-6, 1.0)
         g_typ = LEAKAGE_TYPICAL_SHARE * g_max * share ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
         return g_max if maximum else g_typ
-    return 1.0 / np.minimum(10e9, 500.0 / c_f)
+    return 1.0 / np.minimum(INSULATION_MAX_OHM, INSULATION_TIME_S / c_f)
 
 
 def leakage_spread(cap: Capacitor, v_rated_v, v_work_v):

@@ -588,3 +588,13 @@ def test_chart_labels_are_neither_cut_off_nor_overlapping_in_chromium(tmp_path):
                 assert tab.evaluate(LAYOUT_PROBLEMS) == [], name
         finally:
             browser.close()
+
+
+def test_the_embedded_plotly_js_reads_the_arrays_the_page_writes():
+    # the page writes numeric arrays as plotly.js's base64 typed arrays ({"dtype", "bdata"});
+    # the plotly package 5.19 (pyproject's floor) bundles plotly.js 2.29.1, which decodes them;
+    # 5.18's bundle (plotly.js 2.27.0) has no decoder and would draw empty charts [checked by
+    # reading both bundles]
+    head = page._plotly_js()[:200]
+    version = tuple(int(x) for x in re.search(r"plotly\.js v(\d+)\.(\d+)\.(\d+)", head).groups())
+    assert version >= (2, 29, 1), version

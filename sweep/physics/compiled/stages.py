@@ -50,7 +50,9 @@ N_INPUTS = 35
 # the leakage's kinds in parts_row: none (the ideal mode), ceramics and films, electrolytic and
 # tantalum [parts.leakage_conductance_s]; and the positions of its scalars
 LEAK_NONE, LEAK_INSULATION, LEAK_WET = range(3)
-LK_KIND, LK_FLOOR, LK_VRATED, LK_SHARE, LK_RMIN, LK_CMIN, LK_BIT_R, LK_BIT_C = range(8)
+LK_KIND, LK_FLOOR, LK_VRATED, LK_SHARE, LK_RMIN, LK_CMIN, LK_BIT_R, LK_BIT_C, LK_RULE, LK_INS_R, \
+    LK_INS_T = range(11)
+N_LK = 11
 # per-point networks, computed once per tile into rows after the inputs (each has several
 # divisions, which would otherwise be repeated in every stage)
 RAT, RBT, AD, BD, VINFD, GD, VINFH, GH = range(N_INPUTS, N_INPUTS + 8)
@@ -138,6 +140,7 @@ def parts_row(t, lk, two_resistor, m):
     and the part-limit flags of the resistor and capacitor [model._flags]."""
     kind, floor, vr, share = lk[LK_KIND], lk[LK_FLOOR], lk[LK_VRATED], lk[LK_SHARE]
     r_min, c_min = lk[LK_RMIN], lk[LK_CMIN]
+    rule, ins_r, ins_t = lk[LK_RULE], lk[LK_INS_R], lk[LK_INS_T]
     bit_r, bit_c = np.uint32(lk[LK_BIT_R]), np.uint32(lk[LK_BIT_C])
     for p in range(m):
         if two_resistor:
@@ -150,9 +153,9 @@ def parts_row(t, lk, two_resistor, m):
         c = t[C, p] * t[MC, p]
         t[C, p] = c
         if kind == LEAK_INSULATION:         # 10 Gohm or 500 s / C, whichever is less
-            g = t[LF, p] * (1.0 / _fmin(10e9, 500.0 / c))
+            g = t[LF, p] * (1.0 / _fmin(ins_r, ins_t / c))
         elif kind == LEAK_WET:              # 0.01 C V or the floor, at temperature and voltage
-            i_max = _fmax(0.01e-6 * (c * 1e6) * vr, floor) * t[PT, p]
+            i_max = _fmax(rule * (c * 1e6) * vr, floor) * t[PT, p]
             g = t[LF, p] * (share * (i_max / vr) * t[SPOW, p])
         else:
             g = 0.0
