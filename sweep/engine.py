@@ -167,11 +167,10 @@ def fold_block(case: Case, design: dict[str, np.ndarray], conditions: dict[str, 
         err = _timer_error(case, variation, kw)
     recipes = _recipes(case, fold.outputs, err, kw, variation is not None and not ideal)
     fold.recipes = recipes
-    nd = max(len(np.atleast_1d(v)) for v in design.values()) if design else 1
-    nb = 1 if variation is None else max(np.shape(a)[1] if np.ndim(a) > 1 else 1
-                                         for a in _arrays(variation))
-    nc = max(len(np.atleast_1d(v)) for v in conditions.values()) if conditions else 1
-    fold.grid = (nd, nb, nc)
+    # the grid the fold reduces: designs x builds x conditions, whatever the model's inputs span
+    fold.grid = np.broadcast_shapes(*(np.shape(x) for x in kw.values()),
+                                    *(np.shape(a) for a in ([] if variation is None
+                                                            else _arrays(variation))))
     kernel.evaluate(case.circuit, case.timer, case.parts, case.load, ideal=ideal, fold=fold,
                     **spreads, **kw)
 

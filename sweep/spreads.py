@@ -31,7 +31,8 @@ import numpy as np
 
 from .engine import Variation
 from .physics import CIRCUIT_PARTS
-from .physics.parts import capacitance_temperature_factor, leakage_spread, temperature_envelope
+from .physics.parts import (WET_LEAKAGE, capacitance_temperature_factor, leakage_spread,
+                            temperature_envelope)
 from .study import Study
 
 DC_BIAS_SPREAD = 1.6       # DC-bias loss from 1/1.6 to 1.6 x typical [cp: 30-80 % vs 50 %]
@@ -57,7 +58,7 @@ def extra_spreads(study: Study, ideal: bool) -> list[str]:
     if ideal:
         return []
     out = []
-    if study.parts.technology.leakage in ("electrolytic", "tantalum"):
+    if study.parts.technology.leakage in WET_LEAKAGE:
         out.append("leakage")
     if study.circuit == "astable-diode" and study.parts.diode_drop_v is None:
         out.append("diode")

@@ -26,8 +26,9 @@ from .model import FLAG_BITS
 from .nodes import node_capacitance
 from .output import output_states
 from .parts import (INSULATION_MAX_OHM, INSULATION_TIME_S, LEAKAGE_A_PER_UF_V,
-                    LEAKAGE_TYPICAL_SHARE, LEAKAGE_VOLTAGE_EXPONENT, Load, Parts,
-                    capacitance_temperature_factor, leakage_floor_a, leakage_temperature_factor,
+                    LEAKAGE_TYPICAL_SHARE, WET_LEAKAGE, Load, Parts,
+                    capacitance_temperature_factor,
+                    leakage_floor_a, leakage_temperature_factor, leakage_voltage_factor,
                     reverse_current_at, saturation_at, thermal_voltage_v)
 from .timer import TimerModel
 
@@ -41,8 +42,6 @@ _TWO_RESISTOR = ("astable", "astable-diode")
 #: 2-core machine); a study's first pass evaluates about ten model points per swept point
 #: (nominal, corners, elasticities), so it pays from about half a million swept points
 MIN_POINTS = 500_000
-#: the capacitor technologies whose leakage follows the wet-electrolyte rule [parts.leakage_max_a]
-WET = ("electrolytic", "tantalum")
 #: points per tile: the stages' buffers stay in the core's cache
 TILE_POINTS = 1 << 12
 #: environment variable: "0" keeps every sweep on the numpy model
@@ -180,8 +179,7 @@ def _conditions(st, circuit, timer, parts, load, ideal, *, vcc, temperature, con
         r_max = np.inf
     # the wet capacitors' leakage factors of the condition [parts.leakage_conductance_s]
     pt = leakage_temperature_factor(t_amb)
-    v_rated = parts.capacitor_voltage_v
-    spow = np.clip(v_up / v_rated, 1e-6, 1.0) ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
+    spow = leakage_voltage_factor(v_up, parts.capacitor_voltage_v)
     inputs = {st.VCC: vcc, st.TAMB: t_amb, st.VUP: v_up, st.RF: rf, st.CTF: ctf, st.PT: pt,
               st.SPOW: spow,
               st.IQH: iq_h, st.IQL: iq_l, st.VHIGH: stage.v_high, st.VLOW: stage.v_low,
@@ -201,7 +199,7 @@ def _part_scalars(st, timer: TimerModel, parts: Parts, ideal: bool) -> np.ndarra
     resistor and capacitor and their flag bits."""
     cap = parts.technology
     lk = np.zeros(st.N_LK)
-    lk[st.LK_KIND] = (st.LEAK_NONE if ideal else st.LEAK_WET if cap.leakage in WET
+    lk[st.LK_KIND] = (st.LEAK_NONE if ideal else st.LEAK_WET if cap.leakage in WET_LEAKAGE
                       else st.LEAK_INSULATION)
     lk[st.LK_FLOOR] = leakage_floor_a(cap)
     lk[st.LK_VRATED] = parts.capacitor_voltage_v
@@ -258,15 +256,13 @@ def evaluate(circuit: str, timer: TimerModel, parts: Parts, load: Load, *, vcc, 
     sweep.folds). The result is then None, and the grid is never written to memory.
     ra_factor, rb_factor, r_factor, c_factor: multipliers of the parts (a build's or a corner's),
     applied per point: ra=x, ra_factor=m gives what ra=x*m gives, without the product's array."""
-    if circuit not in COMPILED and not all(np.ndim(f) == 0 and f == 1.0 for f in
-                                           (ra_factor, rb_factor, r_factor, c_factor)):
-        ra, rb, r, c = (np.multiply(x, f) for x, f in ((ra, ra_factor), (rb, rb_factor),
-                                                       (r, r_factor), (c, c_factor)))
-    if fold is not None and circuit not in COMPILED:
-        raise ValueError(f"the kernel has no stages for the {circuit} circuit to fold")
     if circuit not in COMPILED:
-        return model.evaluate(circuit, timer, parts, load, vcc=vcc, temperature=temperature, c=c,
-                              ra=ra, rb=rb, r=r, control_voltage=control_voltage,
+        if fold is not None:
+            raise ValueError(f"the kernel has no stages for the {circuit} circuit to fold")
+        return model.evaluate(circuit, timer, parts, load, vcc=vcc, temperature=temperature,
+                              c=np.multiply(c, c_factor), ra=np.multiply(ra, ra_factor),
+                              rb=np.multiply(rb, rb_factor), r=np.multiply(r, r_factor),
+                              control_voltage=control_voltage,
                               leak_factor=leak_factor, dc_bias_factor=dc_bias_factor,
                               diode_is_factor=diode_is_factor, iq_factor=iq_factor,
                               load_factor=load_factor, vf_shift=vf_shift,
@@ -502,8 +498,7 @@ def _diode_tile(st, quad, shockley, v_drop, t, sc, m, d, res, flags, o):
 
 
 def _rows(circuit, st) -> dict[str, int]:
-    """The row of the stages' output matrix that holds each per-point output (as `_result`
-    reads them)."""
+    """The row of the stages' output matrix that holds each per-point output."""
     if circuit in _TWO_RESISTOR:
         return dict(high_time_s=st.A_TH, low_time_s=st.A_TL, period_s=st.A_PER,
                     frequency_hz=st.A_FREQ, duty=st.A_DUTY, supply_current_a=st.A_SUPPLY,
@@ -524,7 +519,7 @@ def _rows(circuit, st) -> dict[str, int]:
 
 def _extra(circuit, stage) -> dict[str, object]:
     """The outputs that are not per point: the output stage's, at the condition level, and NaN
-    for what the circuit does not have (as `_result` fills them)."""
+    for what the circuit does not have (`_rows` takes precedence)."""
     out = dict(output_high_v=stage.v_high, output_low_v=stage.v_low,
                output_current_a=np.maximum(stage.i_high, stage.i_low))
     for k in ("high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
@@ -533,43 +528,30 @@ def _extra(circuit, stage) -> dict[str, object]:
     return out
 
 
-def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:
-    """The reference's result dict from the stages' output rows."""
-    def row(k):
-        return res[k].reshape(shape)
+#: the reference's result keys, in its order
+_KEYS = ("high_time_s", "low_time_s", "period_s", "frequency_hz", "duty", "pulse_width_s",
+         "supply_current_a", "idle_current_a", "discharge_peak_a", "ra_power_w", "wave_v_start_v",
+         "wave_v_top_v", "wave_vinf_high_v", "wave_vinf_low_v", "discharge_dump_s", "timeout_s",
+         "timeout_margin_s", "power_w", "output_high_v", "output_low_v", "output_current_a",
+         "junction_temp_c")
 
-    def const(x):
-        return np.broadcast_to(np.asarray(x, dtype=float), shape)
-    nan = const(np.nan)
-    if circuit in _TWO_RESISTOR:
-        out = dict(high_time_s=row(st.A_TH), low_time_s=row(st.A_TL), period_s=row(st.A_PER),
-                   frequency_hz=row(st.A_FREQ), duty=row(st.A_DUTY), pulse_width_s=nan,
-                   supply_current_a=row(st.A_SUPPLY), idle_current_a=nan,
-                   discharge_peak_a=row(st.A_PEAK), ra_power_w=row(st.A_PRES),
-                   wave_v_start_v=row(st.A_VBOT), wave_v_top_v=row(st.A_VTOP),
-                   wave_vinf_high_v=row(st.A_VINFH), wave_vinf_low_v=row(st.A_VINFL),
-                   discharge_dump_s=row(st.A_DUMP), timeout_s=nan, timeout_margin_s=nan,
-                   power_w=row(st.A_POWER))
-        tj = row(st.A_TJ)
-    else:
-        missing = circuit == "missing-pulse"
-        pw = row(st.M_PW)
-        out = dict(high_time_s=nan if missing else pw, low_time_s=nan, period_s=nan,
-                   frequency_hz=nan, duty=nan, pulse_width_s=nan if missing else pw,
-                   supply_current_a=row(st.M_SUPPLY), idle_current_a=row(st.M_IDLE),
-                   discharge_peak_a=row(st.M_PEAK), ra_power_w=row(st.M_PRES),
-                   wave_v_start_v=row(st.M_V0), wave_v_top_v=row(st.M_VTOP),
-                   wave_vinf_high_v=row(st.M_VINF), wave_vinf_low_v=row(st.M_V0))
-        if missing:       # the detector's keys come before the dump's, as in the reference
-            out.update(timeout_s=pw, timeout_margin_s=row(st.M_MARGIN))
-        out["discharge_dump_s"] = row(st.M_DUMP)
-        out.setdefault("timeout_s", nan)
-        out.setdefault("timeout_margin_s", nan)
-        out["power_w"] = row(st.M_POWER)
-        tj = row(st.M_TJ)
-    out["output_high_v"] = const(stage.v_high)
-    out["output_low_v"] = const(stage.v_low)
-    out["output_current_a"] = const(np.maximum(stage.i_high, stage.i_low))
-    out["junction_temp_c"] = tj
+
+def _keys(circuit) -> tuple[str, ...]:
+    """The result's keys: the missing-pulse detector's timeout keys come before the dump's, as
+    in the reference."""
+    if circuit != "missing-pulse":
+        return _KEYS
+    k = list(_KEYS)
+    k.remove("discharge_dump_s")
+    k.insert(k.index("timeout_margin_s") + 1, "discharge_dump_s")
+    return tuple(k)
+
+
+def _result(circuit, st, res, flags, shape, stage) -> dict[str, np.ndarray]:
+    """The reference's result dict from the stages' output rows (`_rows`) and the outputs at
+    the condition level (`_extra`)."""
+    rows, extra = _rows(circuit, st), _extra(circuit, stage)
+    out = {k: res[rows[k]].reshape(shape) if k in rows
+           else np.broadcast_to(np.asarray(extra[k], dtype=float), shape) for k in _keys(circuit)}
     out["flag_mask"] = flags.reshape(shape)
     return out

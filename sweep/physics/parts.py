@@ -167,6 +167,8 @@ def dc_bias_factor(cap: Capacitor, v_mean_v, v_rated_v, loss: float | None = Non
     return np.clip(1.0 - k * ratio ** 1.3, 0.05, 1.0)
 
 
+#: the technologies whose leakage follows the wet capacitors' rule below (the others: insulation)
+WET_LEAKAGE = ("electrolytic", "tantalum")
 #: the wet capacitors' leakage rule: I <= 0.01 C V [uA, C in uF, V rated] [cp; IEC 60384-4 method],
 #: rising LEAKAGE_RISE times per LEAKAGE_RISE_SPAN_K kelvin [mem] (see leakage_max_a)
 LEAKAGE_A_PER_UF_V = 0.01e-6
@@ -205,6 +207,13 @@ def leakage_temperature_factor(temperature_c):
     return LEAKAGE_RISE ** ((np.asarray(temperature_c, dtype=float) - 20.0) / LEAKAGE_RISE_SPAN_K)
 
 
+def leakage_voltage_factor(v_work_v, v_rated_v):
+    """The typical leakage conductance at v_work_v [V] relative to that at the rating v_rated_v
+    [V]: (V_work / V_rated) ** (LEAKAGE_VOLTAGE_EXPONENT - 1), the share clipped to [1e-6, 1]."""
+    share = np.clip(np.asarray(v_work_v, dtype=float) / v_rated_v, 1e-6, 1.0)
+    return share ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
+
+
 def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c, v_work_v=None,
                           maximum: bool = False):
     """Leakage of the timing capacitor as a parallel conductance [S] at temperature_c [°C].
@@ -220,13 +229,12 @@ def leakage_conductance_s(cap: Capacitor, c_f, v_rated_v, temperature_c, v_work_
     no temperature dependence modelled, the same for typical and maximum.
     """
     c_f = np.asarray(c_f, dtype=float)
-    if cap.leakage in ("electrolytic", "tantalum"):
+    if cap.leakage in WET_LEAKAGE:
         i_max = leakage_max_a(cap, c_f, v_rated_v, temperature_c)
         g_max = i_max / v_rated_v
         if v_work_v is None:
             v_work_v = v_rated_v
-        share = np.clip(np.asarray(v_work_v, dtype=float) / v_rated_v, 1e-6, 1.0)
-        g_typ = LEAKAGE_TYPICAL_SHARE * g_max * share ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0)
+        g_typ = LEAKAGE_TYPICAL_SHARE * g_max * leakage_voltage_factor(v_work_v, v_rated_v)
         return g_max if maximum else g_typ
     return 1.0 / np.minimum(INSULATION_MAX_OHM, INSULATION_TIME_S / c_f)
 
@@ -235,10 +243,9 @@ def leakage_spread(cap: Capacitor, v_rated_v, v_work_v):
     """Ratio of the specification maximum to the typical leakage conductance at working voltage
     v_work_v [V] (1 where the technology's leakage is not specified that way): how far the
     worst case and the Monte Carlo may take the leakage above its nominal figure."""
-    if cap.leakage not in ("electrolytic", "tantalum"):
+    if cap.leakage not in WET_LEAKAGE:
         return np.ones(np.shape(v_work_v))
-    share = np.clip(np.asarray(v_work_v, dtype=float) / v_rated_v, 1e-6, 1.0)
-    return 1.0 / (LEAKAGE_TYPICAL_SHARE * share ** (LEAKAGE_VOLTAGE_EXPONENT - 1.0))
+    return 1.0 / (LEAKAGE_TYPICAL_SHARE * leakage_voltage_factor(v_work_v, v_rated_v))
 
 
 # --- the diode of astable-diode ---------------------------------------------------------------

@@ -432,6 +432,21 @@ def astable_rates(t, sc, m, out, flags, o):
 
 
 @njit(**OPTS)
+def _surge(c_mean, v_top, v_lo, r_sat, r_series, surge_a, log_surge):
+    """The turn-on surge of the capacitor at v_top [V] dumped through r_series [ohm] into the
+    discharge transistor (r_sat [ohm], current limit surge_a [A]) down to v_lo [network.surge]:
+    (the energy the transistor takes [J], the dump's duration [s]); c_mean is the capacitance at
+    the swing's middle, log_surge the dump's logarithm."""
+    energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
+    r_eff = _fmax(r_sat, v_top / surge_a - r_series)
+    e_tr = energy * r_eff / (r_eff + r_series)
+    r_loop = r_sat + r_series
+    v_knee = _fmin(v_top, surge_a * r_loop)
+    t_cc = c_mean * (v_top - v_knee) / surge_a
+    return e_tr, t_cc + (c_mean * r_loop) * log_surge
+
+
+@njit(**OPTS)
 def surge_row(sc, vcc, ra_t, rb_t, a_d, b_d, v_bot, v_top, v_lo, i_start, c_mean, log_surge,
               out, flags, q):
     """One point's discharge peak and steady current, RA's dissipation and the turn-on surge
@@ -444,15 +459,10 @@ def surge_row(sc, vcc, ra_t, rb_t, a_d, b_d, v_bot, v_top, v_lo, i_start, c_mean
     vd_bot = a_d + b_d * v_bot
     steady = (vcc - vd_bot) / ra_t + (v_bot - vd_bot) / rb_t
     p_res = _fmax((vcc - vd_bot) * (vcc - vd_bot) / ra_t, i_start * i_start * ra_t)
-    energy = 0.5 * c_mean * (v_top * v_top - v_lo * v_lo)
-    r_eff = _fmax(rs, v_top / surge_a - rb_t)
-    e_tr = energy * r_eff / (r_eff + rb_t)
-    r_loop = rs + rb_t
-    v_knee = _fmin(v_top, surge_a * r_loop)
-    t_cc = c_mean * (v_top - v_knee) / surge_a
+    e_tr, dump_s = _surge(c_mean, v_top, v_lo, rs, rb_t, surge_a, log_surge)
     out[A_PEAK, q] = dis_peak
     out[A_PRES, q] = p_res
-    out[A_DUMP, q] = t_cc + (c_mean * r_loop) * log_surge
+    out[A_DUMP, q] = dump_s
     f = flags[q]
     f |= DISCHARGE if (steady > sc[DIS_MAX]) | (e_tr > sc[SURGE_E_MAX]) else np.uint32(0)
     f |= OVERPOWERED if p_res > sc[P_MAX] else np.uint32(0)
@@ -649,15 +659,10 @@ def mono_discharge(t, sc, quad, m, e, lg, out, flags, o):
         p_res = (vcc - v0) * (vcc - v0) / r_t
         c_mean = _cap_at(quad, 0.5 * (v0 + v_top), scale, stray, t[S0, p], t[S1, p], t[S2, p],
                          t[A, p], t[H, p])
-        energy = 0.5 * c_mean * (v_top * v_top - v0 * v0)
-        r_eff = _fmax(r_sat, v_top / surge_a - r_s)
-        e_tr = energy * r_eff / (r_eff + r_s)
-        r_loop = r_sat + r_s
-        v_knee = _fmin(v_top, surge_a * r_loop)
-        t_cc = c_mean * (v_top - v_knee) / surge_a
+        e_tr, dump_s = _surge(c_mean, v_top, v0, r_sat, r_s, surge_a, lg[1, p])
         out[M_PEAK, q] = dump + i_idle_r
         out[M_PRES, q] = p_res
-        out[M_DUMP, q] = t_cc + (c_mean * r_loop) * lg[1, p]
+        out[M_DUMP, q] = dump_s
         f = flags[q]
         f |= DISCHARGE if (i_idle_r > dis_max) | (e_tr > e_max) else np.uint32(0)
         f |= OVERPOWERED if p_res > p_max else np.uint32(0)
