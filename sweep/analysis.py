@@ -256,8 +256,7 @@ def _worst_case(study, design, cond, corners, outs, ideal):
         lo_of[o], hi_of[o] = _reduce(lo, np.min), _reduce(hi, np.max)
     nd = len(lo_of[outs[0]])
     mask = wc["flag_mask"]          # every corner written out: corner k is its C-order index
-    full = (nd,) + tuple(2 if i < len(corners.dims) else n
-                         for i, n in enumerate(mask.shape[1:-1])) + mask.shape[-1:]
+    full = (nd,) + corners.axes + mask.shape[-1:]
     cor = ((np.broadcast_to(mask, full) & STALL_BIT) != 0).reshape(nd, -1)
     return lo_of, hi_of, np.where(cor.any(1), np.argmax(cor, 1), -1)
 

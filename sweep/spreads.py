@@ -135,6 +135,12 @@ class Corners:
         """How many corners there are (2 ** spreads)."""
         return self.signs.shape[1]
 
+    @property
+    def axes(self) -> tuple[int, ...]:
+        """The shape of the spread axes, every corner written out: 2 per spread (one axis of
+        length 1 without any spread)."""
+        return (2,) * len(self.dims) or (1,)
+
     def words(self, study: Study, k: int) -> str:
         """Plain words for corner k, e.g. 'R at +5 %, C at -10 % and its envelope's low edge,
         leakage at its maximum'."""
