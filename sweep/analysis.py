@@ -1,5 +1,5 @@
 """Per-design figures: nominal, range over conditions, worst case, Monte Carlo yield, Taguchi
-signal-to-noise ratio, sensitivities; then ranking.
+signal-to-noise ratio, elasticities; then ranking.
 
 `analyse_block` is pure: (study, design range, options) -> one DataFrame row per design and,
 if asked, the block's points. Blocks are independent, so a serial run, local processes and a
@@ -9,6 +9,7 @@ designs were split into blocks.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -30,6 +31,10 @@ from .variables import AXES
 SPEC_BIT = np.uint32(FLAG_BITS["spec-miss"])
 LIMIT_BITS = np.uint32(sum(b for k, b in FLAG_BITS.items() if k != "spec-miss"))
 STALL_BIT = np.uint32(FLAG_BITS["timing-stalls"])
+#: relative step of the elasticities' forward difference from the nominal point: its error is
+#: about half the step times the curvature of ln y in ln x (under 1e-6 for the astable), and the
+#: rounding of ln y over it about 1e-10 [derived]
+SENS_STEP = 1e-6
 Z95 = 1.959963984540054       # two-sided 95 % normal quantile [book: normal tables]
 YIELD_FLOOR = 0.95        # without [spec] yield, a yield interval below this is "low yield" [cp]
 
@@ -151,19 +156,26 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     # timer's drift band
     parts = varied_parts(study)
     corners = worst_case_corners(study, cond, ideal)
-    main = main_outputs(study.circuit)[:1]
     if folds_corners(study, ideal) and can_fold(study.case, design, ideal):
-        wc_min, wc_max, first_stall, contrast = _folded_worst_case(study, design, cond, corners,
-                                                                   outs, ideal)
+        wc_min, wc_max, first_stall = _folded_worst_case(study, design, cond, corners, outs,
+                                                         ideal)
     else:
-        wc_min, wc_max, first_stall, contrast = _worst_case(study, design, cond, corners, outs,
-                                                            ideal)
+        wc_min, wc_max, first_stall = _worst_case(study, design, cond, corners, outs, ideal)
     for o in outs:
         row[f"{o}_wc_min"], row[f"{o}_wc_max"] = wc_min[o], wc_max[o]
-    # 4. sensitivities of the main output to each part, from the worst case's corners
+    # 4. elasticities of the main output at the nominal condition: a forward difference from
+    # the nominal point already evaluated (step 2), one step per part [derived]
+    main = main_outputs(study.circuit)[:1]
     if main and parts:
-        for p, sens in zip(parts, corner_sensitivities(corners, contrast, len(c_idx))):
-            row[f"sens_{p}"] = sens
+        m = main[0]
+        var = Variation({p: np.array([1 + SENS_STEP if q == p else 1.0 for q in parts])[None, :, None]
+                         for p in parts})
+        ev = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
+                            ideal=ideal, variation=var, with_spec=False)[m][:, :, 0]
+        with np.errstate(all="ignore"):
+            base = np.log(nom[m][:, 0, 0])
+            for i, p in enumerate(parts):
+                row[f"sens_{p}"] = (np.log(ev[:, i]) - base) / math.log1p(SENS_STEP)
     # 5. screening for the Monte Carlo: a design whose worst case lies wholly outside a spec
     # limit cannot yield a build that meets it [derived]
     reach = np.ones(nd, dtype=bool)
@@ -247,18 +259,7 @@ def _worst_case(study, design, cond, corners, outs, ideal):
     mask = wc["flag_mask"]          # every corner written out: corner k is its C-order index
     full = (nd,) + corners.axes + mask.shape[-1:]
     cor = ((np.broadcast_to(mask, full) & STALL_BIT) != 0).reshape(nd, -1)
-    contrast = np.zeros((0, nd))
-    main = main_outputs(study.circuit)
-    parts = varied_parts(study)
-    if main and parts:
-        # each corner's log of the main output summed over the conditions, then each part's
-        # signs against it: the same sums the folded worst case takes (fold.extremes)
-        u = _unrepeated(wc[main[0]])
-        with np.errstate(all="ignore"):
-            logs = np.log(u).sum(axis=-1) * (mask.shape[-1] if u.shape[-1] == 1 else 1)
-        logs = np.broadcast_to(logs, (nd,) + corners.axes).reshape(nd, -1)
-        contrast = corners.signs[:len(parts)] @ logs.T
-    return lo_of, hi_of, np.where(cor.any(1), np.argmax(cor, 1), -1), contrast
+    return lo_of, hi_of, np.where(cor.any(1), np.argmax(cor, 1), -1)
 
 
 def _folded_worst_case(study, design, cond, corners, outs, ideal):
@@ -268,36 +269,13 @@ def _folded_worst_case(study, design, cond, corners, outs, ideal):
     if "timeout_margin_s" in names and "timeout_s" not in names:
         names.append("timeout_s")
     nd = len(next(iter(design.values()))) if design else 1     # no timing parts: one design
-    main = main_outputs(study.circuit)
-    parts = varied_parts(study)
     fold = Extremes(names, nd, band=np.atleast_1d(_band(study, cond, ideal)).ravel(),
                     widen=[_widening(o) for o in names],
                     partner=[names.index("timeout_s") if o == "timeout_margin_s" else 0
-                             for o in names],
-                    main=names.index(main[0]) if main and parts else -1,
-                    signs=corners.signs[:len(parts)] if main else np.zeros((0, corners.count)))
+                             for o in names])
     fold_block(study.case, design, cond, fold, ideal=ideal, variation=corners.variation)
     return ({o: fold.minimum(i) for i, o in enumerate(outs)},
-            {o: fold.maximum(i) for i, o in enumerate(outs)}, fold.stall, fold.contrast)
-
-
-def corner_sensitivities(corners, contrast: np.ndarray, n_conditions: int) -> list[np.ndarray]:
-    """Each part's sensitivity of the main output (an elasticity, d ln y / d ln x, taken as a
-    secant across the part's spread): the output's log change between the part's two ends of
-    the worst case, summed over every corner of the other spreads and every condition, over
-    the part's own log change summed the same way. contrast: each part's (rows of
-    corners.signs) sum of its sign x ln y over corners and conditions, per design. Where y is
-    exactly a power of the part, x^k, this is k; it is the two-level factorial main effect of
-    ln x on ln y [book: Box, Hunter & Hunter, Statistics for Experimenters] divided by the
-    part's. NaN where a corner stalls (y NaN) or the part has no spread at all."""
-    out = []
-    for i, p in enumerate(list(corners.dims)[:len(contrast)]):
-        m = np.asarray(corners.variation.part[p], dtype=float)
-        m = np.broadcast_to(m, (1,) + corners.axes + (n_conditions,)).reshape(-1, n_conditions)
-        span = float(corners.signs[i] @ np.log(m).sum(axis=1))
-        with np.errstate(all="ignore"):
-            out.append(contrast[i] / span if span != 0 else np.full(contrast.shape[1], np.nan))
-    return out
+            {o: fold.maximum(i) for i, o in enumerate(outs)}, fold.stall)
 
 
 def mc_columns(study: Study) -> list[str]:

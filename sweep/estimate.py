@@ -34,12 +34,12 @@ class Estimate:
 
 
 def evaluations(study: Study) -> int:
-    """Model evaluations of a run: the sweep, the nominal condition, every worst-case corner
-    (the sensitivities come from them) and the Monte Carlo of at most MC_DESIGNS designs (exact
-    integers: no overflow)."""
+    """Model evaluations of a run: the sweep, every worst-case corner, the elasticities and the
+    Monte Carlo of at most MC_DESIGNS designs (exact integers: no overflow)."""
     nd, nc = study.n_designs, study.n_conditions
     corners = 2 ** (len(varied_parts(study)) + len(extra_spreads(study, False)))
-    return nd * nc * (1 + corners) + nd + min(nd, MC_DESIGNS) * nc * study.monte_carlo
+    return (nd * nc * (1 + corners) + nd * (1 + len(varied_parts(study)))
+            + min(nd, MC_DESIGNS) * nc * study.monte_carlo)
 
 
 #: a study this small cannot reach any limit of the size guard, so `run` does not time it
@@ -56,7 +56,7 @@ def estimate(study: Study, sample: int = 20_000) -> Estimate:
     nd, nc = study.n_designs, study.n_conditions
     evals = evaluations(study)
     # measure this machine on a slice of the study itself: one block of the first pass (sweep,
-    # corners) and one Monte Carlo evaluation of the same size. The slice has at
+    # corners, elasticities) and one Monte Carlo evaluation of the same size. The slice has at
     # most `sample` conditions, so nothing here grows with the sweep before the guard speaks.
     full_nc, study = nc, _thinned(study.grade_plan[0].study if study.grade_plan else study, sample)
     nc = study.n_conditions

@@ -3,10 +3,9 @@ so the grid of a Monte Carlo's builds or the worst case's corners is never writt
 
 `Moments` keeps what `analysis._monte_carlo` sums on the numpy model (the count of good builds,
 shifted sums and sums of squares of each output); `Extremes` what `analysis.analyse_block` takes
-of the worst case (each output's minimum and maximum widened by the timer's band, where a
-design first stalls, and the main output's log contrast along each part's spread, from which
-its sensitivities come). Each reduced output is made from a model output by the engine's own
-step (`Recipe`, built by `engine.fold_block`); the compiled arithmetic is in
+of the worst case (each output's minimum and maximum widened by the timer's band, and where a
+design first stalls). Each reduced output is made from a model output by the engine's own step
+(`Recipe`, built by `engine.fold_block`); the compiled arithmetic is in
 `physics/compiled/fold.py`.
 """
 from __future__ import annotations
@@ -92,34 +91,26 @@ class Extremes(_Fold):
     """The worst case's per-design minimum and maximum of each output over corners x
     conditions, widened by the timer's band at each condition (widen: physics.compiled.steps.BAND_*,
     partner: the output whose value times the band widens a margin), NaN where any value is
-    NaN; the first corner x condition (corner * conditions + condition) that stalls, -1 for
-    none; and, for each row of signs (a part's sign at every corner), the sum over corners and
-    conditions of its sign x the log of output main (analysis.corner_sensitivities)."""
+    NaN; and the first corner x condition (corner * conditions + condition) that stalls, -1 for
+    none."""
     band: np.ndarray = field(default_factory=lambda: np.zeros(1))
     widen: list[int] = field(default_factory=list)
     partner: list[int] = field(default_factory=list)
-    main: int = -1                     # the output whose log contrasts are summed (-1: none)
-    signs: np.ndarray = field(default_factory=lambda: np.zeros((0, 1)))  # spreads x corners
 
     def __post_init__(self):
         n, nd = len(self.outputs), self.designs
         self.lo, self.hi = np.full((n, nd), np.inf), np.full((n, nd), -np.inf)
         self.nan = np.zeros((n, nd), dtype=np.bool_)
         self.stall = np.full(nd, -1, dtype=np.int64)
-        self.contrast = np.zeros((len(self.signs), nd))
 
     def _tile(self, fd, nb, nc):
         band = np.ascontiguousarray(np.broadcast_to(np.asarray(self.band, float).ravel(), (nc,)))
         widen = np.array(self.widen or [0] * len(self.outputs), dtype=np.int64)
         partner = np.array(self.partner or [0] * len(self.outputs), dtype=np.int64)
 
-        signs = np.ascontiguousarray(self.signs, dtype=np.float64)
-        if len(signs) and signs.shape[1] != nb:
-            raise ValueError(f"{signs.shape[1]} corners' signs for {nb} corners per design")
-
         def fold(vals, flags, r0, r1):
             fd.extremes(vals, flags, r0, r1, nb, nc, band, widen, partner, self.lo, self.hi,
-                        self.nan, self.stall, self.main, signs, self.contrast)
+                        self.nan, self.stall)
         return fold
 
     def minimum(self, o: int) -> np.ndarray:

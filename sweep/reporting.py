@@ -285,16 +285,9 @@ NOTES = [
                     "E. B. Wilson, 1927]."),
     ("Signal-to-noise", "Taguchi nominal-the-best: 10 log10(mean^2 / variance) of the main output "
                         "over the Monte Carlo builds and conditions [book: Taguchi methods]."),
-    ("Sensitivity", "Elasticity d ln y / d ln x of the main output to each part, taken across "
-                    "the part's worst-case spread: the output's log change between the part's "
-                    "two ends, summed over every corner of the other spreads and every "
-                    "condition, over the part's own log change summed the same way (a "
-                    "two-level factorial main effect [book: Box, Hunter & Hunter, Statistics "
-                    "for Experimenters]). It equals the derivative where the output is a power "
-                    "of the part, and differs from it by the square of the spread otherwise. A "
-                    "class II ceramic's DC-bias loss moves with its value, as in the worst "
-                    "case, so its figure counts both. Blank where a corner stalls or the part "
-                    "has no spread."),
+    ("Sensitivity", "Elasticity d ln y / d ln x of the main output to each part at the "
+                    "nominal condition, by forward difference (a step of 1e-6) from the nominal "
+                    "point."),
     ("Ranking", "Feasible designs first (no limit flag at any condition, nominal in spec). Yields "
                 "whose 95 % intervals overlap the best yield's are a tie (when any design passes, only "
                 "passing designs lead): those designs go by "

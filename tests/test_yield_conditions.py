@@ -69,7 +69,7 @@ def test_no_sampled_design_keeps_its_interior_worst_case_inside_the_spec(name):
     design, cond = _sampled(study)
     inner = {k: v[~_extreme_conditions(study, cond)] for k, v in cond.items()}
     outs = analysis.summary_outputs(study)
-    lo, hi, _, _ = analysis._worst_case(study, design, inner, worst_case_corners(study, inner, False),
+    lo, hi, _ = analysis._worst_case(study, design, inner, worst_case_corners(study, inner, False),
                                         outs, False)
     inside = np.ones(len(lo[outs[0]]), dtype=bool)
     for s in study.spec:

@@ -40,7 +40,7 @@ _TWO_RESISTOR = ("astable", "astable-diode")
 #: stages costs about 0.5-0.7 s more than the numpy model's first call, and the kernel saves
 #: about 0.1 us per model evaluation (both measured with tests/benchmarks/kernel.py on a shared
 #: 2-core machine); a study's first pass evaluates about ten model points per swept point
-#: (nominal and corners), so it pays from about half a million swept points
+#: (nominal, corners, elasticities), so it pays from about half a million swept points
 MIN_POINTS = 500_000
 #: points per tile: the stages' buffers stay in the core's cache
 TILE_POINTS = 1 << 12

@@ -106,40 +106,17 @@ def moments(vals, r0, r1, nb, nc, spec_o, spec_lo, spec_hi, main_o, ok, s1, s2, 
             ok[d] += 1.0
 
 
-#: values multiplied together before one log is taken (extremes' log contrasts)
-LOG_GROUP = 8
-
-
 @njit(**OPTS)
-def extremes(vals, flags, r0, r1, nb, nc, band, widen, partner, lo, hi, nan, stall, main, signs,
-             contrast):
+def extremes(vals, flags, r0, r1, nb, nc, band, widen, partner, lo, hi, nan, stall):
     """Fold a tile's values into each design's minimum and maximum over its corners (builds)
     and conditions, each widened by the timer's relative band at the condition (widen[o]: none;
     a timing x (1 -/+ band); a frequency / (1 +/- band); a margin -/+ its timeout (output
     partner[o]) x band); nan[o, d] marks a NaN met (the extreme is then NaN). stall[d]: the
-    first corner x condition (b * nc + c) whose point stalls, -1 while none has. contrast[i, d]:
-    the sum over corners and conditions of signs[i, b] x ln(output main), the output's log
-    change along spread i summed (main < 0: none)."""
+    first corner x condition (b * nc + c) whose point stalls, -1 while none has."""
     for r in range(r0, r1):
         d = r // nb
         b = r - d * nb
         p0 = (r - r0) * nc
-        if main >= 0 and signs.shape[0] > 0:
-            # the sum of the logs as the logs of products of LOG_GROUP values (a log per value
-            # cost more than the 6 evaluations the sensitivities once took); a product out of
-            # a double's comfortable range takes its values' logs one by one
-            t = 0.0
-            for g in range(0, nc, LOG_GROUP):
-                prod = 1.0
-                for c in range(g, min(nc, g + LOG_GROUP)):
-                    prod *= vals[main, p0 + c]
-                if prod > 1e-300 and prod < 1e300:
-                    t += np.log(prod)
-                else:
-                    for c in range(g, min(nc, g + LOG_GROUP)):
-                        t += np.log(vals[main, p0 + c])
-            for i in range(signs.shape[0]):
-                contrast[i, d] += signs[i, b] * t
         if stall[d] < 0:
             for c in range(nc):
                 if flags[p0 + c] & STALLS:
