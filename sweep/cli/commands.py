@@ -22,10 +22,11 @@ Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar or t
 
 def _no_type_on_flags() -> None:
     """Help lists a flag (--ideal, --quiet, --help...) without a value type: it takes no value,
-    so the framework's "<bool>" beside it misleads. Options with a value keep their type."""
+    so the framework's "<bool>" beside it misleads. Options with a value keep their type.
+    (A typer without this hook is left as it is.)"""
     from typer.core import TyperOption
-    shown = TyperOption.display_type_rich
-    if getattr(shown, "_flags_plain", False):
+    shown = getattr(TyperOption, "display_type_rich", None)
+    if shown is None or getattr(shown, "_flags_plain", False):
         return
 
     def display_type_rich(self, ctx):

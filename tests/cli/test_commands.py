@@ -201,6 +201,19 @@ def test_summary_says_when_the_picks_worst_case_misses_the_spec(examples):
     assert "Tolerances assumed" in text and "E12" in text
 
 
+def test_the_help_patch_leaves_a_typer_without_its_hook_alone(monkeypatch):
+    # typer releases before 0.29 have no TyperOption.display_type_rich (from memory: 0.28.0
+    # raised AttributeError at import); the patch must skip, not break every command
+    import typer.core
+    from sweep.cli import commands
+
+    class OlderOption:            # an option class without the hook
+        pass
+    monkeypatch.setattr(typer.core, "TyperOption", OlderOption)
+    commands._no_type_on_flags()
+    assert not hasattr(OlderOption, "display_type_rich")
+
+
 def test_help_shows_no_type_after_flags_and_new_uses_the_right_article(tmp_path, capsys):
     code, out, _ = cli(["run", "--help"], capsys)
     assert code == 0 and "--ideal" in out and "<bool>" not in out
