@@ -6,7 +6,8 @@ import numpy as np
 import pandas as pd
 
 from . import values as qv
-from .analysis import VERDICTS, chart_output, main_outputs, spread_reading, yield_target
+from .analysis import (SENS_STEP, VERDICTS, chart_output, main_outputs, spread_reading,
+                       yield_target)
 from .physics import FLAGS, REGISTRY
 from .bom import bill_of_materials
 from .pick import PickFigures
@@ -286,8 +287,8 @@ NOTES = [
     ("Signal-to-noise", "Taguchi nominal-the-best: 10 log10(mean^2 / variance) of the main output "
                         "over the Monte Carlo builds and conditions [book: Taguchi methods]."),
     ("Sensitivity", "Elasticity d ln y / d ln x of the main output to each part at the "
-                    "nominal condition, by forward difference (a step of 1e-6) from the nominal "
-                    "point."),
+                    f"nominal condition, by forward difference (a step of {SENS_STEP:g}) from the "
+                    "nominal point."),
     ("Ranking", "Feasible designs first (no limit flag at any condition, nominal in spec). Yields "
                 "whose 95 % intervals overlap the best yield's are a tie (when any design passes, only "
                 "passing designs lead): those designs go by "
