@@ -144,8 +144,8 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
     sweep = evaluate_block(study.case, design, cond, ideal=ideal)
     mask = np.bitwise_or.reduce(sweep["flag_mask"][:, 0, :], axis=1)
     # 2. nominal parts at the nominal condition
-    nom = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
-                         ideal=ideal)
+    at_nominal = {k: np.array([v]) for k, v in study.case.nominal.items()}
+    nom = evaluate_block(study.case, design, at_nominal, ideal=ideal)
     for o in outs:
         v = sweep[o][:, 0, :]
         row[f"{o}_nom"] = nom[o][:, 0, 0]
@@ -170,8 +170,8 @@ def analyse_block(study: Study, start: int, stop: int, opt: Options = Options()
         m = main[0]
         var = Variation({p: np.array([1 + SENS_STEP if q == p else 1.0 for q in parts])[None, :, None]
                          for p in parts})
-        ev = evaluate_block(study.case, design, {k: np.array([v]) for k, v in study.case.nominal.items()},
-                            ideal=ideal, variation=var, with_spec=False)[m][:, :, 0]
+        ev = evaluate_block(study.case, design, at_nominal, ideal=ideal, variation=var,
+                            with_spec=False)[m][:, :, 0]
         with np.errstate(all="ignore"):
             base = np.log(nom[m][:, 0, 0])
             for i, p in enumerate(parts):

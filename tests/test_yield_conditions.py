@@ -18,6 +18,7 @@ their limits at every condition.
 """
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import numpy as np
@@ -38,12 +39,14 @@ def _extreme_conditions(study, cond) -> np.ndarray:
     return ext
 
 
-def _sampled(study):
-    """The designs the Monte Carlo samples (worst case can still meet the spec): their numbers
-    and axis values; and the conditions."""
+@functools.lru_cache(maxsize=None)
+def _sampled(name):
+    """A bundled study, the designs its Monte Carlo samples (worst case can still meet the
+    spec): their numbers and axis values; and the conditions."""
+    study = load_study(Path("studies") / f"{name}.toml")
     df, _ = analysis.analyse_block(study, 0, study.n_designs, analysis.Options(monte_carlo=0))
     numbers = df.loc[df["reach"], "design"].to_numpy()
-    return (numbers, axis_values(study.design, numbers - 1),
+    return (study, numbers, axis_values(study.design, numbers - 1),
             axis_values(study.conditions, np.arange(study.n_conditions)))
 
 
@@ -52,8 +55,7 @@ def _sampled(study):
 @pytest.mark.parametrize("name, rises", [("bike-light", True), ("relay-delay", True),
                                          ("buzzer", False)])
 def test_reading_only_the_extreme_conditions_would_overstate_the_yield(name, rises):
-    study = load_study(Path("studies") / f"{name}.toml")
-    numbers, design, cond = _sampled(study)
+    study, numbers, design, cond = _sampled(name)
     ext = _extreme_conditions(study, cond)
     assert ext.any() and not ext.all()
     outs = analysis.summary_outputs(study)
@@ -73,8 +75,7 @@ def test_reading_only_the_extreme_conditions_would_overstate_the_yield(name, ris
 
 @pytest.mark.parametrize("name", ["bike-light", "buzzer", "relay-delay"])
 def test_no_sampled_design_keeps_its_interior_worst_case_inside_the_spec(name):
-    study = load_study(Path("studies") / f"{name}.toml")
-    _, design, cond = _sampled(study)
+    study, _, design, cond = _sampled(name)
     inner = {k: v[~_extreme_conditions(study, cond)] for k, v in cond.items()}
     outs = analysis.summary_outputs(study)
     lo, hi, _ = analysis._worst_case(study, design, inner, worst_case_corners(study, inner, False),

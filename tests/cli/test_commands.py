@@ -202,8 +202,8 @@ def test_summary_says_when_the_picks_worst_case_misses_the_spec(examples):
 
 
 def test_the_help_patch_leaves_a_typer_without_its_hook_alone(monkeypatch):
-    # typer releases before 0.29 have no TyperOption.display_type_rich (from memory: 0.28.0
-    # raised AttributeError at import); the patch must skip, not break every command
+    # typer releases before 0.29 have no TyperOption.display_type_rich (seen here: with 0.28.0
+    # every command raised AttributeError at import); the patch must skip, not break them
     import typer.core
     from sweep.cli import commands
 
